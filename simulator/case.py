@@ -1,0 +1,205 @@
+"""Operating cases: what differs from the design point.
+
+A case file names a model file (path relative to the case file) and sets the
+operating conditions in its ``[operation]`` table, extraction changes in
+``[extractions.NAME]`` and heaters out of service in ``[heaters.NAME]``.
+:func:`read_conditions` turns such a table into :class:`Conditions`, SI
+throughout; batch studies build many conditions from one case by
+:func:`override`.
+
+Case file reference: see README.md, section "Case file".
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import InputError
+from .model import Model, load_model
+from .reading import Problems, TableReader, load_toml
+from .steam import BACKENDS, P_MAX
+from .units import Where
+
+__all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
+           "GOVERNING", "OPERATION_KEYS"]
+
+GOVERNING = ("sliding", "throttle")
+OPERATION_KEYS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction",
+                  "governing", "throttle_pressure", "throttle_temperature",
+                  "reheat_temperature", "exhaust_pressure")
+
+
+@dataclass(frozen=True)
+class Conditions:
+    """One operating point, SI units.
+
+    Exactly one of ``throttle_flow`` [kg/s] and ``output`` [W] is set.
+    ``governing`` is ``"sliding"`` (throttle pressure follows the load, valves
+    wide open) or ``"throttle"`` (throttle pressure held at
+    ``throttle_pressure`` [Pa], the valves throttle).
+    ``extraction_control`` maps an extraction name to ``(control, value)``:
+    ``("closed", 0)``, ``("flow", kg/s)`` or ``("fraction", of throttle flow)``.
+    """
+
+    throttle_flow: float | None = None
+    output: float | None = None
+    governing: str = "sliding"
+    throttle_pressure: float | None = None
+    throttle_temperature: float | None = None
+    reheat_temperature: float | None = None
+    exhaust_pressure: float | None = None
+    extraction_control: tuple = ()
+    heaters_out: frozenset = frozenset()
+    label: str = ""
+
+    def controls(self) -> dict:
+        return dict(self.extraction_control)
+
+
+@dataclass
+class Case:
+    """A case file read and resolved: its model, its conditions and its text."""
+
+    name: str
+    description: str
+    file: str
+    text: str
+    sha256: str
+    model: Model
+    conditions: Conditions
+    backend: str = "seuif97"
+    data: dict = field(default_factory=dict)
+
+
+def load_case(path: str | Path, model: Model | None = None) -> Case:
+    """Read a case file and the model it names."""
+    path = Path(path)
+    data, text = load_toml(path)
+    problems = Problems()
+    top = TableReader(data, Where(str(path)), problems)
+    model_ref = top.string("model")
+    name = top.string("name", default=path.stem)
+    description = top.string("description", default="")
+    backend = top.string("backend", default="seuif97", choices=sorted(BACKENDS))
+    top.finish(also_valid=("operation", "extractions", "heaters", "sweep", "profile"))
+    problems.raise_if_any()
+    if model is None:
+        model_path = (path.parent / model_ref).resolve()
+        if not model_path.exists():
+            raise InputError(f"model file {model_ref!r} not found (looked at {model_path})",
+                             file=str(path), key="model")
+        model = load_model(model_path)
+    cond = read_conditions(data, model, str(path))
+    return Case(name, description, str(path), text, hashlib.sha256(text.encode()).hexdigest(),
+                model, cond, backend, data)
+
+
+def read_conditions(data: dict, model: Model, file: str = "<case>") -> Conditions:
+    """Resolve the ``[operation]``, ``[extractions]`` and ``[heaters]`` tables."""
+    problems = Problems()
+    op = TableReader(data.get("operation", {}), Where(file, "operation"), problems,
+                     atmosphere=None)
+    flows = [k for k in ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction")
+             if k in op.data]
+    if len(flows) > 1:
+        problems.add(op.where.child(flows[1]).error(
+            f"give only one of {', '.join(flows)}: the load is set once"))
+    m_T = out = None
+    m_d = model.throttle.flow
+    if "throttle_flow" in op.data:
+        m_T = op.quantity("throttle_flow", "mass_flow", positive=True)
+    elif "throttle_flow_fraction" in op.data:
+        f = op.number("throttle_flow_fraction", lo=0.0, hi=2.0, lo_open=True)
+        m_T = f * m_d if f is not None else None
+    elif "output" in op.data:
+        out = op.quantity("output", "power", positive=True)
+    elif "output_fraction" in op.data:
+        f = op.number("output_fraction", lo=0.0, hi=2.0, lo_open=True)
+        out = f * model.generator.rating if f is not None else None
+    else:
+        m_T = m_d
+    for k in flows[1:]:
+        op.raw(k)
+    governing = op.string("governing", default="sliding", choices=GOVERNING)
+    p_T = op.quantity("throttle_pressure", "pressure", default=None, positive=True, hi=P_MAX)
+    T_T = op.quantity("throttle_temperature", "temperature", default=None, lo=273.15,
+                      hi=1073.15)
+    T_rh = op.quantity("reheat_temperature", "temperature", default=None, lo=273.15, hi=1073.15)
+    p_x = op.quantity("exhaust_pressure", "pressure", default=None, positive=True, hi=P_MAX)
+    op.finish()
+    if p_T is not None and governing == "sliding":
+        problems.add(op.where.child("throttle_pressure").error(
+            "a held throttle pressure needs governing = 'throttle'; with sliding pressure the "
+            "throttle pressure is a result"))
+    if T_rh is not None and not any(p.is_reheater for p in model.paths):
+        problems.add(op.where.child("reheat_temperature").error("the model has no reheater"))
+
+    controls = []
+    ex = data.get("extractions", {})
+    if not isinstance(ex, dict):
+        problems.add(Where(file, "extractions").error("expected tables [extractions.NAME]"))
+        ex = {}
+    out_set = set()
+    for ename, edat in ex.items():
+        w = Where(file, f"extractions.{ename}")
+        if ename not in model.extractions:
+            import difflib
+
+            hint = difflib.get_close_matches(ename, list(model.extractions), n=1)
+            problems.add(w.error(f"the model has no extraction {ename!r}"
+                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
+            continue
+        er = TableReader(edat, w, problems)
+        control = er.string("control", choices=("closed", "flow", "fraction", "heater"))
+        value = 0.0
+        if control == "flow":
+            value = er.quantity("flow", "mass_flow", lo=0.0)
+        elif control == "fraction":
+            value = er.number("fraction", lo=0.0, hi=1.0)
+        er.finish()
+        e = model.extractions[ename]
+        if control == "heater" and not e.heater:
+            problems.add(w.child("control").error("this extraction feeds no heater"))
+        elif control in ("flow", "fraction") and e.heater:
+            problems.add(w.child("control").error(
+                f"this extraction feeds heater {e.heater!r}, which sets its flow; close it "
+                f"or take the heater out of service instead"))
+        elif control == "closed" and e.heater:
+            out_set.add(e.heater)
+        elif control is not None and value is not None:
+            controls.append((ename, (control, float(value))))
+    hs = data.get("heaters", {})
+    if not isinstance(hs, dict):
+        problems.add(Where(file, "heaters").error("expected tables [heaters.NAME]"))
+        hs = {}
+    for hname, hdat in hs.items():
+        w = Where(file, f"heaters.{hname}")
+        if hname not in model.heaters:
+            import difflib
+
+            hint = difflib.get_close_matches(hname, list(model.heaters), n=1)
+            problems.add(w.error(f"the model has no heater {hname!r}"
+                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
+            continue
+        hr = TableReader(hdat, w, problems)
+        ins = hr.boolean("in_service", default=True)
+        hr.finish()
+        if ins is False:
+            out_set.add(hname)
+    for hname in out_set:
+        e = model.extractions[model.heaters[hname].extraction]
+        controls.append((e.name, ("closed", 0.0)))
+        if model.heaters[hname].kind == "deaerator":
+            problems.add(Where(file, f"heaters.{hname}", "in_service").error(
+                "the deaerator cannot be taken out of service"))
+    problems.raise_if_any()
+    return Conditions(m_T, out, governing, p_T, T_T, T_rh, p_x, tuple(sorted(controls)),
+                      frozenset(out_set))
+
+
+def override(cond: Conditions, **changes) -> Conditions:
+    """A copy of ``cond`` with fields changed (SI values)."""
+    return dataclasses.replace(cond, **changes)

@@ -1,0 +1,135 @@
+"""The ``partload`` command.
+
+Exit codes: 0 success; 1 a point that cannot be solved (convergence, a limit of
+the machine, a property range); 2 a mistake in the input (file, table and key
+named) or in the command line; 3 a result file that is damaged or in the way.
+``--debug`` shows the traceback of any error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import traceback
+
+from . import __version__
+from .errors import InputError, PartloadError, ResultFileError, SolveError
+
+__all__ = ["main"]
+
+
+def _cmd_check(args) -> int:
+    from .case import Conditions
+    from .model import load_model
+    from .report import format_model, format_point, point_to_dict
+    from .solve import solve_point
+
+    model = load_model(args.model)
+    result = solve_point(model, Conditions(throttle_flow=model.throttle.flow), args.backend)
+    if args.json:
+        print(json.dumps({"model": model.name, "file": model.file, "design": point_to_dict(
+            result, "design")}, indent=2))
+        return 0
+    print(format_model(model))
+    print()
+    print("Design heat balance as calibrated")
+    print("=================================")
+    print(format_point(result, "design"))
+    if model.stated_output is not None:
+        diff = result.totals["generator_output"] - model.stated_output
+        print(f"\nstated design output {model.stated_output / 1e6:.3f} MW; calibrated model gives "
+              f"{result.totals['generator_output'] / 1e6:.3f} MW ({diff / 1e6:+.3f} MW)")
+    return 0
+
+
+def _cmd_point(args) -> int:
+    from .case import load_case
+    from .report import format_point, point_to_dict
+    from .solve import solve_point
+
+    case = load_case(args.case)
+    backend = args.backend or case.backend
+    result = solve_point(case.model, case.conditions, backend)
+    cautions = _cautions(case.model, case.conditions, result)
+    if args.json:
+        print(json.dumps(point_to_dict(result, case.name, cautions), indent=2))
+    else:
+        print(format_point(result, case.name, cautions))
+    return 0
+
+
+def _cautions(model, cond, result):
+    try:
+        from .cautions import check_point
+    except ImportError:  # pragma: no cover - cautions module is optional during development
+        return []
+    return check_point(model, cond, result)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="partload",
+        description="Off-design steam-turbine performance: calibrate a turbine model to its "
+                    "design heat balance and predict pressures, bleed flows, output and heat "
+                    "rate at other operating points.")
+    p.add_argument("--version", action="version", version=f"partload {__version__}")
+    p.add_argument("--debug", action="store_true", help="show tracebacks of errors")
+    sub = p.add_subparsers(dest="command", required=True)
+
+    c = sub.add_parser("check", help="validate and calibrate a model file; print its design "
+                                     "heat balance and constants")
+    c.add_argument("model", help="model file (TOML)")
+    c.add_argument("--backend", default="seuif97", help="steam property backend: seuif97 "
+                                                        "(default) or iapws")
+    c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    c.set_defaults(func=_cmd_check)
+
+    c = sub.add_parser("point", help="solve one operating case and print its tables")
+    c.add_argument("case", help="case file (TOML)")
+    c.add_argument("--backend", default=None, help="steam property backend: seuif97 or iapws "
+                                                   "(default: the case's, else seuif97)")
+    c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    c.set_defaults(func=_cmd_point)
+
+    try:
+        from . import study_cli
+    except ImportError:
+        study_cli = None
+    if study_cli is not None:
+        study_cli.add_commands(sub)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except InputError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"partload: error in input: {exc}", file=sys.stderr)
+        return 2
+    except SolveError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"partload: cannot solve: {exc}", file=sys.stderr)
+        return 1
+    except ResultFileError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"partload: result file: {exc}", file=sys.stderr)
+        return 3
+    except PartloadError as exc:  # pragma: no cover - every error has a class above
+        if args.debug:
+            traceback.print_exc()
+        print(f"partload: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("partload: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,63 @@
+"""Exhaust (leaving) loss of the last stage and the used-energy end point.
+
+The kinetic energy of the steam leaving the last row, and the losses of the
+exhaust hood, are not converted to work.  The loss is read from the machine's
+curve of loss versus annulus velocity ``V = m v / A`` and added to the
+expansion-line end point (ELEP) to give the used-energy end point (UEEP):
+
+.. math::  h_{UEEP} = h_{ELEP} + L \\cdot 0.87 \\cdot (1 - y)(1 - 0.65 y)
+
+with ``L`` the exhaust loss per unit of dry flow [J/kg] and ``y`` the moisture
+fraction at the ELEP (the published form writes ``(1 - 0.01 Y)(1 - 0.0065 Y)``
+with ``Y`` in percent).  Shaft work is ``m (h_in - h_UEEP)``; the condenser
+receives steam at ``h_UEEP``.
+
+Reference: R. C. Spencer, K. C. Cotton and C. N. Cannon, "A method for
+predicting the performance of steam turbine-generators ... 16,500 kW and
+larger", Trans. ASME J. Eng. Power 85(4), 249-301, 1963.  The coefficients
+0.87 and 0.0065 are quoted from memory of that paper's UEEP relation.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+__all__ = ["annulus_velocity", "exhaust_loss", "used_energy_end_point"]
+
+
+def annulus_velocity(m_dot: float, v: float, area: float) -> float:
+    """Axial velocity through the last-stage annulus, ``m v / A`` [m/s].
+
+    Parameters
+    ----------
+    m_dot : mass flow [kg/s]
+    v : specific volume at the expansion-line end point [m^3/kg]
+    area : annulus area of the last row [m^2]
+    """
+    return m_dot * v / area
+
+
+def exhaust_loss(velocity: float, curve_velocity: Sequence[float],
+                 curve_loss: Sequence[float]) -> float:
+    """Exhaust loss [J/kg dry flow] from the machine's curve by linear interpolation.
+
+    Held at the end values outside the curve; the curve should span the
+    velocities of interest (typically 60-350 m/s).
+    """
+    return float(np.interp(velocity, curve_velocity, curve_loss))
+
+
+def used_energy_end_point(h_elep: float, loss: float, y: float) -> float:
+    """Used-energy end point [J/kg] from the ELEP, the exhaust loss and moisture.
+
+    Parameters
+    ----------
+    h_elep : expansion-line end point enthalpy [J/kg]
+    loss : exhaust loss from the curve [J/kg]
+    y : moisture fraction at the ELEP [-]
+
+    Spencer, Cotton & Cannon, Trans. ASME J. Eng. Power 85, 1963 (see module).
+    """
+    return h_elep + loss * 0.87 * (1.0 - y) * (1.0 - 0.65 * y)

@@ -1,0 +1,48 @@
+"""End point of an expansion line with a given efficiency and Baumann's rule.
+
+.. math::  h_{out} = h_{in} - \\eta (h_{in} - h_s(p_{out}, s_{in}))
+
+with the wet efficiency by Baumann's rule (see
+:func:`simulator.physics.efficiency.baumann_factor`) using the mean of inlet
+and outlet moisture.  Because the outlet moisture depends on ``h_out`` and is
+linear in it inside the dome, the end point is found in closed form, without
+iteration.
+"""
+
+from __future__ import annotations
+
+__all__ = ["expansion_end"]
+
+
+def expansion_end(h_in: float, dh_s: float, eta_dry: float, y_in: float,
+                  h_liq: float, h_vap: float, alpha: float = 1.0) -> float:
+    """Outlet enthalpy of an expansion with Baumann's moisture correction.
+
+    Parameters
+    ----------
+    h_in : inlet enthalpy [J/kg]
+    dh_s : isentropic enthalpy drop to the outlet pressure [J/kg]
+    eta_dry : dry isentropic efficiency [-]
+    y_in : inlet moisture fraction [-]
+    h_liq, h_vap : saturated liquid and vapour enthalpy at the outlet pressure [J/kg]
+    alpha : Baumann factor [-] (K. Baumann, J. IEE 59, 1921)
+
+    Returns
+    -------
+    float
+        Outlet enthalpy [J/kg].
+
+    Notes
+    -----
+    With ``A = eta_dry dh_s`` and, inside the dome,
+    ``y_out = (h_vap - h_out) / (h_vap - h_liq)``:
+    ``h_out (1 + A alpha / (2 h_fg)) = h_in - A + A alpha (y_in + h_vap / h_fg) / 2``.
+    Outside the dome ``y_out = 0`` and
+    ``h_out = h_in - A (1 - alpha y_in / 2)``; both agree at ``h_out = h_vap``.
+    """
+    a = eta_dry * dh_s
+    h_dry = h_in - a * (1.0 - 0.5 * alpha * y_in)
+    if h_dry >= h_vap:
+        return h_dry
+    h_fg = h_vap - h_liq
+    return (h_in - a + 0.5 * a * alpha * (y_in + h_vap / h_fg)) / (1.0 + 0.5 * a * alpha / h_fg)

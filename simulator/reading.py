@@ -1,0 +1,192 @@
+"""Reading TOML input files: typed access to tables that collects every problem.
+
+Model and case readers use :class:`TableReader` so that a file with several
+mistakes is reported in one go, each mistake naming the file, table and key,
+and an unknown key suggests the closest valid one.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from pathlib import Path
+
+from .errors import InputError
+from .units import Where, parse
+
+__all__ = ["load_toml", "Problems", "TableReader"]
+
+
+def load_toml(path: str | Path) -> tuple[dict, str]:
+    """Read a TOML file; return its data and its text.  Errors name the file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError("file not found", file=str(path)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read the file ({exc})", file=str(path)) from None
+    try:
+        return tomllib.loads(text), text
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"not valid TOML: {exc}", file=str(path)) from None
+
+
+class Problems:
+    """Collects input problems and raises them together."""
+
+    def __init__(self):
+        self.items: list[InputError] = []
+
+    def add(self, err: InputError) -> None:
+        self.items.append(err)
+
+    def __bool__(self) -> bool:
+        return bool(self.items)
+
+    def raise_if_any(self) -> None:
+        if not self.items:
+            return
+        if len(self.items) == 1:
+            raise self.items[0]
+        first = self.items[0]
+        text = f"{len(self.items)} problems:\n" + "\n".join(f"  - {e}" for e in self.items)
+        err = InputError(text, file=None)
+        err.file, err.table, err.key = first.file, first.table, first.key
+        err.problems = list(self.items)  # type: ignore[attr-defined]
+        raise err
+
+
+_MISSING = object()
+
+
+class TableReader:
+    """Typed reads from one TOML table, recording problems instead of stopping.
+
+    Every read returns a usable placeholder (``None``) when the value is bad, so
+    reading continues and all problems of a file are found at once.
+    """
+
+    def __init__(self, data, where: Where, problems: Problems, atmosphere: float | None = None):
+        if not isinstance(data, dict):
+            problems.add(where.error(f"expected a table, got {type(data).__name__}"))
+            data = {}
+        self.data = data
+        self.where = where
+        self.problems = problems
+        self.atmosphere = atmosphere
+        self.seen: set[str] = set()
+
+    def has(self, key: str) -> bool:
+        self.seen.add(key)
+        return key in self.data
+
+    def raw(self, key: str, default=_MISSING):
+        self.seen.add(key)
+        if key in self.data:
+            return self.data[key]
+        if default is _MISSING:
+            self.problems.add(self.where.child(key).error("missing required key"))
+            return None
+        return default
+
+    def quantity(self, key: str, dimension: str, default=_MISSING, *, positive: bool = False,
+                 lo: float | None = None, hi: float | None = None):
+        value = self.raw(key, default)
+        if value is None or value is default:
+            return value
+        w = self.where.child(key)
+        try:
+            si = parse(value, dimension, w, self.atmosphere)
+        except InputError as exc:
+            self.problems.add(exc)
+            return None
+        if positive and not si > 0.0:
+            self.problems.add(w.error(f"must be positive, got {value!r}"))
+            return None
+        if lo is not None and si < lo:
+            self.problems.add(w.error(f"{value!r} is below the allowed minimum"))
+            return None
+        if hi is not None and si > hi:
+            self.problems.add(w.error(f"{value!r} is above the allowed maximum"))
+            return None
+        return si
+
+    def number(self, key: str, default=_MISSING, *, lo: float | None = None,
+               hi: float | None = None, lo_open: bool = False):
+        value = self.raw(key, default)
+        if value is None or value is default:
+            return value
+        w = self.where.child(key)
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            if isinstance(value, str):
+                try:
+                    return self._check_range(parse(value, "fraction", w), w, lo, hi, lo_open)
+                except InputError as exc:
+                    self.problems.add(exc)
+                    return None
+            self.problems.add(w.error(f"expected a number, got {value!r}"))
+            return None
+        return self._check_range(float(value), w, lo, hi, lo_open)
+
+    def _check_range(self, x, w, lo, hi, lo_open):
+        if lo is not None and (x < lo or (lo_open and x == lo)):
+            self.problems.add(w.error(f"{x!r} is out of range (must be "
+                                      f"{'>' if lo_open else '>='} {lo})"))
+            return None
+        if hi is not None and x > hi:
+            self.problems.add(w.error(f"{x!r} is out of range (must be <= {hi})"))
+            return None
+        return x
+
+    def string(self, key: str, default=_MISSING, choices=None):
+        value = self.raw(key, default)
+        if value is None or value is default:
+            return value
+        w = self.where.child(key)
+        if not isinstance(value, str) or not value:
+            self.problems.add(w.error(f"expected a name (text), got {value!r}"))
+            return None
+        if choices is not None and value not in choices:
+            hint = difflib.get_close_matches(value, list(choices), n=1)
+            extra = f"; did you mean {hint[0]!r}?" if hint else ""
+            self.problems.add(w.error(f"{value!r} is not one of {', '.join(map(repr, choices))}"
+                                      f"{extra}"))
+            return None
+        return value
+
+    def boolean(self, key: str, default=_MISSING):
+        value = self.raw(key, default)
+        if value is None or value is default:
+            return value
+        if not isinstance(value, bool):
+            self.problems.add(self.where.child(key).error(f"expected true or false, got {value!r}"))
+            return None
+        return value
+
+    def table_list(self, key: str) -> list:
+        value = self.raw(key, [])
+        if isinstance(value, dict):
+            value = [value]
+        if not isinstance(value, list):
+            self.problems.add(self.where.child(key).error("expected a list of tables"))
+            return []
+        return value
+
+    def sub(self, key: str, default=_MISSING) -> TableReader:
+        value = self.raw(key, {} if default is _MISSING else default)
+        if value is None and default is not _MISSING:
+            value = {}
+        if key not in self.data and default is _MISSING:
+            self.problems.add(self.where.sub(key).error("missing required table"))
+        return TableReader(value, self.where.sub(key), self.problems, self.atmosphere)
+
+    def finish(self, also_valid=()) -> None:
+        """Report keys nobody asked for, with the closest valid name."""
+        valid = sorted(self.seen | set(also_valid))
+        for key in self.data:
+            if key not in self.seen:
+                hint = difflib.get_close_matches(key, valid, n=1)
+                extra = f"; did you mean {hint[0]!r}?" if hint else (
+                    f"; valid keys: {', '.join(valid)}" if valid else "")
+                self.problems.add(self.where.child(key).error(f"unknown key{extra}"))

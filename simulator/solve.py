@@ -1,0 +1,521 @@
+"""Solve one operating point: the equations, Newton, and the point result.
+
+Unknowns
+    * ``ln p`` at every node whose pressure is not fixed (exhaust nodes are
+      fixed by the condenser or back pressure; the throttle node is fixed under
+      throttle governing);
+    * the bleed flow of every in-service heater, over design throttle flow;
+    * the throttle flow, over its design value, when an output is demanded.
+
+Residuals (all dimensionless)
+    * mass balance at each free node, over design throttle flow;
+    * at the inlet node of a valve, reheater or pipe, which passes the whole
+      net flow of its inlet node, its pressure-drop law instead, over the
+      node's design pressure;
+    * each heater's energy balance, over its design duty;
+    * generator output minus demand, over the rating.
+
+A march in topological order gives every flow and enthalpy from the unknowns,
+so the system stays small (one equation per node and heater).  Newton's method
+(:mod:`simulator.newton`) starts from the design pressures scaled by flow with
+the ellipse law, or from a neighbouring solution.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .case import Conditions, override
+from .components import StageGroup, ThrottleValve
+from .cycle import FeedwaterMarch, HeaterState
+from .errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
+from .model import Model
+from .newton import newton
+from .steam import SteamTables, get_backend
+
+__all__ = ["PointEquations", "PointResult", "solve_point", "UNITS"]
+
+TOL = 1e-10
+
+# SI units of every quantity in a PointResult
+UNITS = {
+    "pressure": "Pa", "temperature": "K", "enthalpy": "J/kg", "entropy": "J/(kg K)",
+    "moisture": "-", "flow": "kg/s", "efficiency": "-", "isentropic_drop": "J/kg",
+    "power": "W", "velocity": "m/s", "exhaust_loss": "J/kg", "heat_rate": "J/J",
+    "steam_rate": "kg/J",
+}
+
+
+class _Bad(SolveError):
+    """A trial point of the iteration with no steam reaching a node."""
+
+
+@dataclass
+class PointResult:
+    """Everything predicted for one operating point (SI units, see :data:`UNITS`)."""
+
+    converged: bool
+    iterations: int
+    residual: float
+    evaluations: int
+    message: str
+    model_name: str
+    governing: str
+    backend: str
+    node_names: list[str]
+    node_p: np.ndarray
+    node_T: np.ndarray
+    node_h: np.ndarray
+    node_s: np.ndarray
+    node_x: np.ndarray
+    group_names: list[str]
+    group_inlet: list[str]
+    group_outlet: list[str]
+    group_flow: np.ndarray
+    group_eta: np.ndarray
+    group_dh_s: np.ndarray
+    group_power: np.ndarray
+    group_velocity: np.ndarray
+    group_exhaust_loss: np.ndarray
+    group_moisture_out: np.ndarray
+    extraction_names: list[str]
+    extraction_nodes: list[str]
+    extraction_control: list[str]
+    extraction_flow: np.ndarray
+    extraction_p: np.ndarray
+    extraction_h: np.ndarray
+    heaters: list[HeaterState]
+    totals: dict[str, float]
+    x: np.ndarray = field(repr=False, default=None)
+    jacobian: np.ndarray = field(repr=False, default=None)
+
+    def node(self, name: str) -> dict:
+        i = self.node_names.index(name)
+        return {"p": self.node_p[i], "T": self.node_T[i], "h": self.node_h[i],
+                "s": self.node_s[i], "x": self.node_x[i]}
+
+    def group(self, name: str) -> dict:
+        i = self.group_names.index(name)
+        return {"flow": self.group_flow[i], "eta": self.group_eta[i],
+                "power": self.group_power[i], "dh_s": self.group_dh_s[i]}
+
+
+class PointEquations:
+    """The residual system of one operating point, compiled for speed.
+
+    ``mode`` is ``"point"`` (throttle flow or output as the conditions say) or
+    ``"wide_open"`` (throttle pressure held at ``conditions.throttle_pressure``
+    with the valves wide open; the throttle flow is the unknown).
+    """
+
+    def __init__(self, model: Model, cond: Conditions, steam: SteamTables,
+                 mode: str = "point"):
+        self.model = model
+        self.cond = cond
+        self.steam = steam
+        self.mode = mode
+        g = model.graph
+        names = model.order
+        self.names = names
+        idx = {n: i for i, n in enumerate(names)}
+        self.idx = idx
+        N = len(names)
+        self.src = idx[model.source]
+        p_fix = [math.nan] * N
+        p_exh = cond.exhaust_pressure
+        for n in model.exhaust_nodes:
+            p_fix[idx[n]] = p_exh if p_exh is not None else model.design_pressure[n]
+        self.throttle_fixed = cond.governing == "throttle" or mode == "wide_open"
+        if self.throttle_fixed:
+            p_fix[self.src] = (cond.throttle_pressure if cond.throttle_pressure is not None
+                               else model.throttle.pressure)
+        self.p_fix = p_fix
+        self.free = [i for i in range(N) if math.isnan(p_fix[i])]
+        self.p_design = [model.design_pressure[n] for n in names]
+        self.m_design = model.throttle.flow
+        self.T_throttle = (cond.throttle_temperature if cond.throttle_temperature is not None
+                           else model.throttle.temperature)
+        # outgoing components per node: (kind, component, outlet index, T_override)
+        self.outs: list[list] = [[] for _ in range(N)]
+        self.has_drop = [False] * N
+        for i, n in enumerate(names):
+            for s in g.successors(n):
+                c = g.edges[n, s]["component"]
+                if isinstance(c, StageGroup):
+                    self.outs[i].append((0, c, idx[s], None))
+                elif isinstance(c, ThrottleValve):
+                    self.outs[i].append((1, c, idx[s], None))
+                    self.has_drop[i] = True
+                else:
+                    T = cond.reheat_temperature if c.is_reheater else None
+                    self.outs[i].append((2, c, idx[s], T))
+                    self.has_drop[i] = True
+        # extractions
+        controls = cond.controls()
+        self.heaters_out = frozenset(cond.heaters_out)
+        self.fw = (FeedwaterMarch(model, self.heaters_out)
+                   if model.feedwater is not None and model.heaters else None)
+        self.active_heaters = [h for h in (self.fw.active if self.fw else [])]
+        self.bleeds = []  # (name, node index, kind, value) kind: 0 fixed, 1 fraction, 2 heater
+        self.bleed_control = []
+        hpos = {h: k for k, h in enumerate(self.active_heaters)}
+        for e in model.extractions.values():
+            ctl, val = controls.get(e.name, (e.control, None))
+            if e.heater and e.heater in self.heaters_out:
+                ctl, val = "closed", 0.0
+            if ctl == "closed":
+                kind, v = 0, 0.0
+            elif ctl == "flow":
+                kind, v = 0, (val if val is not None else e.design_flow)
+            elif ctl == "fraction":
+                kind, v = 1, (val if val is not None else e.design_flow / self.m_design)
+            else:  # heater
+                kind, v = 2, hpos[e.heater]
+            self.bleeds.append((e.name, idx[e.node], kind, v))
+            self.bleed_control.append(ctl)
+        # unknown layout
+        self.n_p = len(self.free)
+        self.n_h = len(self.active_heaters)
+        self.flow_unknown = cond.output is not None or mode == "wide_open"
+        self.n = self.n_p + self.n_h + (1 if self.flow_unknown else 0)
+        # residual rows: free nodes (and the source when flow is the unknown at a held
+        # throttle pressure in wide-open mode), heaters, demand
+        self.row_of = {}
+        rows = []
+        for i in self.free:
+            self.row_of[i] = len(rows)
+            rows.append(i)
+        self.extra_valve_row = mode == "wide_open"
+        if self.extra_valve_row:
+            self.row_of[self.src] = len(rows)
+            rows.append(self.src)
+        self.node_rows = rows
+        self.residual_names = []
+        for i in rows:
+            kind = "pressure drop after" if self.has_drop[i] else "mass balance at"
+            self.residual_names.append(f"{kind} node {names[i]!r}")
+        self.residual_names += [f"energy balance of heater {h!r}" for h in self.active_heaters]
+        if cond.output is not None and mode == "point":
+            self.residual_names.append("generator output demand")
+        self.unknown_names = ([f"ln p({names[i]})" for i in self.free]
+                              + [f"bleed({h})/m_design" for h in self.active_heaters]
+                              + (["throttle flow/m_design"] if self.flow_unknown else []))
+        self.calls = 0
+
+    # ------------------------------------------------------------------ guesses
+    def guess(self) -> np.ndarray:
+        """Design pressures scaled by flow with the ellipse law toward the exhaust."""
+        m = self.model
+        cond = self.cond
+        if cond.throttle_flow is not None and self.mode == "point":
+            r = cond.throttle_flow / self.m_design
+        elif cond.output is not None and self.mode == "point":
+            r = cond.output / m.generator.rating
+        else:  # wide open at a held throttle pressure: flow nearly proportional to it
+            r = self.p_fix[self.src] / m.throttle.pressure
+        exh = m.exhaust_nodes[0]
+        p_ex_d = m.design_pressure[exh]
+        p_ex = self.p_fix[self.idx[exh]]
+        x = np.empty(self.n)
+        for k, i in enumerate(self.free):
+            pd = self.p_design[i]
+            x[k] = math.log(math.sqrt(max(p_ex * p_ex + (pd * pd - p_ex_d * p_ex_d) * r * r,
+                                          (0.5 * pd * r) ** 2, 1.0)))
+        for k, h in enumerate(self.active_heaters):
+            e = m.extractions[m.heaters[h].extraction]
+            x[self.n_p + k] = e.design_flow / self.m_design * r
+        if self.flow_unknown:
+            x[-1] = r
+        if self.throttle_fixed and self.mode == "point":
+            # start below the held throttle pressure, so the valves can pass the flow
+            k_after = self.free.index(self.idx[m.valve.outlet])
+            x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.98))
+        return x
+
+    # ---------------------------------------------------------------- residuals
+    def residuals(self, x: np.ndarray) -> np.ndarray:
+        return self.evaluate(x, detail=False)[0]
+
+    def evaluate(self, x: np.ndarray, detail: bool = False):
+        """Residuals at ``x``; with ``detail``, also the full state as a dict."""
+        self.calls += 1
+        steam = self.steam
+        N = len(self.names)
+        p = list(self.p_fix)
+        for k, i in enumerate(self.free):
+            p[i] = math.exp(x[k])
+        m_T = x[-1] * self.m_design if self.flow_unknown else self.cond.throttle_flow
+        if m_T is None or m_T <= 0.0:
+            raise _Bad("no throttle flow")
+        nh = self.n_p
+        bleed_node = [0.0] * N
+        bleed_flow = []
+        heater_bleed = {}
+        for _name, i, kind, v in self.bleeds:
+            if kind == 0:
+                b = v
+            elif kind == 1:
+                b = v * m_T
+            else:
+                b = x[nh + v] * self.m_design
+                heater_bleed[self.active_heaters[v]] = b
+            bleed_flow.append(b)
+            bleed_node[i] += b
+        M = [0.0] * N
+        E = [0.0] * N
+        h = [0.0] * N
+        src = self.src
+        M[src] = m_T
+        h[src] = steam.h_pT(p[src], self.T_throttle)
+        F = np.empty(len(self.residual_names))
+        row_of = self.row_of
+        md = self.m_design
+        shaft = 0.0
+        groups = {} if detail else None
+        valve_drop_needed = 0.0
+        drops = {}
+        for i in range(N):
+            if i != src:
+                if M[i] <= 1e-9 * md:
+                    raise _Bad(f"no steam reaches node {self.names[i]!r}")
+                h[i] = E[i] / M[i]
+            net = M[i] - bleed_node[i]
+            out_flow = 0.0
+            for kind, c, j, T in self.outs[i]:
+                if kind == 0:
+                    r = c.expand(steam, p[i], h[i], p[j])
+                    m = r[0]
+                    h_out = r[1]
+                    shaft += m * (h[i] - h_out)
+                    if detail:
+                        groups[c.name] = r
+                    out_flow += m
+                else:
+                    m = net
+                    v = steam.v_ph(p[i], h[i])
+                    if kind == 1:
+                        dp = c.wide_open_drop(m, v)
+                        valve_drop_needed = dp
+                        h_out = h[i]
+                    else:
+                        dp = c.drop(m, v)
+                        h_out = c.outlet_enthalpy(steam, p[j], h[i], T)
+                    drops[c.name] = (m, p[i] - p[j], h_out)
+                    if i in row_of:
+                        F[row_of[i]] = (p[i] - p[j] - dp) / self.p_design[i]
+                    out_flow = m
+                M[j] += m
+                E[j] += m * h_out
+            if i in row_of and not self.has_drop[i]:
+                F[row_of[i]] = (net - out_flow) / md
+        p_gen = self.model.generator.output(shaft)
+        k = len(self.node_rows)
+        summary = None
+        if self.fw is not None:
+            pn = dict(zip(self.names, p))
+            hn = dict(zip(self.names, h))
+            res, summary = self.fw.evaluate(steam, pn, hn, heater_bleed, m_T, p[src],
+                                            detail=detail)
+            for hname in self.active_heaters:
+                F[k] = res[hname]
+                k += 1
+        if self.cond.output is not None and self.mode == "point":
+            F[k] = (p_gen - self.cond.output) / self.model.generator.rating
+        if not detail:
+            return F, None
+        state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
+                 "groups": groups, "drops": drops, "shaft": shaft, "p_gen": p_gen,
+                 "valve_drop_needed": valve_drop_needed, "feedwater": summary}
+        return F, state
+
+
+def _wide_open(model: Model, cond: Conditions, steam: SteamTables, p_throttle: float):
+    """Throttle flow and output with the valves wide open at ``p_throttle``."""
+    c2 = override(cond, governing="throttle", throttle_pressure=p_throttle, output=None,
+                  throttle_flow=model.throttle.flow)
+    eq = PointEquations(model, c2, steam, mode="wide_open")
+    x0 = eq.guess()
+    nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names)
+    _, st = eq.evaluate(nr.x, detail=True)
+    return st["m_T"], st["p_gen"]
+
+
+def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
+                guess: np.ndarray | None = None, jacobian: np.ndarray | None = None,
+                broyden: bool = True, check_limits: bool = True) -> PointResult:
+    """Solve one operating point.
+
+    Parameters
+    ----------
+    model : calibrated model
+    cond : operating conditions
+    steam : property backend or its name (default ``"seuif97"``)
+    guess : starting unknowns, e.g. ``PointResult.x`` of a neighbouring point
+        solved with the same unknowns; the design-scaled guess otherwise
+    jacobian : starting Jacobian for the same unknowns (from a neighbour)
+    broyden : Broyden updates between fresh Jacobians (``False``: plain Newton)
+    check_limits : raise :class:`InfeasibleError` when the answer needs more
+        than the valves wide open can pass
+
+    Raises
+    ------
+    ConvergenceError, InfeasibleError, PropertyRangeError
+    """
+    if steam is None or isinstance(steam, str):
+        steam = get_backend(steam or "seuif97")
+    eq = PointEquations(model, cond, steam)
+    x0 = eq.guess() if guess is None or len(guess) != eq.n else np.asarray(guess, float)
+    jac = jacobian if (jacobian is not None and guess is not None and len(guess) == eq.n
+                       and np.shape(jacobian) == (len(eq.residual_names), eq.n)) else None
+    try:
+        nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
+                    broyden=broyden)
+    except ConvergenceError:
+        if guess is None and jac is None:
+            raise
+        nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
+                    broyden=broyden)
+    F, st = eq.evaluate(nr.x, detail=True)
+    if check_limits:
+        _check_feasible(model, cond, steam, eq, st)
+    result = _build_result(model, cond, steam, eq, nr, F, st)
+    return result
+
+
+def _check_feasible(model, cond, steam, eq, st):
+    p = st["p"]
+    names = eq.names
+    for kind_list_i, outs in enumerate(eq.outs):
+        for kind, c, j, _ in outs:
+            if kind == 0 and p[j] >= p[kind_list_i]:
+                raise InfeasibleError(
+                    f"no pressure ordering exists for this request: stage group {c.name!r} "
+                    f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
+                    f"{names[j]!r}) above its inlet ({p[kind_list_i] / 1e5:.4g} bar); "
+                    f"the exhaust pressure may be too high for this flow")
+    for name, m in zip((b[0] for b in eq.bleeds), st["bleed_flow"]):
+        if m < -1e-9 * eq.m_design:
+            raise InfeasibleError(f"extraction {name!r} would need a negative bleed flow "
+                                  f"({m:.4g} kg/s); its heater cannot balance at this point")
+    src = eq.src
+    p_T = p[src]
+    after = eq.idx[model.valve.outlet]
+    asked = (f"an output of {cond.output / 1e6:.2f} MW" if cond.output is not None
+             else f"a throttle flow of {st['m_T']:.2f} kg/s")
+    if cond.governing == "throttle":
+        available = p_T - p[after]
+        if available < st["valve_drop_needed"] * (1.0 - 1e-9) - 1e-6:
+            m_max, P_max = _wide_open(model, cond, steam, p_T)
+            raise InfeasibleError(
+                f"{asked} is beyond the valves-wide-open capacity at the held throttle "
+                f"pressure {p_T / 1e5:.2f} bar: maximum throttle flow {m_max:.2f} kg/s, "
+                f"maximum output {P_max / 1e6:.2f} MW")
+    else:
+        p_max = model.throttle.max_pressure
+        if p_T > p_max * (1.0 + 1e-9):
+            m_max, P_max = _wide_open(model, cond, steam, p_max)
+            raise InfeasibleError(
+                f"{asked} needs a throttle pressure of {p_T / 1e5:.2f} bar, above the highest "
+                f"allowed {p_max / 1e5:.2f} bar: maximum throttle flow {m_max:.2f} kg/s, "
+                f"maximum output {P_max / 1e6:.2f} MW")
+
+
+def _build_result(model, cond, steam, eq, nr, F, st) -> PointResult:
+    names = eq.names
+    p, h = st["p"], st["h"]
+    N = len(names)
+    T = np.empty(N)
+    s = np.empty(N)
+    x = np.empty(N)
+    for i in range(N):
+        try:
+            T[i] = steam.T_ph(p[i], h[i])
+            s[i] = steam.s_ph(p[i], h[i])
+            x[i] = steam.x_ph(p[i], h[i])
+        except PropertyRangeError:
+            T[i] = s[i] = x[i] = math.nan
+    gnames = [c.name for c in model.groups]
+    G = len(gnames)
+    arr = {k: np.zeros(G) for k in ("m", "eta", "dhs", "P", "V", "L", "y")}
+    for k, c in enumerate(model.groups):
+        r = st["groups"][c.name]
+        i = eq.idx[c.inlet]
+        arr["m"][k], arr["eta"][k], arr["dhs"][k] = r[0], r[3], r[4]
+        arr["P"][k] = r[0] * (h[i] - r[1])
+        arr["V"][k], arr["L"][k], arr["y"][k] = r[6], r[7], r[5]
+    ex_names = [b[0] for b in eq.bleeds]
+    ex_nodes = [names[b[1]] for b in eq.bleeds]
+    ex_flow = np.array(st["bleed_flow"], float)
+    ex_p = np.array([p[b[1]] for b in eq.bleeds], float)
+    ex_h = np.array([h[b[1]] for b in eq.bleeds], float)
+    m_T = st["m_T"]
+    src = eq.src
+    after = eq.idx[model.valve.outlet]
+    exhaust_loss_power = 0.0
+    for c in model.groups:
+        if c.exhaust is not None:
+            r = st["groups"][c.name]
+            exhaust_loss_power += r[0] * (r[1] - r[2])
+    exh_y = [arr["y"][k] for k, c in enumerate(model.groups) if c.exhaust is not None]
+    P_gen = st["p_gen"]
+    totals = {
+        "throttle_flow": m_T,
+        "throttle_pressure": p[src],
+        "throttle_temperature": eq.T_throttle,
+        "valve_pressure_drop": p[src] - p[after],
+        "shaft_power": st["shaft"],
+        "generator_output": P_gen,
+        "generator_and_mechanical_losses": st["shaft"] - P_gen,
+        "steam_rate": m_T / P_gen if P_gen > 0 else math.nan,
+        "exhaust_loss_power": exhaust_loss_power,
+        "exhaust_moisture": max(exh_y) if exh_y else 0.0,
+        "exhaust_flow": sum(st["M"][eq.idx[n]] for n in model.exhaust_nodes),
+    }
+    reheat = 0.0
+    for name, (m, _dp, h_out) in st["drops"].items():
+        comp = model.component(name)
+        if getattr(comp, "is_reheater", False):
+            reheat += m * (h_out - h[eq.idx[comp.inlet]])
+    totals["reheat_heat"] = reheat
+    heaters: list[HeaterState] = []
+    fw = st["feedwater"]
+    h_T = h[src]
+    if fw is not None:
+        heaters = list(fw["heaters"].values())
+        boiler = m_T * (h_T - fw["h_feedwater"]) + reheat
+        totals["final_feedwater_temperature"] = fw["T_feedwater"]
+        totals["heat_added"] = boiler
+        totals["heat_rate"] = boiler / P_gen if P_gen > 0 else math.nan
+        totals["pump_power"] = fw["pump_power"]
+        # condenser: exhaust steam + drains + makeup in, condensate out
+        exhaust_energy = sum(st["M"][eq.idx[n]] * h[eq.idx[n]] for n in model.exhaust_nodes)
+        m_ex = totals["exhaust_flow"]
+        makeup = fw["m_condensate"] - m_ex - fw["drains_to_condenser"]
+        totals["makeup_flow"] = makeup
+        h_c = fw["h_condensate"]
+        totals["condenser_duty"] = (exhaust_energy + fw["drains_to_condenser"]
+                                    * fw["h_drains_to_condenser"] + makeup * h_c
+                                    - fw["m_condensate"] * h_c)
+        heater_loss = sum(hs.steam_release - hs.duty for hs in heaters if hs.in_service)
+        totals["heater_heat_loss"] = heater_loss
+        process = sum(f * hh for f, hh, b in zip(ex_flow, ex_h, eq.bleeds) if b[2] != 2)
+        totals["process_steam_energy"] = process - makeup * h_c
+        totals["energy_imbalance"] = (boiler + fw["pump_power"] - st["shaft"]
+                                      - totals["condenser_duty"] - heater_loss
+                                      - totals["process_steam_energy"])
+    else:
+        totals["reheat_heat"] = reheat
+    return PointResult(
+        converged=True, iterations=nr.iterations, residual=nr.residual,
+        evaluations=nr.evaluations, message="converged", model_name=model.name,
+        governing=cond.governing, backend=steam.name, node_names=list(names), node_p=np.array(p),
+        node_T=T, node_h=np.array(h), node_s=s, node_x=x, group_names=gnames,
+        group_inlet=[c.inlet for c in model.groups], group_outlet=[c.outlet for c in model.groups],
+        group_flow=arr["m"], group_eta=arr["eta"], group_dh_s=arr["dhs"], group_power=arr["P"],
+        group_velocity=arr["V"], group_exhaust_loss=arr["L"], group_moisture_out=arr["y"],
+        extraction_names=ex_names, extraction_nodes=ex_nodes,
+        extraction_control=list(eq.bleed_control), extraction_flow=ex_flow, extraction_p=ex_p,
+        extraction_h=ex_h, heaters=heaters, totals=totals, x=nr.x, jacobian=nr.jacobian)

@@ -1,0 +1,230 @@
+"""Steam and water properties behind one small interface.
+
+Every function takes and returns SI units: pressure ``p`` [Pa], temperature
+``T`` [K], specific enthalpy ``h`` [J/kg], specific entropy ``s`` [J/(kg K)],
+specific volume ``v`` [m^3/kg], steam quality ``x`` [-] (0 saturated liquid,
+1 saturated or superheated vapour; for subcooled liquid 0).
+
+Two backends implement the same formulation, IAPWS-IF97:
+
+``"seuif97"`` (default)
+    A compiled implementation; about a microsecond a call.
+``"iapws"``
+    The pure-Python reference implementation of the ``iapws`` package; about
+    a millisecond a call.  Use it to cross-check a result.
+
+Reference: W. Wagner et al., "The IAPWS Industrial Formulation 1997 for the
+Thermodynamic Properties of Water and Steam", J. Eng. Gas Turbines Power
+122(1), 150-182, 2000; IAPWS R7-97(2012).
+
+Validity (IAPWS R7-97(2012), section 1): 273.15 K <= T <= 1073.15 K at
+p <= 100 MPa, and 1073.15 K < T <= 2273.15 K at p <= 50 MPa.  States outside
+raise :class:`~simulator.errors.PropertyRangeError`.
+"""
+
+from __future__ import annotations
+
+import math
+
+from .errors import InputError, PropertyRangeError
+
+__all__ = ["SteamTables", "get_backend", "BACKENDS", "P_MAX", "T_MIN", "T_MAX"]
+
+P_MAX = 100e6  # [Pa] upper pressure limit of IAPWS-IF97
+P_MIN = 611.2127  # [Pa] triple-point pressure; below it no liquid water exists
+T_MIN = 273.15  # [K]
+T_MAX = 1073.15  # [K] region 1-3 upper limit (region 5 is not used by turbines here)
+P_CRIT = 22.064e6  # [Pa] critical pressure, IAPWS R7-97(2012) eq. (1) constants
+
+
+def _range_error(what: str, **state) -> PropertyRangeError:
+    shown = ", ".join(f"{k} = {v:.6g}" for k, v in state.items())
+    return PropertyRangeError(f"steam state outside IAPWS-IF97 validity for {what} ({shown}; "
+                              f"SI units: Pa, K, J/kg, J/(kg K))")
+
+
+class SteamTables:
+    """Interface every backend implements (SI in, SI out)."""
+
+    name = "abstract"
+
+    def h_pT(self, p: float, T: float) -> float: ...
+    def s_pT(self, p: float, T: float) -> float: ...
+    def v_pT(self, p: float, T: float) -> float: ...
+    def T_ph(self, p: float, h: float) -> float: ...
+    def s_ph(self, p: float, h: float) -> float: ...
+    def v_ph(self, p: float, h: float) -> float: ...
+    def x_ph(self, p: float, h: float) -> float: ...
+    def h_ps(self, p: float, s: float) -> float: ...
+    def T_sat(self, p: float) -> float: ...
+    def h_liq_sat(self, p: float) -> float: ...
+    def h_vap_sat(self, p: float) -> float: ...
+    def v_liq_sat(self, p: float) -> float: ...
+
+
+class Seuif97Tables(SteamTables):
+    """IAPWS-IF97 through the compiled ``seuif97`` package (MPa, degC, kJ/kg inside)."""
+
+    name = "seuif97"
+
+    def __init__(self):
+        import seuif97
+
+        self._pt = seuif97.pt
+        self._ph = seuif97.ph
+        self._ps = seuif97.ps
+        self._px = seuif97.px
+
+    # seuif97 returns large negative sentinels (-1000 ... -2200) when a state is
+    # outside its range; every result is checked against that.
+    def h_pT(self, p, T):
+        if not (0.0 < p <= P_MAX and T_MIN <= T <= T_MAX):
+            raise _range_error("h(p, T)", p=p, T=T)
+        return self._pt(p * 1e-6, T - 273.15, 4) * 1e3
+
+    def s_pT(self, p, T):
+        if not (0.0 < p <= P_MAX and T_MIN <= T <= T_MAX):
+            raise _range_error("s(p, T)", p=p, T=T)
+        return self._pt(p * 1e-6, T - 273.15, 5) * 1e3
+
+    def v_pT(self, p, T):
+        if not (0.0 < p <= P_MAX and T_MIN <= T <= T_MAX):
+            raise _range_error("v(p, T)", p=p, T=T)
+        return self._pt(p * 1e-6, T - 273.15, 3)
+
+    def _ph_prop(self, p, h, i, what):
+        if not (P_MIN <= p <= P_MAX):
+            raise _range_error(what, p=p, h=h)
+        r = self._ph(p * 1e-6, h * 1e-3, i)
+        if r <= -999.0 or r != r:
+            raise _range_error(what, p=p, h=h)
+        return r
+
+    def T_ph(self, p, h):
+        return self._ph_prop(p, h, 1, "T(p, h)") + 273.15
+
+    def s_ph(self, p, h):
+        return self._ph_prop(p, h, 5, "s(p, h)") * 1e3
+
+    def v_ph(self, p, h):
+        r = self._ph_prop(p, h, 3, "v(p, h)")
+        if r <= 0.0:
+            raise _range_error("v(p, h)", p=p, h=h)
+        return r
+
+    def x_ph(self, p, h):
+        return self._ph_prop(p, h, 15, "x(p, h)")
+
+    def h_ps(self, p, s):
+        if not (P_MIN <= p <= P_MAX):
+            raise _range_error("h(p, s)", p=p, s=s)
+        r = self._ps(p * 1e-6, s * 1e-3, 4)
+        if r <= -999.0 or r != r:
+            raise _range_error("h(p, s)", p=p, s=s)
+        return r * 1e3
+
+    def _sat(self, p, x, i, what):
+        if not (P_MIN <= p < P_CRIT):
+            raise _range_error(what, p=p)
+        return self._px(p * 1e-6, x, i)
+
+    def T_sat(self, p):
+        return self._sat(p, 0.0, 1, "saturation temperature") + 273.15
+
+    def h_liq_sat(self, p):
+        return self._sat(p, 0.0, 4, "saturated liquid enthalpy") * 1e3
+
+    def h_vap_sat(self, p):
+        return self._sat(p, 1.0, 4, "saturated vapour enthalpy") * 1e3
+
+    def v_liq_sat(self, p):
+        return self._sat(p, 0.0, 3, "saturated liquid volume")
+
+
+class IapwsTables(SteamTables):
+    """IAPWS-IF97 through the reference ``iapws`` package (MPa, K, kJ/kg inside)."""
+
+    name = "iapws"
+
+    def __init__(self):
+        from iapws import IAPWS97
+
+        self._IAPWS97 = IAPWS97
+
+    def _state(self, what, **kw):
+        try:
+            st = self._IAPWS97(**kw)
+        except (NotImplementedError, ValueError, TypeError, ZeroDivisionError,
+                OverflowError) as exc:
+            raise _range_error(what, **{k: v for k, v in kw.items()}) from exc
+        if not getattr(st, "status", 1) or st.h is None or (isinstance(st.h, float)
+                                                           and math.isnan(st.h)):
+            raise _range_error(what, **kw)
+        return st
+
+    def _pT(self, p, T, what):
+        if not (0.0 < p <= P_MAX and T_MIN <= T <= T_MAX):
+            raise _range_error(what, p=p, T=T)
+        return self._state(what, P=p * 1e-6, T=T)
+
+    def _ph_state(self, p, h, what):
+        if not (P_MIN <= p <= P_MAX):
+            raise _range_error(what, p=p, h=h)
+        return self._state(what, P=p * 1e-6, h=h * 1e-3)
+
+    def h_pT(self, p, T):
+        return self._pT(p, T, "h(p, T)").h * 1e3
+
+    def s_pT(self, p, T):
+        return self._pT(p, T, "s(p, T)").s * 1e3
+
+    def v_pT(self, p, T):
+        return self._pT(p, T, "v(p, T)").v
+
+    def T_ph(self, p, h):
+        return self._ph_state(p, h, "T(p, h)").T
+
+    def s_ph(self, p, h):
+        return self._ph_state(p, h, "s(p, h)").s * 1e3
+
+    def v_ph(self, p, h):
+        return self._ph_state(p, h, "v(p, h)").v
+
+    def x_ph(self, p, h):
+        return float(self._ph_state(p, h, "x(p, h)").x)
+
+    def h_ps(self, p, s):
+        if not (P_MIN <= p <= P_MAX):
+            raise _range_error("h(p, s)", p=p, s=s)
+        return self._state("h(p, s)", P=p * 1e-6, s=s * 1e-3).h * 1e3
+
+    def _sat(self, p, x, what):
+        if not (P_MIN <= p < P_CRIT):
+            raise _range_error(what, p=p)
+        return self._state(what, P=p * 1e-6, x=x)
+
+    def T_sat(self, p):
+        return self._sat(p, 0.0, "saturation temperature").T
+
+    def h_liq_sat(self, p):
+        return self._sat(p, 0.0, "saturated liquid enthalpy").h * 1e3
+
+    def h_vap_sat(self, p):
+        return self._sat(p, 1.0, "saturated vapour enthalpy").h * 1e3
+
+    def v_liq_sat(self, p):
+        return self._sat(p, 0.0, "saturated liquid volume").v
+
+
+BACKENDS = {"seuif97": Seuif97Tables, "iapws": IapwsTables}
+_cache: dict[str, SteamTables] = {}
+
+
+def get_backend(name: str = "seuif97") -> SteamTables:
+    """Return the property backend called ``name`` (see :data:`BACKENDS`)."""
+    if name not in BACKENDS:
+        raise InputError(f"unknown steam property backend {name!r}; valid: "
+                         f"{', '.join(sorted(BACKENDS))}", key="backend")
+    if name not in _cache:
+        _cache[name] = BACKENDS[name]()
+    return _cache[name]

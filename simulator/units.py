@@ -1,0 +1,153 @@
+"""Quantities with units, parsed once at the edge of the program.
+
+Inside partload every number is SI: pressure [Pa], temperature [K], specific
+enthalpy [J/kg], specific entropy [J/(kg K)], specific volume [m^3/kg],
+mass flow [kg/s], power [W], area [m^2], velocity [m/s].  Files and the command
+line speak in the engineer's units; this module converts strings such as
+``"166 bar"``, ``"538 degC"``, ``"1000 t/h"``, ``"2400 psia"`` or ``"3 %"`` to
+those SI numbers and refuses anything of the wrong dimension with an
+:class:`~simulator.errors.InputError` that names the file, table and key.
+
+Gauge pressures (``barg``, ``psig``, ``kPag``) are accepted only when the file
+states its local atmospheric pressure; absolute units (``bar``, ``bara``,
+``psia``, ``psi``, ``kPa``, ``MPa``, ``inHg``, ``mmHg``) always are.
+"""
+
+from __future__ import annotations
+
+import functools
+import re
+from dataclasses import dataclass
+
+from .errors import InputError
+
+__all__ = ["Where", "parse", "DIMENSIONS"]
+
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+_GAUGE = {"barg": "bar", "psig": "psi", "kpag": "kPa", "mpag": "MPa"}
+
+
+@dataclass(frozen=True)
+class Where:
+    """Location of a value in an input file, used in error messages."""
+
+    file: str | None = None
+    table: str | None = None
+    key: str | None = None
+
+    def error(self, message: str) -> InputError:
+        return InputError(message, file=self.file, table=self.table, key=self.key)
+
+    def child(self, key: str) -> Where:
+        return Where(self.file, self.table, key)
+
+    def sub(self, table: str) -> Where:
+        t = f"{self.table}.{table}" if self.table else table
+        return Where(self.file, t, None)
+
+
+@functools.lru_cache(maxsize=1)
+def _registry():
+    import pint
+
+    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg.define("bara = bar")
+    ureg.define("psia = psi")
+    ureg.define("kPaa = kPa")
+    ureg.define("MPaa = MPa")
+    return ureg
+
+
+# dimension name -> (SI unit, example written in files)
+DIMENSIONS = {
+    "pressure": ("Pa", "166 bar"),
+    "temperature": ("K", "538 degC"),
+    "temperature_difference": ("K", "2.8 K"),
+    "mass_flow": ("kg/s", "280 kg/s"),
+    "power": ("W", "350 MW"),
+    "area": ("m^2", "8.5 m^2"),
+    "specific_enthalpy": ("J/kg", "25 kJ/kg"),
+    "velocity": ("m/s", "250 m/s"),
+    "fraction": ("", "3 %"),
+    "heat_transfer_coefficient_area": ("W/K", "2.5 MW/K"),
+}
+
+
+def _split(text: str, where: Where) -> tuple[float, str]:
+    m = _NUMBER.match(text)
+    if not m:
+        raise where.error(f"cannot read {text!r} as a number with a unit")
+    return float(m.group(1)), m.group(2)
+
+
+def parse(value, dimension: str, where: Where, atmosphere: float | None = None) -> float:
+    """Convert a value from a file to its SI number.
+
+    Parameters
+    ----------
+    value
+        A string such as ``"166 bar"``; a bare number is accepted only for
+        ``fraction`` (where it means the fraction itself, 0.03 = 3 %).
+    dimension
+        One of :data:`DIMENSIONS`.
+    where
+        Location used in the error message.
+    atmosphere
+        Local atmospheric pressure [Pa], needed for gauge units.
+
+    Returns
+    -------
+    float
+        The value in SI units (see the module docstring).
+    """
+    if dimension not in DIMENSIONS:  # a bug, not a user mistake
+        raise ValueError(f"unknown dimension {dimension!r}")
+    example = DIMENSIONS[dimension][1]
+    if isinstance(value, bool):
+        raise where.error(f"expected a {dimension.replace('_', ' ')} such as {example!r}, "
+                          f"got {value!r}")
+    if isinstance(value, (int, float)):
+        if dimension == "fraction":
+            return float(value)
+        raise where.error(
+            f"a {dimension.replace('_', ' ')} needs a unit, for example {example!r}; "
+            f"got the bare number {value!r}")
+    if not isinstance(value, str):
+        raise where.error(f"expected a {dimension.replace('_', ' ')} such as {example!r}, "
+                          f"got {value!r}")
+    number, unit = _split(value, where)
+    if dimension == "fraction":
+        if unit in ("", "-"):
+            return number
+        if unit in ("%", "percent"):
+            return number / 100.0
+        raise where.error(f"expected a fraction such as 0.03 or '3 %', got {value!r}")
+    if dimension == "temperature_difference":
+        factors = {"K": 1.0, "degC": 1.0, "delta_degC": 1.0, "°C": 1.0,
+                   "degF": 5.0 / 9.0, "delta_degF": 5.0 / 9.0, "°F": 5.0 / 9.0,
+                   "R": 5.0 / 9.0}
+        if unit not in factors:
+            raise where.error(f"expected a temperature difference such as '2.8 K' or "
+                              f"'5 degF', got {value!r}")
+        return number * factors[unit]
+    if dimension == "pressure" and unit.lower() in _GAUGE:
+        if atmosphere is None:
+            raise where.error(
+                f"{value!r} is a gauge pressure; state the local atmospheric pressure "
+                f"(key 'atmospheric_pressure' in the file's [about] table) or use an "
+                f"absolute unit such as bar or psia")
+        number_abs = parse(f"{number} {_GAUGE[unit.lower()]}", "pressure", where)
+        return number_abs + atmosphere
+    ureg = _registry()
+    try:
+        q = ureg.Quantity(number, unit.replace("^", "**") if unit else "dimensionless")
+        si = q.to(DIMENSIONS[dimension][0].replace("^", "**"))
+    except Exception as exc:  # pint raises several types; all mean the same to the user
+        raise where.error(
+            f"expected a {dimension.replace('_', ' ')} such as {example!r}, got {value!r} "
+            f"({type(exc).__name__}: {exc})") from None
+    result = float(si.magnitude)
+    if dimension in ("temperature", "pressure") and result <= 0.0:
+        raise where.error(f"{value!r} is not above absolute zero")
+    return result
+
