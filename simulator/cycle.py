@@ -141,7 +141,11 @@ class FeedwaterMarch:
                 pump = self.pumps[item]
                 p_out = (p_throttle + self.boiler.drop(m_fw) if pump.discharge == "boiler"
                          else pump.discharge_pressure)
-                dh = pump.enthalpy_rise(steam.v_ph(p_w, h_w), p_w, p_out)
+                # Pump suction is usually saturated liquid, exactly on the boundary of
+                # IF97 regions 1 and 4; the volume is taken 10 J/kg (about 2 mK) inside
+                # the liquid region so that it is a smooth function of the state.
+                h_v = min(h_w, steam.h_liq_sat(p_w) - 10.0) if p_w < 22e6 else h_w
+                dh = pump.enthalpy_rise(steam.v_ph(p_w, h_v), p_w, p_out)
                 pump_power += mw * dh
                 h_w += dh
                 p_w = p_out

@@ -183,9 +183,10 @@ class TableReader:
 
     def finish(self, also_valid=()) -> None:
         """Report keys nobody asked for, with the closest valid name."""
-        valid = sorted(self.seen | set(also_valid))
+        known = self.seen | set(also_valid)
+        valid = sorted(known)
         for key in self.data:
-            if key not in self.seen:
+            if key not in known:
                 hint = difflib.get_close_matches(key, valid, n=1)
                 extra = f"; did you mean {hint[0]!r}?" if hint else (
                     f"; valid keys: {', '.join(valid)}" if valid else "")
