@@ -249,7 +249,7 @@ class Heater:
 
     def outlet_temperature(self, T_sat: float, T_in: float, m_water: float) -> float:
         """Feedwater outlet temperature [K] (closed heater)."""
-        if self.ttd_method == "ua":
+        if self.ttd_method == "ua" and self.ua > 0.0:  # ua is 0 until calibrated
             ttd = effectiveness_ttd(T_sat, T_in, m_water, self.ua, self.cp)
         else:
             ttd = self.ttd

@@ -89,6 +89,12 @@ class PointResult:
     extraction_h: np.ndarray
     heaters: list[HeaterState]
     totals: dict[str, float]
+    path_names: list[str] = field(default_factory=list)
+    path_inlet: list[str] = field(default_factory=list)
+    path_outlet: list[str] = field(default_factory=list)
+    path_flow: np.ndarray = field(default=None)
+    path_pressure_drop: np.ndarray = field(default=None)
+    path_heat: np.ndarray = field(default=None)
     x: np.ndarray = field(repr=False, default=None)
     jacobian: np.ndarray = field(repr=False, default=None)
 
@@ -475,10 +481,14 @@ def _build_result(model, cond, steam, eq, nr, F, st) -> PointResult:
         "exhaust_flow": sum(st["M"][eq.idx[n]] for n in model.exhaust_nodes),
     }
     reheat = 0.0
-    for name, (m, _dp, h_out) in st["drops"].items():
+    path_names = [model.valve.name] + [c.name for c in model.paths]
+    path_heat = []
+    for name in path_names:
+        m, _dp, h_out = st["drops"][name]
         comp = model.component(name)
-        if getattr(comp, "is_reheater", False):
-            reheat += m * (h_out - h[eq.idx[comp.inlet]])
+        q = m * (h_out - h[eq.idx[comp.inlet]]) if getattr(comp, "is_reheater", False) else 0.0
+        path_heat.append(q)
+        reheat += q
     totals["reheat_heat"] = reheat
     heaters: list[HeaterState] = []
     fw = st["feedwater"]
@@ -518,4 +528,9 @@ def _build_result(model, cond, steam, eq, nr, F, st) -> PointResult:
         group_velocity=arr["V"], group_exhaust_loss=arr["L"], group_moisture_out=arr["y"],
         extraction_names=ex_names, extraction_nodes=ex_nodes,
         extraction_control=list(eq.bleed_control), extraction_flow=ex_flow, extraction_p=ex_p,
-        extraction_h=ex_h, heaters=heaters, totals=totals, x=nr.x, jacobian=nr.jacobian)
+        extraction_h=ex_h, heaters=heaters, totals=totals, x=nr.x, jacobian=nr.jacobian,
+        path_names=path_names, path_inlet=[model.component(n).inlet for n in path_names],
+        path_outlet=[model.component(n).outlet for n in path_names],
+        path_flow=np.array([st["drops"][n][0] for n in path_names]),
+        path_pressure_drop=np.array([st["drops"][n][1] for n in path_names]),
+        path_heat=np.array(path_heat))

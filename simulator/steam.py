@@ -17,6 +17,11 @@ Reference: W. Wagner et al., "The IAPWS Industrial Formulation 1997 for the
 Thermodynamic Properties of Water and Steam", J. Eng. Gas Turbines Power
 122(1), 150-182, 2000; IAPWS R7-97(2012).
 
+Consistency: the (p, h) and (p, s) functions of ``seuif97`` use the IF97
+backward equations, which agree with the basic equations to about 1 mK and
+jump by about that much at the 4 MPa boundary of sub-regions 2a/2b; the
+solver is unaffected in practice (a jump of 2e-6 in specific volume).
+
 Validity (IAPWS R7-97(2012), section 1): 273.15 K <= T <= 1073.15 K at
 p <= 100 MPa, and 1073.15 K < T <= 2273.15 K at p <= 50 MPa.  States outside
 raise :class:`~simulator.errors.PropertyRangeError`.

@@ -84,7 +84,7 @@ def get_correction(name: str) -> Callable[[float, float], float]:
         return CORRECTIONS[name]
     except KeyError:
         raise KeyError(f"unknown efficiency correction {name!r}; valid: "
-                       f"{', '.join(sorted(CORRECTIONS) + ['table'])}") from None
+                       f"{', '.join(sorted([*CORRECTIONS, 'table']))}") from None
 
 
 def baumann_factor(y_mean: float, alpha: float = 1.0) -> float:
