@@ -9,6 +9,7 @@ All values are SI (see :mod:`simulator.units`).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -83,17 +84,28 @@ class StageGroup:
         """Mass flow [kg/s] by the ellipse law (Stodola 1927; Cooke 1985)."""
         return ellipse_flow(p_in, p_out, v_in, self.K)
 
-    def expand(self, steam, p_in: float, h_in: float, p_out: float):
+    def expand(self, steam, p_in: float, h_in: float, p_out: float, y_in: float | None = None):
         """Flow and end state of the group for inlet ``(p_in, h_in)`` and ``p_out``.
+
+        Parameters
+        ----------
+        steam : property backend
+        p_in : inlet pressure [Pa]
+        h_in : inlet enthalpy [J/kg]
+        p_out : outlet pressure [Pa]
+        y_in : inlet moisture [-] if the caller knows it (saves a property call)
 
         Returns
         -------
         tuple
-            ``(m_dot, h_used, h_elep, eta, dh_s, y_out, velocity, loss)``:
+            ``(m_dot, h_used, h_elep, eta, dh_s, y_out, velocity, loss, h_vap, h_liq)``:
             flow [kg/s], used-energy end point [J/kg] (equal to the ELEP for a
             group without exhaust), expansion-line end point [J/kg], effective
             efficiency [-], isentropic drop [J/kg], outlet moisture [-],
-            annulus velocity [m/s] and exhaust loss [J/kg] (zero without exhaust).
+            annulus velocity [m/s] and exhaust loss [J/kg] (zero without
+            exhaust), saturated vapour and liquid enthalpy at ``p_out`` [J/kg]
+            (the liquid value is NaN when the end point is far from saturation
+            and it was not needed).
         """
         v_in = steam.v_ph(p_in, h_in)
         s_in = steam.s_ph(p_in, h_in)
@@ -101,19 +113,25 @@ class StageGroup:
         dh_s = h_in - steam.h_ps(p_out, s_in)
         ratio = self.correction(m * v_in / self.q_design, dh_s / self.dh_s_design)
         eta_dry = self.eta_dry_design * ratio
-        y_in = 1.0 - steam.x_ph(p_in, h_in) if self.alpha else 0.0
+        alpha = self.alpha
+        if y_in is None:
+            y_in = 1.0 - steam.x_ph(p_in, h_in) if alpha else 0.0
         h_vap = steam.h_vap_sat(p_out)
-        h_liq = steam.h_liq_sat(p_out) if h_in - eta_dry * dh_s < h_vap + 1e5 else 0.0
-        h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, self.alpha)
+        if h_in - eta_dry * dh_s < h_vap + 1e5:
+            h_liq = steam.h_liq_sat(p_out)
+            h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, alpha)
+        else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
+            h_liq = math.nan
+            h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
         y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
         eta = (h_in - h_elep) / dh_s if dh_s else eta_dry
         if self.exhaust is None:
-            return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0
+            return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0, h_vap, h_liq
         ex = self.exhaust
         vel = annulus_velocity(abs(m), steam.v_ph(p_out, h_elep), ex.area)
         loss = exhaust_loss(vel, ex.curve_velocity, ex.curve_loss)
         h_used = used_energy_end_point(h_elep, loss, y_out)
-        return m, h_used, h_elep, eta, dh_s, y_out, vel, loss
+        return m, h_used, h_elep, eta, dh_s, y_out, vel, loss, h_vap, h_liq
 
 
 @dataclass

@@ -49,9 +49,14 @@ class HeaterState:
 
 
 class FeedwaterMarch:
-    """Compiled water-side march for one model and one set of heaters out of service."""
+    """Compiled water-side march for one model and one set of heaters out of service.
 
-    def __init__(self, model, out_of_service: frozenset[str] = frozenset(), file=None):
+    Heaters are addressed by their position in :attr:`active` (the in-service
+    heaters in model order) and nodes by their index in ``node_names``.
+    """
+
+    def __init__(self, model, out_of_service: frozenset[str] = frozenset(), file=None,
+                 node_names: list[str] | None = None):
         fw = model.feedwater
         self.model = model
         self.heaters = model.heaters
@@ -66,7 +71,7 @@ class FeedwaterMarch:
                                  "has no other place to degas and store feedwater", file=file,
                                  table=f"heaters.{name}", key="in_service")
         self.active = [h for h in self.heaters if h not in self.out]
-        # where each active heater's drains really go
+        # where each active closed heater's drains really go
         self.dest: dict[str, str] = {}
         for h in self.active:
             if self.heaters[h].kind != "closed":
@@ -84,161 +89,192 @@ class FeedwaterMarch:
         cascade = nx.DiGraph()
         cascade.add_nodes_from(self.active)
         cascade.add_edges_from((h, d) for h, d in self.dest.items() if d in self.heaters)
-        self.cascade_order = list(nx.topological_sort(cascade))
         self.drains_into: dict[str, list[str]] = {h: [] for h in self.heaters}
         self.drains_into["condenser"] = []
         for h, d in self.dest.items():
             if d in self.drains_into:
                 self.drains_into[d].append(h)
+        # ---- compiled, index-based form used by evaluate() -----------------------
+        names = node_names if node_names is not None else list(model.order)
+        nidx = {n: i for i, n in enumerate(names)}
+        pos = {h: k for k, h in enumerate(self.active)}
+        self._pos = pos
+        self._n = len(self.active)
+        self._cascade = [(pos[h], [pos[j] for j in self.drains_into[h]])
+                         for h in nx.topological_sort(cascade) if h in self.dest]
+        self._ext_node = [nidx[model.extractions[self.heaters[h].extraction].node]
+                          for h in self.active]
+        self._cond = nidx[self.condenser]
+        self._into = [[pos[j] for j in self.drains_into[h]] for h in self.active]
+        self._to_cond = [pos[j] for j in self.drains_into["condenser"]]
+        # water order: (kind, object, position) kind 0 pump, 1 closed, 2 deaerator, 3 out
+        steps = []
+        for item in self.order:
+            if item in self.pumps:
+                steps.append((0, self.pumps[item], -1, item))
+            elif item in self.out:
+                steps.append((3, self.heaters[item], -1, item))
+            elif self.heaters[item].kind == "deaerator":
+                steps.append((2, self.heaters[item], pos[item], item))
+            else:
+                steps.append((1, self.heaters[item], pos[item], item))
+        self._steps = steps
+        self._forward = [self.dest.get(h) == "forward" for h in self.active]
 
-    def evaluate(self, steam, p_node, h_node, bleed: dict[str, float], m_fw: float,
-                 p_throttle: float, detail: bool = False):
+    def evaluate(self, steam, p_node, h_node, bleed, m_fw: float, p_throttle: float,
+                 detail: bool = False):
         """March the water side.
 
         Parameters
         ----------
         steam : property backend
-        p_node, h_node : mappings node name -> pressure [Pa], enthalpy [J/kg]
-        bleed : heater name -> bleed flow [kg/s] (active heaters)
+        p_node, h_node : node pressures [Pa] and enthalpies [J/kg], indexed like
+            ``node_names`` given at construction (default: the model's order)
+        bleed : bleed flow of each heater in :attr:`active` [kg/s]
         m_fw : feedwater flow to the boiler [kg/s]
         p_throttle : throttle pressure [Pa], for the feed-pump discharge
 
         Returns
         -------
-        residuals : dict heater -> normalised energy-balance residual [-]
-        summary : dict with ``h_feedwater``, ``T_feedwater``, ``p_feedwater``,
+        residuals : list, normalised energy-balance residual of each active heater [-]
+        summary : dict with ``h_feedwater`` [J/kg], ``p_feedwater`` [Pa],
             ``m_condensate``, ``drains_to_condenser`` [kg/s],
-            ``h_drains_to_condenser`` [J/kg], ``pump_power`` [W] and, when
-            ``detail``, ``heaters``: dict of :class:`HeaterState`.
+            ``h_drains_to_condenser``, ``h_condensate`` [J/kg], ``pump_power`` [W]
+            and, when ``detail``, ``T_feedwater`` [K] and ``heaters``: dict of
+            :class:`HeaterState` in water order.
         """
-        H = self.heaters
-        drain_out: dict[str, float] = {}
-        for h in self.cascade_order:
-            if h not in self.dest:
-                continue
-            drain_out[h] = bleed[h] + sum(drain_out[j] for j in self.drains_into[h])
+        n = self._n
+        drain_out = [0.0] * n
+        for k, into in self._cascade:
+            d = bleed[k]
+            for j in into:
+                d += drain_out[j]
+            drain_out[k] = d
         # water flows, from the boiler backwards
-        through: dict[str, float] = {}
+        steps = self._steps
+        through = [0.0] * len(steps)
         m = m_fw
-        for item in reversed(self.order):
-            if item in H and item not in self.out:
-                ht = H[item]
-                if ht.kind == "deaerator":
-                    m -= bleed[item] + sum(drain_out[j] for j in self.drains_into[item])
-                elif self.dest[item] == "forward":
-                    m -= drain_out[item]
-            through[item] = m
+        for s in range(len(steps) - 1, -1, -1):
+            kind, _, k, _ = steps[s]
+            if kind == 2:
+                m -= bleed[k]
+                for j in self._into[k]:
+                    m -= drain_out[j]
+            elif kind == 1 and self._forward[k]:
+                m -= drain_out[k]
+            through[s] = m
         m_condensate = m
-        p_c = p_node[self.condenser]
+        p_c = p_node[self._cond]
         p_w = p_c
-        h_w = steam.h_liq_sat(p_c)
-        h_drain: dict[str, float] = {}
-        st: dict[str, dict] = {}
+        h_c = steam.h_liq_sat(p_c)
+        h_w = h_c
+        h_drain = [0.0] * n
+        h_in = [0.0] * n
+        h_out = [0.0] * n
+        duty = [0.0] * n
+        p_sh = [0.0] * n
+        T_in = [0.0] * n
+        T_out = [0.0] * n
+        T_sat = [0.0] * n
+        bypass = {}
         pump_power = 0.0
-        for item in self.order:
-            mw = through[item]
-            if item in self.pumps:
-                pump = self.pumps[item]
-                p_out = (p_throttle + self.boiler.drop(m_fw) if pump.discharge == "boiler"
-                         else pump.discharge_pressure)
+        for s, (kind, obj, k, name) in enumerate(steps):
+            mw = through[s]
+            if kind == 0:
+                p_out = (p_throttle + self.boiler.drop(m_fw) if obj.discharge == "boiler"
+                         else obj.discharge_pressure)
                 # Pump suction is usually saturated liquid, exactly on the boundary of
                 # IF97 regions 1 and 4; the volume is taken 10 J/kg (about 2 mK) inside
                 # the liquid region so that it is a smooth function of the state.
                 h_v = min(h_w, steam.h_liq_sat(p_w) - 10.0) if p_w < 22e6 else h_w
-                dh = pump.enthalpy_rise(steam.v_ph(p_w, h_v), p_w, p_out)
+                dh = obj.enthalpy_rise(steam.v_ph(p_w, h_v), p_w, p_out)
                 pump_power += mw * dh
                 h_w += dh
                 p_w = p_out
                 continue
-            ht = H[item]
-            if item in self.out:
-                st[item] = {"m_water": mw, "h_in": h_w, "h_out": h_w}
+            if kind == 3:
+                bypass[name] = (mw, h_w)
                 continue
-            p_sh = ht.shell_pressure(p_node[self.extraction_node(item)])
-            if ht.kind == "deaerator":
-                h_out = steam.h_liq_sat(p_sh)
-                st[item] = {"m_water": mw, "h_in": h_w, "h_out": h_out, "p_sh": p_sh,
-                            "duty": mw * (h_out - h_w)}
-                h_drain[item] = h_out
-                h_w, p_w = h_out, p_sh
+            ps = obj.shell_pressure(p_node[self._ext_node[k]])
+            p_sh[k] = ps
+            h_in[k] = h_w
+            if kind == 2:
+                ho = steam.h_liq_sat(ps)
+                h_out[k] = h_drain[k] = ho
+                duty[k] = mw * (ho - h_w)
+                h_w, p_w = ho, ps
                 continue
-            T_sat = steam.T_sat(p_sh)
-            T_in = steam.T_ph(p_w, h_w)
-            T_out = ht.outlet_temperature(T_sat, T_in, mw)
-            h_out = steam.h_pT(p_w, T_out)
-            if ht.dca is not None and T_in + ht.dca < T_sat:
-                h_d = steam.h_pT(p_sh, T_in + ht.dca)
+            ts = steam.T_sat(ps)
+            ti = steam.T_ph(p_w, h_w)
+            to = obj.outlet_temperature(ts, ti, mw)
+            ho = steam.h_pT(p_w, to)
+            if obj.dca is not None and ti + obj.dca < ts:
+                hd = steam.h_pT(ps, ti + obj.dca)
             else:
-                h_d = steam.h_liq_sat(p_sh)
-            h_drain[item] = h_d
-            st[item] = {"m_water": mw, "h_in": h_w, "h_out": h_out, "p_sh": p_sh,
-                        "T_sat": T_sat, "T_in": T_in, "T_out": T_out,
-                        "duty": mw * (h_out - h_w)}
-            h_w = h_out
-            if self.dest[item] == "forward":
-                md = drain_out[item]
-                v_d = steam.v_liq_sat(p_sh)
-                h_dp = h_d + v_d * (p_w - p_sh) / ht.drain_pump_efficiency
-                pump_power += md * (h_dp - h_d)
-                h_w = (mw * h_out + md * h_dp) / (mw + md)
-        residuals: dict[str, float] = {}
-        for item in self.active:
-            ht = H[item]
-            s = st[item]
-            h_b = h_node[self.extraction_node(item)]
-            h_ref = h_drain[item]
-            release = bleed[item] * (h_b - h_ref) + sum(
-                drain_out[j] * (h_drain[j] - h_ref) for j in self.drains_into[item])
-            s["release"] = release
-            residuals[item] = (ht.closure * release - s["duty"]) / ht.duty_design
-        to_cond = self.drains_into["condenser"]
-        m_dc = sum(drain_out[j] for j in to_cond)
-        h_dc = (sum(drain_out[j] * h_drain[j] for j in to_cond) / m_dc) if m_dc else 0.0
+                hd = steam.h_liq_sat(ps)
+            T_sat[k], T_in[k], T_out[k] = ts, ti, to
+            h_drain[k] = hd
+            h_out[k] = ho
+            duty[k] = mw * (ho - h_w)
+            h_w = ho
+            if self._forward[k]:
+                md = drain_out[k]
+                h_dp = hd + steam.v_liq_sat(ps) * (p_w - ps) / obj.drain_pump_efficiency
+                pump_power += md * (h_dp - hd)
+                h_w = (mw * ho + md * h_dp) / (mw + md)
+        residuals = [0.0] * n
+        release = [0.0] * n
+        for k, h in enumerate(self.active):
+            ht = self.heaters[h]
+            ref = h_drain[k]
+            q = bleed[k] * (h_node[self._ext_node[k]] - ref)
+            for j in self._into[k]:
+                q += drain_out[j] * (h_drain[j] - ref)
+            release[k] = q
+            residuals[k] = (ht.closure * q - duty[k]) / ht.duty_design
+        m_dc = 0.0
+        e_dc = 0.0
+        for j in self._to_cond:
+            m_dc += drain_out[j]
+            e_dc += drain_out[j] * h_drain[j]
         summary = {
             "h_feedwater": h_w,
             "p_feedwater": p_w,
             "m_condensate": m_condensate,
             "drains_to_condenser": m_dc,
-            "h_drains_to_condenser": h_dc,
-            "h_condensate": steam.h_liq_sat(p_c),
+            "h_drains_to_condenser": e_dc / m_dc if m_dc else 0.0,
+            "h_condensate": h_c,
             "pump_power": pump_power,
         }
         if detail:
             summary["T_feedwater"] = steam.T_ph(p_w, h_w)
-            summary["heaters"] = self._states(steam, st, bleed, drain_out, h_drain, h_node,
-                                              residuals)
+            states = {}
+            s_of = {st[2]: i for i, st in enumerate(steps) if st[2] >= 0}
+            for kind, _obj, k, name in steps:
+                if kind == 0:
+                    continue
+                if kind == 3:
+                    mw, hw = bypass[name]
+                    states[name] = HeaterState(name, False, m_water=mw, h_in=hw, h_out=hw)
+                    continue
+                hs = HeaterState(name, True, bleed=bleed[k], shell_pressure=p_sh[k],
+                                 h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
+                                 h_bleed=h_node[self._ext_node[k]],
+                                 m_water=through[s_of[k]],
+                                 drain_out=drain_out[k], duty=duty[k],
+                                 steam_release=release[k], residual=residuals[k])
+                hs.T_sat = steam.T_sat(p_sh[k])
+                if kind == 1:
+                    hs.T_in, hs.T_out = T_in[k], T_out[k]
+                    hs.T_drain = steam.T_ph(p_sh[k], h_drain[k])
+                    hs.ttd = hs.T_sat - hs.T_out
+                    hs.dca = hs.T_drain - hs.T_in
+                else:
+                    hs.T_in = steam.T_ph(p_sh[k], h_in[k])
+                    hs.T_out = hs.T_drain = hs.T_sat
+                states[name] = hs
+            summary["heaters"] = states
         return residuals, summary
-
-    def extraction_node(self, heater: str) -> str:
-        return self.model.extractions[self.heaters[heater].extraction].node
-
-    def _states(self, steam, st, bleed, drain_out, h_drain, h_node, residuals):
-        out = {}
-        for name in self.order:
-            if name not in self.heaters:
-                continue
-            ht = self.heaters[name]
-            s = st[name]
-            if name in self.out:
-                out[name] = HeaterState(name, False, m_water=s["m_water"], h_in=s["h_in"],
-                                        h_out=s["h_out"])
-                continue
-            hs = HeaterState(name, True, bleed=bleed[name], shell_pressure=s["p_sh"],
-                             h_in=s["h_in"], h_out=s["h_out"], h_drain=h_drain[name],
-                             h_bleed=h_node[self.extraction_node(name)], m_water=s["m_water"],
-                             drain_out=drain_out.get(name, 0.0), duty=s["duty"],
-                             steam_release=s["release"], residual=residuals[name])
-            hs.T_sat = steam.T_sat(s["p_sh"])
-            if ht.kind == "closed":
-                hs.T_in, hs.T_out = s["T_in"], s["T_out"]
-                hs.T_drain = steam.T_ph(s["p_sh"], h_drain[name])
-                hs.ttd = hs.T_sat - hs.T_out
-                hs.dca = hs.T_drain - hs.T_in
-            else:
-                hs.T_in = steam.T_ph(s["p_sh"], s["h_in"]) if s["h_in"] > 0 else 0.0
-                hs.T_out = hs.T_drain = hs.T_sat
-            out[name] = hs
-        return out
 
 
 def design_feedwater_states(model, steam) -> dict[str, dict]:
@@ -248,10 +284,11 @@ def design_feedwater_states(model, steam) -> dict[str, dict]:
         h.closure = 1.0
         h.duty_design = 1.0
     march = FeedwaterMarch(model)
-    bleed = {h: model.extractions[model.heaters[h].extraction].design_flow
-             for h in model.heaters}
-    _, summary = march.evaluate(steam, model.design_pressure, model.design_enthalpy, bleed,
-                                model.throttle.flow, model.throttle.pressure, detail=True)
+    bleed = [model.extractions[model.heaters[h].extraction].design_flow for h in march.active]
+    p = [model.design_pressure[n] for n in model.order]
+    h = [model.design_enthalpy[n] for n in model.order]
+    _, summary = march.evaluate(steam, p, h, bleed, model.throttle.flow, model.throttle.pressure,
+                                detail=True)
     out = {}
     for name, hs in summary["heaters"].items():
         out[name] = {"duty": hs.duty, "steam_release": hs.steam_release,

@@ -3,14 +3,14 @@
 The Jacobian is formed by forward differences, optionally reused from a
 neighbouring point and kept current between iterations by Broyden's rank-one
 update; a fresh finite-difference Jacobian is formed whenever a step fails to
-reduce the residual.  Linear algebra is scipy's LU.
+reduce the residual.
 
 References
 ----------
 J. E. Dennis and R. B. Schnabel, *Numerical Methods for Unconstrained
 Optimization and Nonlinear Equations*, SIAM, 1996: ch. 6 (backtracking line
 search, Armijo condition, Algorithm A6.3.1) and ch. 8 (Broyden's update,
-eq. 8.1.5).
+eq. 8.1.5).  The linear systems are solved by LAPACK's LU (numpy.linalg.solve).
 """
 
 from __future__ import annotations
@@ -19,7 +19,6 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.linalg
 
 from .errors import ConvergenceError, SolveError
 
@@ -106,10 +105,9 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             njac += 1
             fresh = True
         try:
-            lu = scipy.linalg.lu_factor(J, check_finite=False)
-            dx = -scipy.linalg.lu_solve(lu, F, check_finite=False)
+            dx = -np.linalg.solve(J, F)
             singular = not np.all(np.isfinite(dx))
-        except (ValueError, np.linalg.LinAlgError):
+        except np.linalg.LinAlgError:
             singular = True
         if singular:
             if not fresh:

@@ -24,6 +24,7 @@ the ellipse law, or from a neighbouring solution.
 from __future__ import annotations
 
 import math
+import threading
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -97,6 +98,8 @@ class PointResult:
     path_heat: np.ndarray = field(default=None)
     x: np.ndarray = field(repr=False, default=None)
     jacobian: np.ndarray = field(repr=False, default=None)
+    flow_ratio: float = 1.0
+    x_slope: np.ndarray = field(repr=False, default=None)
 
     def node(self, name: str) -> dict:
         i = self.node_names.index(name)
@@ -115,12 +118,17 @@ class PointEquations:
     ``mode`` is ``"point"`` (throttle flow or output as the conditions say) or
     ``"wide_open"`` (throttle pressure held at ``conditions.throttle_pressure``
     with the valves wide open; the throttle flow is the unknown).
+
+    The structure (unknowns, residual rows, the compiled water side) depends
+    only on the governing mode, on whether an output is demanded, on the
+    extraction controls and on the heaters out of service; it is built once per
+    model and kept (:func:`equations_for`).  The operating values are set by
+    :meth:`set_conditions`.
     """
 
     def __init__(self, model: Model, cond: Conditions, steam: SteamTables,
                  mode: str = "point"):
         self.model = model
-        self.cond = cond
         self.steam = steam
         self.mode = mode
         g = model.graph
@@ -129,42 +137,33 @@ class PointEquations:
         idx = {n: i for i, n in enumerate(names)}
         self.idx = idx
         N = len(names)
+        self.N = N
         self.src = idx[model.source]
-        p_fix = [math.nan] * N
-        p_exh = cond.exhaust_pressure
-        for n in model.exhaust_nodes:
-            p_fix[idx[n]] = p_exh if p_exh is not None else model.design_pressure[n]
+        self.exhaust_idx = [idx[n] for n in model.exhaust_nodes]
         self.throttle_fixed = cond.governing == "throttle" or mode == "wide_open"
-        if self.throttle_fixed:
-            p_fix[self.src] = (cond.throttle_pressure if cond.throttle_pressure is not None
-                               else model.throttle.pressure)
-        self.p_fix = p_fix
-        self.free = [i for i in range(N) if math.isnan(p_fix[i])]
+        fixed = set(self.exhaust_idx) | ({self.src} if self.throttle_fixed else set())
+        self.free = [i for i in range(N) if i not in fixed]
         self.p_design = [model.design_pressure[n] for n in names]
         self.m_design = model.throttle.flow
-        self.T_throttle = (cond.throttle_temperature if cond.throttle_temperature is not None
-                           else model.throttle.temperature)
-        # outgoing components per node: (kind, component, outlet index, T_override)
+        # outgoing components per node: (kind, component, outlet index)
+        # kind 0 stage group, 1 throttle valve, 2 reheater or pipe
         self.outs: list[list] = [[] for _ in range(N)]
         self.has_drop = [False] * N
         for i, n in enumerate(names):
-            for s in g.successors(n):
-                c = g.edges[n, s]["component"]
+            for succ in g.successors(n):
+                c = g.edges[n, succ]["component"]
                 if isinstance(c, StageGroup):
-                    self.outs[i].append((0, c, idx[s], None))
-                elif isinstance(c, ThrottleValve):
-                    self.outs[i].append((1, c, idx[s], None))
-                    self.has_drop[i] = True
+                    self.outs[i].append((0, c, idx[succ]))
                 else:
-                    T = cond.reheat_temperature if c.is_reheater else None
-                    self.outs[i].append((2, c, idx[s], T))
+                    self.outs[i].append((1 if isinstance(c, ThrottleValve) else 2, c,
+                                         idx[succ]))
                     self.has_drop[i] = True
         # extractions
         controls = cond.controls()
         self.heaters_out = frozenset(cond.heaters_out)
-        self.fw = (FeedwaterMarch(model, self.heaters_out)
+        self.fw = (FeedwaterMarch(model, self.heaters_out, node_names=names)
                    if model.feedwater is not None and model.heaters else None)
-        self.active_heaters = [h for h in (self.fw.active if self.fw else [])]
+        self.active_heaters = list(self.fw.active) if self.fw else []
         self.bleeds = []  # (name, node index, kind, value) kind: 0 fixed, 1 fraction, 2 heater
         self.bleed_control = []
         hpos = {h: k for k, h in enumerate(self.active_heaters)}
@@ -185,46 +184,68 @@ class PointEquations:
         # unknown layout
         self.n_p = len(self.free)
         self.n_h = len(self.active_heaters)
-        self.flow_unknown = cond.output is not None or mode == "wide_open"
+        self.demand = cond.output is not None and mode == "point"
+        self.flow_unknown = self.demand or mode == "wide_open"
         self.n = self.n_p + self.n_h + (1 if self.flow_unknown else 0)
         # residual rows: free nodes (and the source when flow is the unknown at a held
         # throttle pressure in wide-open mode), heaters, demand
-        self.row_of = {}
+        self.row_of = [-1] * N
         rows = []
         for i in self.free:
             self.row_of[i] = len(rows)
             rows.append(i)
-        self.extra_valve_row = mode == "wide_open"
-        if self.extra_valve_row:
+        if mode == "wide_open":
             self.row_of[self.src] = len(rows)
             rows.append(self.src)
         self.node_rows = rows
+        self.n_res = len(rows) + self.n_h + (1 if self.demand else 0)
         self.residual_names = []
         for i in rows:
             kind = "pressure drop after" if self.has_drop[i] else "mass balance at"
             self.residual_names.append(f"{kind} node {names[i]!r}")
         self.residual_names += [f"energy balance of heater {h!r}" for h in self.active_heaters]
-        if cond.output is not None and mode == "point":
+        if self.demand:
             self.residual_names.append("generator output demand")
         self.unknown_names = ([f"ln p({names[i]})" for i in self.free]
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
         self.calls = 0
+        self.set_conditions(cond)
+
+    def set_conditions(self, cond: Conditions) -> None:
+        """Set the operating values (flow or demand, pressures, temperatures)."""
+        model = self.model
+        self.cond = cond
+        p_fix = [math.nan] * self.N
+        for i in self.exhaust_idx:
+            p_fix[i] = (cond.exhaust_pressure if cond.exhaust_pressure is not None
+                        else self.p_design[i])
+        if self.throttle_fixed:
+            p_fix[self.src] = (cond.throttle_pressure if cond.throttle_pressure is not None
+                               else model.throttle.pressure)
+        self.p_fix = p_fix
+        self.T_throttle = (cond.throttle_temperature if cond.throttle_temperature is not None
+                           else model.throttle.temperature)
+        self.T_reheat = cond.reheat_temperature
 
     # ------------------------------------------------------------------ guesses
+    def flow_ratio(self) -> float:
+        """The expected throttle flow over design [-] for these conditions."""
+        cond = self.cond
+        if cond.throttle_flow is not None and self.mode == "point":
+            return cond.throttle_flow / self.m_design
+        if cond.output is not None and self.mode == "point":
+            return cond.output / self.model.generator.rating
+        # wide open at a held throttle pressure: flow nearly proportional to it
+        return self.p_fix[self.src] / self.model.throttle.pressure
+
     def guess(self) -> np.ndarray:
         """Design pressures scaled by flow with the ellipse law toward the exhaust."""
         m = self.model
-        cond = self.cond
-        if cond.throttle_flow is not None and self.mode == "point":
-            r = cond.throttle_flow / self.m_design
-        elif cond.output is not None and self.mode == "point":
-            r = cond.output / m.generator.rating
-        else:  # wide open at a held throttle pressure: flow nearly proportional to it
-            r = self.p_fix[self.src] / m.throttle.pressure
-        exh = m.exhaust_nodes[0]
-        p_ex_d = m.design_pressure[exh]
-        p_ex = self.p_fix[self.idx[exh]]
+        r = self.flow_ratio()
+        exh = self.exhaust_idx[0]
+        p_ex_d = self.p_design[exh]
+        p_ex = self.p_fix[exh]
         x = np.empty(self.n)
         for k, i in enumerate(self.free):
             pd = self.p_design[i]
@@ -241,94 +262,141 @@ class PointEquations:
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.98))
         return x
 
+    def scaled_guess(self, x_prev: np.ndarray, r_prev: float) -> np.ndarray:
+        """A neighbour's solution scaled to this point's flow: pressures and bleeds
+        nearly proportional to flow (ellipse law), used for continuation."""
+        r = self.flow_ratio()
+        x = np.array(x_prev, dtype=float)
+        if r_prev > 0.0 and r > 0.0:
+            f = r / r_prev
+            exh = self.exhaust_idx[0]
+            p_ex = self.p_fix[exh]
+            for k in range(self.n_p):
+                p = math.exp(x[k])
+                x[k] = math.log(math.sqrt(max(p_ex * p_ex + (p * p - p_ex * p_ex) * f * f,
+                                              (0.5 * p * f) ** 2)))
+            x[self.n_p:self.n_p + self.n_h] *= f
+            if self.flow_unknown:
+                x[-1] *= f
+        if self.throttle_fixed and self.mode == "point":
+            k_after = self.free.index(self.idx[self.model.valve.outlet])
+            x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.995))
+        return x
+
     # ---------------------------------------------------------------- residuals
     def residuals(self, x: np.ndarray) -> np.ndarray:
         return self.evaluate(x, detail=False)[0]
 
-    def evaluate(self, x: np.ndarray, detail: bool = False):
+    def evaluate(self, x, detail: bool = False):
         """Residuals at ``x``; with ``detail``, also the full state as a dict."""
         self.calls += 1
         steam = self.steam
-        N = len(self.names)
+        N = self.N
+        xs = x.tolist() if isinstance(x, np.ndarray) else list(x)
         p = list(self.p_fix)
+        exp = math.exp
         for k, i in enumerate(self.free):
-            p[i] = math.exp(x[k])
-        m_T = x[-1] * self.m_design if self.flow_unknown else self.cond.throttle_flow
+            p[i] = exp(xs[k])
+        md = self.m_design
+        m_T = xs[-1] * md if self.flow_unknown else self.cond.throttle_flow
         if m_T is None or m_T <= 0.0:
             raise _Bad("no throttle flow")
         nh = self.n_p
         bleed_node = [0.0] * N
         bleed_flow = []
-        heater_bleed = {}
+        heater_bleed = [0.0] * self.n_h
         for _name, i, kind, v in self.bleeds:
             if kind == 0:
                 b = v
             elif kind == 1:
                 b = v * m_T
             else:
-                b = x[nh + v] * self.m_design
-                heater_bleed[self.active_heaters[v]] = b
+                b = xs[nh + v] * md
+                heater_bleed[v] = b
             bleed_flow.append(b)
             bleed_node[i] += b
         M = [0.0] * N
         E = [0.0] * N
         h = [0.0] * N
+        hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
+        hl = [math.nan] * N
         src = self.src
         M[src] = m_T
         h[src] = steam.h_pT(p[src], self.T_throttle)
-        F = np.empty(len(self.residual_names))
+        F = np.empty(self.n_res)
         row_of = self.row_of
-        md = self.m_design
+        has_drop = self.has_drop
+        p_design = self.p_design
         shaft = 0.0
         groups = {} if detail else None
-        valve_drop_needed = 0.0
         drops = {}
+        valve_drop_needed = 0.0
+        limit = 1e-9 * md
         for i in range(N):
             if i != src:
-                if M[i] <= 1e-9 * md:
+                if M[i] <= limit:
                     raise _Bad(f"no steam reaches node {self.names[i]!r}")
                 h[i] = E[i] / M[i]
+            outs = self.outs[i]
+            if not outs:
+                continue
+            hi = h[i]
+            pi = p[i]
             net = M[i] - bleed_node[i]
             out_flow = 0.0
-            for kind, c, j, T in self.outs[i]:
+            for kind, c, j in outs:
                 if kind == 0:
-                    r = c.expand(steam, p[i], h[i], p[j])
+                    if c.alpha:
+                        hvi = hv[i]
+                        if hvi != hvi:  # node state not known from upstream
+                            y_in = 1.0 - steam.x_ph(pi, hi)
+                        elif hi >= hvi:
+                            y_in = 0.0
+                        else:
+                            hli = hl[i]
+                            if hli != hli:
+                                hli = hl[i] = steam.h_liq_sat(pi)
+                            y_in = (hvi - hi) / (hvi - hli)
+                    else:
+                        y_in = 0.0
+                    r = c.expand(steam, pi, hi, p[j], y_in)
                     m = r[0]
                     h_out = r[1]
-                    shaft += m * (h[i] - h_out)
+                    hv[j] = r[8]
+                    if r[9] == r[9]:
+                        hl[j] = r[9]
+                    shaft += m * (hi - h_out)
                     if detail:
                         groups[c.name] = r
                     out_flow += m
                 else:
                     m = net
-                    v = steam.v_ph(p[i], h[i])
+                    v = steam.v_ph(pi, hi)
                     if kind == 1:
                         dp = c.wide_open_drop(m, v)
                         valve_drop_needed = dp
-                        h_out = h[i]
+                        h_out = hi
                     else:
                         dp = c.drop(m, v)
-                        h_out = c.outlet_enthalpy(steam, p[j], h[i], T)
-                    drops[c.name] = (m, p[i] - p[j], h_out)
-                    if i in row_of:
-                        F[row_of[i]] = (p[i] - p[j] - dp) / self.p_design[i]
+                        h_out = c.outlet_enthalpy(steam, p[j], hi, self.T_reheat)
+                    if detail:
+                        drops[c.name] = (m, pi - p[j], h_out)
+                    if row_of[i] >= 0:
+                        F[row_of[i]] = (pi - p[j] - dp) / p_design[i]
                     out_flow = m
                 M[j] += m
                 E[j] += m * h_out
-            if i in row_of and not self.has_drop[i]:
+            if row_of[i] >= 0 and not has_drop[i]:
                 F[row_of[i]] = (net - out_flow) / md
         p_gen = self.model.generator.output(shaft)
         k = len(self.node_rows)
         summary = None
         if self.fw is not None:
-            pn = dict(zip(self.names, p))
-            hn = dict(zip(self.names, h))
-            res, summary = self.fw.evaluate(steam, pn, hn, heater_bleed, m_T, p[src],
+            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src],
                                             detail=detail)
-            for hname in self.active_heaters:
-                F[k] = res[hname]
-                k += 1
-        if self.cond.output is not None and self.mode == "point":
+            F[k:k + self.n_h] = res
+            k += self.n_h
+        if self.demand:
             F[k] = (p_gen - self.cond.output) / self.model.generator.rating
         if not detail:
             return F, None
@@ -338,11 +406,28 @@ class PointEquations:
         return F, state
 
 
+def equations_for(model: Model, cond: Conditions, steam: SteamTables,
+                  mode: str = "point") -> PointEquations:
+    """The compiled equations for ``cond``, reused across points of the same structure."""
+    key = (cond.governing, mode, cond.output is not None, cond.extraction_control,
+           cond.heaters_out, steam.name)
+    key = key + (threading.get_ident(),)  # one compiled copy per thread: it holds state
+    cache = model.__dict__.setdefault("_equations", {})
+    eq = cache.get(key)
+    if eq is None:
+        if len(cache) > 64:
+            cache.clear()
+        eq = cache[key] = PointEquations(model, cond, steam, mode)
+    else:
+        eq.set_conditions(cond)
+    return eq
+
+
 def _wide_open(model: Model, cond: Conditions, steam: SteamTables, p_throttle: float):
     """Throttle flow and output with the valves wide open at ``p_throttle``."""
     c2 = override(cond, governing="throttle", throttle_pressure=p_throttle, output=None,
                   throttle_flow=model.throttle.flow)
-    eq = PointEquations(model, c2, steam, mode="wide_open")
+    eq = equations_for(model, c2, steam, mode="wide_open")
     x0 = eq.guess()
     nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names)
     _, st = eq.evaluate(nr.x, detail=True)
@@ -351,7 +436,8 @@ def _wide_open(model: Model, cond: Conditions, steam: SteamTables, p_throttle: f
 
 def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
                 guess: np.ndarray | None = None, jacobian: np.ndarray | None = None,
-                broyden: bool = True, check_limits: bool = True) -> PointResult:
+                broyden: bool = True, check_limits: bool = True,
+                neighbour: PointResult | None = None) -> PointResult:
     """Solve one operating point.
 
     Parameters
@@ -359,12 +445,14 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     model : calibrated model
     cond : operating conditions
     steam : property backend or its name (default ``"seuif97"``)
-    guess : starting unknowns, e.g. ``PointResult.x`` of a neighbouring point
-        solved with the same unknowns; the design-scaled guess otherwise
-    jacobian : starting Jacobian for the same unknowns (from a neighbour)
+    guess : starting unknowns (``PointResult.x`` of a point solved with the same
+        unknowns); the design-scaled guess otherwise
+    jacobian : starting Jacobian for the same unknowns
     broyden : Broyden updates between fresh Jacobians (``False``: plain Newton)
     check_limits : raise :class:`InfeasibleError` when the answer needs more
         than the valves wide open can pass
+    neighbour : a solved neighbouring point with the same unknowns; its solution
+        scaled to this flow and its Jacobian start the iteration (continuation)
 
     Raises
     ------
@@ -372,10 +460,21 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     """
     if steam is None or isinstance(steam, str):
         steam = get_backend(steam or "seuif97")
-    eq = PointEquations(model, cond, steam)
+    eq = equations_for(model, cond, steam)
+    shape = (eq.n_res, eq.n)
+    r = eq.flow_ratio()
+    scaled = None
+    if (neighbour is not None and neighbour.x is not None and len(neighbour.x) == eq.n
+            and guess is None):
+        scaled = eq.scaled_guess(neighbour.x, neighbour.flow_ratio)
+        guess = scaled
+        step = r - neighbour.flow_ratio
+        if neighbour.x_slope is not None and abs(step) < 0.15:
+            guess = scaled + neighbour.x_slope * step  # secant predictor along the load
+        jacobian = neighbour.jacobian if jacobian is None else jacobian
     x0 = eq.guess() if guess is None or len(guess) != eq.n else np.asarray(guess, float)
     jac = jacobian if (jacobian is not None and guess is not None and len(guess) == eq.n
-                       and np.shape(jacobian) == (len(eq.residual_names), eq.n)) else None
+                       and np.shape(jacobian) == shape) else None
     try:
         nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
                     broyden=broyden)
@@ -388,6 +487,9 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     if check_limits:
         _check_feasible(model, cond, steam, eq, st)
     result = _build_result(model, cond, steam, eq, nr, F, st)
+    result.flow_ratio = r
+    if scaled is not None and abs(r - neighbour.flow_ratio) > 1e-9:
+        result.x_slope = (nr.x - scaled) / (r - neighbour.flow_ratio)
     return result
 
 
@@ -395,7 +497,7 @@ def _check_feasible(model, cond, steam, eq, st):
     p = st["p"]
     names = eq.names
     for kind_list_i, outs in enumerate(eq.outs):
-        for kind, c, j, _ in outs:
+        for kind, c, j in outs:
             if kind == 0 and p[j] >= p[kind_list_i]:
                 raise InfeasibleError(
                     f"no pressure ordering exists for this request: stage group {c.name!r} "

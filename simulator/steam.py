@@ -97,53 +97,60 @@ class Seuif97Tables(SteamTables):
             raise _range_error("v(p, T)", p=p, T=T)
         return self._pt(p * 1e-6, T - 273.15, 3)
 
-    def _ph_prop(self, p, h, i, what):
-        if not (P_MIN <= p <= P_MAX):
-            raise _range_error(what, p=p, h=h)
-        r = self._ph(p * 1e-6, h * 1e-3, i)
-        if r <= -999.0 or r != r:
-            raise _range_error(what, p=p, h=h)
-        return r
-
     def T_ph(self, p, h):
-        return self._ph_prop(p, h, 1, "T(p, h)") + 273.15
+        if P_MIN <= p <= P_MAX:
+            r = self._ph(p * 1e-6, h * 1e-3, 1)
+            if r > -999.0:
+                return r + 273.15
+        raise _range_error("T(p, h)", p=p, h=h)
 
     def s_ph(self, p, h):
-        return self._ph_prop(p, h, 5, "s(p, h)") * 1e3
+        if P_MIN <= p <= P_MAX:
+            r = self._ph(p * 1e-6, h * 1e-3, 5)
+            if r > -999.0:
+                return r * 1e3
+        raise _range_error("s(p, h)", p=p, h=h)
 
     def v_ph(self, p, h):
-        r = self._ph_prop(p, h, 3, "v(p, h)")
-        if r <= 0.0:
-            raise _range_error("v(p, h)", p=p, h=h)
-        return r
+        if P_MIN <= p <= P_MAX:
+            r = self._ph(p * 1e-6, h * 1e-3, 3)
+            if r > 0.0:
+                return r
+        raise _range_error("v(p, h)", p=p, h=h)
 
     def x_ph(self, p, h):
-        return self._ph_prop(p, h, 15, "x(p, h)")
+        if P_MIN <= p <= P_MAX:
+            r = self._ph(p * 1e-6, h * 1e-3, 15)
+            if r > -999.0:
+                return r
+        raise _range_error("x(p, h)", p=p, h=h)
 
     def h_ps(self, p, s):
-        if not (P_MIN <= p <= P_MAX):
-            raise _range_error("h(p, s)", p=p, s=s)
-        r = self._ps(p * 1e-6, s * 1e-3, 4)
-        if r <= -999.0 or r != r:
-            raise _range_error("h(p, s)", p=p, s=s)
-        return r * 1e3
-
-    def _sat(self, p, x, i, what):
-        if not (P_MIN <= p < P_CRIT):
-            raise _range_error(what, p=p)
-        return self._px(p * 1e-6, x, i)
+        if P_MIN <= p <= P_MAX:
+            r = self._ps(p * 1e-6, s * 1e-3, 4)
+            if r > -999.0:
+                return r * 1e3
+        raise _range_error("h(p, s)", p=p, s=s)
 
     def T_sat(self, p):
-        return self._sat(p, 0.0, 1, "saturation temperature") + 273.15
+        if P_MIN <= p < P_CRIT:
+            return self._px(p * 1e-6, 0.0, 1) + 273.15
+        raise _range_error("saturation temperature", p=p)
 
     def h_liq_sat(self, p):
-        return self._sat(p, 0.0, 4, "saturated liquid enthalpy") * 1e3
+        if P_MIN <= p < P_CRIT:
+            return self._px(p * 1e-6, 0.0, 4) * 1e3
+        raise _range_error("saturated liquid enthalpy", p=p)
 
     def h_vap_sat(self, p):
-        return self._sat(p, 1.0, 4, "saturated vapour enthalpy") * 1e3
+        if P_MIN <= p < P_CRIT:
+            return self._px(p * 1e-6, 1.0, 4) * 1e3
+        raise _range_error("saturated vapour enthalpy", p=p)
 
     def v_liq_sat(self, p):
-        return self._sat(p, 0.0, 3, "saturated liquid volume")
+        if P_MIN <= p < P_CRIT:
+            return self._px(p * 1e-6, 0.0, 3)
+        raise _range_error("saturated liquid volume", p=p)
 
 
 class IapwsTables(SteamTables):

@@ -20,9 +20,8 @@ larger", Trans. ASME J. Eng. Power 85(4), 249-301, 1963.  The coefficients
 
 from __future__ import annotations
 
+import bisect
 from collections.abc import Sequence
-
-import numpy as np
 
 __all__ = ["annulus_velocity", "exhaust_loss", "used_energy_end_point"]
 
@@ -46,7 +45,14 @@ def exhaust_loss(velocity: float, curve_velocity: Sequence[float],
     Held at the end values outside the curve; the curve should span the
     velocities of interest (typically 60-350 m/s).
     """
-    return float(np.interp(velocity, curve_velocity, curve_loss))
+    xs, ys = curve_velocity, curve_loss
+    if velocity <= xs[0]:
+        return float(ys[0])
+    if velocity >= xs[-1]:
+        return float(ys[-1])
+    k = bisect.bisect_right(xs, velocity)
+    t = (velocity - xs[k - 1]) / (xs[k] - xs[k - 1])
+    return float(ys[k - 1] + t * (ys[k] - ys[k - 1]))
 
 
 def used_energy_end_point(h_elep: float, loss: float, y: float) -> float:
