@@ -1,0 +1,70 @@
+"""The fast paths (Broyden updates, reused Jacobians, continuation with a secant
+predictor, compiled equations) give the same answers as plain Newton.
+
+These are correctness tests; the timings are in benchmarks/run.py.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from simulator.case import Conditions, load_case
+from simulator.model import build_model
+from simulator.solve import solve_point
+from simulator.synthetic import synthetic_model_data
+
+CASES = sorted((Path(__file__).resolve().parent.parent / "cases").glob("*.toml"))
+
+
+def _same(a, b, rtol=1e-9):
+    np.testing.assert_allclose(a.node_p, b.node_p, rtol=rtol)
+    np.testing.assert_allclose(a.group_flow, b.group_flow, rtol=rtol)
+    np.testing.assert_allclose(a.extraction_flow, b.extraction_flow, rtol=rtol, atol=1e-9)
+    assert a.totals["generator_output"] == pytest.approx(b.totals["generator_output"],
+                                                         rel=rtol)
+
+
+@pytest.mark.parametrize("case_path", CASES, ids=[p.stem for p in CASES])
+def test_demo_cases_plain_newton_equals_default(case_path):
+    case = load_case(case_path)
+    plain = solve_point(case.model, case.conditions, broyden=False)
+    fast = solve_point(case.model, case.conditions)
+    _same(plain, fast)
+
+
+def test_continuation_along_a_sweep_equals_cold_points(reheat_model):
+    m_d = reheat_model.throttle.flow
+    prev = None
+    for f in np.linspace(0.45, 1.0, 12):
+        cond = Conditions(throttle_flow=f * m_d)
+        warm = solve_point(reheat_model, cond, neighbour=prev)
+        cold = solve_point(reheat_model, cond, broyden=False)
+        _same(warm, cold)
+        prev = warm
+
+
+def test_continuation_across_changing_exhaust_pressure(reheat_model):
+    # an hourly profile changes load and condenser pressure together
+    prev = None
+    for f, p_x in [(0.6, 5e3), (0.62, 6e3), (0.9, 9e3), (0.5, 7e3)]:
+        cond = Conditions(output=f * reheat_model.generator.rating, exhaust_pressure=p_x)
+        warm = solve_point(reheat_model, cond, neighbour=prev)
+        _same(warm, solve_point(reheat_model, cond, broyden=False))
+        prev = warm
+
+
+@pytest.mark.parametrize("n_groups", [10, 23, 60])
+def test_synthetic_networks_fast_equals_plain(n_groups):
+    model = build_model(synthetic_model_data(n_groups), file=f"synthetic-{n_groups}")
+    assert len(model.groups) == n_groups
+    # parallel branches split and merge: some node has two groups leaving it
+    assert max(model.graph.out_degree(n) for n in model.graph.nodes) == 2
+    prev = None
+    for f in (0.6, 0.65, 0.7):
+        cond = Conditions(throttle_flow=f * model.throttle.flow)
+        warm = solve_point(model, cond, neighbour=prev)
+        _same(warm, solve_point(model, cond, broyden=False))
+        prev = warm
