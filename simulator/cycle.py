@@ -29,6 +29,7 @@ class HeaterState:
 
     name: str
     in_service: bool
+    kind: str = "closed"  # "closed" or "deaerator"
     bleed: float = 0.0  # [kg/s]
     shell_pressure: float = 0.0  # [Pa]
     T_sat: float = 0.0  # [K]
@@ -255,9 +256,10 @@ class FeedwaterMarch:
                     continue
                 if kind == 3:
                     mw, hw = bypass[name]
-                    states[name] = HeaterState(name, False, m_water=mw, h_in=hw, h_out=hw)
+                    states[name] = HeaterState(name, False, self.heaters[name].kind,
+                                               m_water=mw, h_in=hw, h_out=hw)
                     continue
-                hs = HeaterState(name, True, bleed=bleed[k], shell_pressure=p_sh[k],
+                hs = HeaterState(name, True, self.heaters[name].kind, bleed=bleed[k], shell_pressure=p_sh[k],
                                  h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
                                  h_bleed=h_node[self._ext_node[k]],
                                  m_water=through[s_of[k]],

@@ -69,21 +69,27 @@ def point_to_dict(r: PointResult, case_name: str = "", cautions=()) -> dict:
               for i, n in enumerate(r.extraction_names)]
     heaters = []
     for hs in r.heaters:
-        heaters.append({"name": hs.name, "in_service": hs.in_service, "bleed": _f(hs.bleed),
+        closed = hs.in_service and hs.kind == "closed"
+        heaters.append({"name": hs.name, "type": hs.kind, "in_service": hs.in_service,
+                        "bleed": _f(hs.bleed),
                         "shell_pressure": _f(hs.shell_pressure / 1e5) if hs.in_service else None,
                         "feedwater_in": _f(hs.T_in - 273.15) if hs.in_service else None,
                         "feedwater_out": _f(hs.T_out - 273.15) if hs.in_service else None,
                         "drain_out": _f(hs.T_drain - 273.15) if hs.in_service else None,
-                        "ttd": _f(hs.ttd), "dca": _f(hs.dca), "duty": _f(hs.duty / 1e6),
+                        "ttd": _f(hs.ttd) if closed else None,
+                        "dca": _f(hs.dca) if closed else None, "duty": _f(hs.duty / 1e6),
                         "feedwater_flow": _f(hs.m_water), "drain_flow": _f(hs.drain_out)})
     totals = {}
     for k, v in r.totals.items():
         unit = DISPLAY_UNITS["totals"].get(k)
         if unit is None:
             continue
+        if k in ("makeup_flow", "process_steam_energy") and abs(v) < 1e-6 * abs(
+                r.totals["throttle_flow"]):
+            v = 0.0  # a balance that closes to round-off is shown as zero
         totals[k] = _f(_TOTAL_CONVERT[unit](v))
-    if "heat_rate" in r.totals:
-        totals["heat_rate_btu"] = _f(_TOTAL_CONVERT["Btu/kWh"](r.totals["heat_rate"]))
+        if k == "heat_rate":
+            totals["heat_rate_btu"] = _f(_TOTAL_CONVERT["Btu/kWh"](v))
     return {
         "converged": bool(r.converged),
         "model": r.model_name,
