@@ -20,7 +20,7 @@ from pathlib import Path
 from .errors import InputError
 from .model import Model, load_model
 from .reading import Problems, TableReader, load_toml
-from .steam import BACKENDS, P_MAX
+from .steam import BACKENDS, P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, get_backend
 from .units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
@@ -124,12 +124,27 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
     for k in flows[1:]:
         op.raw(k)
     governing = op.string("governing", default="sliding", choices=GOVERNING)
-    p_T = op.quantity("throttle_pressure", "pressure", default=None, positive=True, hi=P_MAX)
-    T_T = op.quantity("throttle_temperature", "temperature", default=None, lo=273.15,
-                      hi=1073.15)
-    T_rh = op.quantity("reheat_temperature", "temperature", default=None, lo=273.15, hi=1073.15)
-    p_x = op.quantity("exhaust_pressure", "pressure", default=None, positive=True, hi=P_MAX)
-    op.finish()
+    if1997 = "the validity range of IAPWS-IF97"
+    p_T = op.quantity("throttle_pressure", "pressure", default=None, lo=P_MIN,
+                      hi=model.throttle.max_pressure,
+                      reason="the model's highest allowed throttle pressure, [throttle] "
+                             "max_pressure")
+    T_T = op.quantity("throttle_temperature", "temperature", default=None, lo=T_MIN, hi=T_MAX,
+                      reason=if1997)
+    T_rh = op.quantity("reheat_temperature", "temperature", default=None, lo=T_MIN, hi=T_MAX,
+                       reason=if1997)
+    p_x = op.quantity("exhaust_pressure", "pressure", default=None, lo=P_MIN, hi=P_MAX,
+                      reason=if1997 + ", which ends at the triple point")
+    op.finish(also_valid=OPERATION_KEYS)
+    if governing == "throttle" and T_T is not None and (p_T is not None or "throttle_pressure"
+                                                          not in op.data):
+        p_held = p_T if p_T is not None else model.throttle.pressure
+        T_sat = 647.096 if p_held >= P_CRIT else get_backend().T_sat(p_held)
+        if T_T <= T_sat:
+            problems.add(op.where.child("throttle_temperature").error(
+                f"{T_T - 273.15:.1f} degC is not above the saturation temperature "
+                f"{T_sat - 273.15:.1f} degC at the held throttle pressure {p_held / 1e5:.5g} bar: "
+                f"the turbine would receive water, not steam"))
     if p_T is not None and governing == "sliding":
         problems.add(op.where.child("throttle_pressure").error(
             "a held throttle pressure needs governing = 'throttle'; with sliding pressure the "

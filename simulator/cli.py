@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 import traceback
 
@@ -129,6 +130,12 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("partload: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into a reader that stopped early (| head)
+        try:
+            sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - silence the final flush
+        except OSError:
+            pass
+        return 0
 
 
 if __name__ == "__main__":

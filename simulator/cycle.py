@@ -259,7 +259,8 @@ class FeedwaterMarch:
                     states[name] = HeaterState(name, False, self.heaters[name].kind,
                                                m_water=mw, h_in=hw, h_out=hw)
                     continue
-                hs = HeaterState(name, True, self.heaters[name].kind, bleed=bleed[k], shell_pressure=p_sh[k],
+                hs = HeaterState(name, True, self.heaters[name].kind, bleed=bleed[k],
+                                 shell_pressure=p_sh[k],
                                  h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
                                  h_bleed=h_node[self._ext_node[k]],
                                  m_water=through[s_of[k]],

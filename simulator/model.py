@@ -38,16 +38,19 @@ from .components import (
     ThrottleValve,
 )
 from .errors import InputError, PartloadError, TopologyError
+from .limits import Limits, default_limits, read_limits
 from .physics.efficiency import CORRECTIONS, make_table_correction
 from .physics.ellipse import flow_constant
 from .physics.heater import design_ua
 from .reading import Problems, TableReader, load_toml
-from .steam import P_MAX, SteamTables, get_backend
+from .steam import P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
 from .units import Where, parse
 
 __all__ = ["Model", "ThrottleDesign", "load_model", "build_model"]
 
 EXTRACTION_CONTROLS = ("fraction", "flow", "closed", "heater")
+IF97 = "the validity range of IAPWS-IF97"
+T_CRIT = 647.096  # [K] critical temperature, IAPWS R7-97(2012) eq. (1) constants
 HEATER_KINDS = ("closed", "deaerator")
 TTD_METHODS = ("constant", "ua")
 
@@ -89,7 +92,7 @@ class Model:
     design_enthalpy: dict[str, float] = field(default_factory=dict)
     design_group_flow: dict[str, float] = field(default_factory=dict)
     stated_output: float | None = None
-    limits: dict = field(default_factory=dict)
+    limits: Limits = field(default_factory=default_limits)
 
     @property
     def source(self) -> str:
@@ -128,7 +131,56 @@ def _curve(reader: TableReader, key_x: str, dim_x: str, key_y: str, dim_y: str):
     if any(b <= a for a, b in zip(xv, xv[1:])):
         reader.problems.add(w.child(key_x).error("values must increase"))
         return None, None
+    if xv[0] <= 0.0:
+        reader.problems.add(w.child(key_x).error(f"values must be positive, got {xs[0]!r}"))
+        return None, None
+    if min(yv) < 0.0:
+        reader.problems.add(w.child(key_y).error(
+            f"values must not be negative, got {ys[yv.index(min(yv))]!r}"))
+        return None, None
     return xv, yv
+
+
+def _ratio_list(reader: TableReader, key: str) -> list[float] | None:
+    """A list of two or more positive plain numbers (ratios) [-]."""
+    values = reader.raw(key)
+    if values is None:
+        return None
+    w = reader.where.child(key)
+    if (not isinstance(values, list) or len(values) < 2
+            or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values)):
+        reader.problems.add(w.error(f"expected a list of two or more numbers, got {values!r}"))
+        return None
+    bad = [v for v in values if not (v > 0.0 and v < float("inf"))]
+    if bad:
+        reader.problems.add(w.error(f"ratios must be positive and finite, got {bad[0]!r}"))
+        return None
+    return [float(v) for v in values]
+
+
+def _correction_table(tr: TableReader, eta: float | None):
+    """Read a stage group's ``correction_table``; ``None`` when it is wrong."""
+    qs = _ratio_list(tr, "volume_flow_ratio")
+    es = _ratio_list(tr, "efficiency_ratio")
+    tr.finish()
+    if qs is None or es is None:
+        return None
+    if len(qs) != len(es):
+        tr.problems.add(tr.where.child("efficiency_ratio").error(
+            f"{len(es)} efficiency ratios for {len(qs)} volume-flow ratios; give one each"))
+        return None
+    if any(b <= a for a, b in zip(qs, qs[1:])):
+        tr.problems.add(tr.where.child("volume_flow_ratio").error("values must increase"))
+        return None
+    if eta is not None and eta * max(es) > 1.0:
+        tr.problems.add(tr.where.child("efficiency_ratio").error(
+            f"the largest ratio {max(es):g} times the design efficiency {eta:g} exceeds 1"))
+        return None
+    try:
+        return make_table_correction(qs, es)
+    except (ValueError, TypeError) as exc:
+        tr.problems.add(tr.where.error(str(exc)))
+        return None
 
 
 def build_model(data: dict, text: str = "", file: str = "<model>",
@@ -156,11 +208,16 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     if "throttle" not in data:
         problems.add(Where(file, "throttle").error("missing required table"))
     t_node = th.string("node")
-    t_p = th.quantity("pressure", "pressure", positive=True, hi=P_MAX)
-    t_T = th.quantity("temperature", "temperature", lo=273.15, hi=1073.15)
+    t_p = th.quantity("pressure", "pressure", lo=P_MIN, hi=P_MAX, reason=IF97)
+    t_T = th.quantity("temperature", "temperature", lo=T_MIN, hi=T_MAX, reason=IF97)
     t_m = th.quantity("flow", "mass_flow", positive=True)
-    t_pmax = th.quantity("max_pressure", "pressure", default=None, positive=True, hi=P_MAX)
+    t_pmax = th.quantity("max_pressure", "pressure", default=None, lo=P_MIN, hi=P_MAX,
+                         reason=IF97)
     th.finish()
+    if t_p is not None and t_pmax is not None and t_pmax < t_p:
+        problems.add(th.where.child("max_pressure").error(
+            f"the highest allowed throttle pressure ({t_pmax / 1e5:.5g} bar) is below the "
+            f"design throttle pressure ({t_p / 1e5:.5g} bar)"))
 
     # --- nodes -------------------------------------------------------------------
     nodes_r = reader(top.raw("nodes", {}), "nodes")
@@ -169,7 +226,8 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
                                                 "of every node"))
     design_p: dict[str, float] = {}
     for key in list(nodes_r.data):
-        v = nodes_r.quantity(key, "pressure", positive=True, hi=P_MAX)
+        v = nodes_r.quantity(key, "pressure", lo=P_MIN, hi=P_MAX,
+                             reason=IF97 + ", which ends at the triple point and 1000 bar")
         if v is not None:
             design_p[key] = v
     if t_node and t_p and t_node not in design_p:
@@ -225,13 +283,7 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
         corr = CORRECTIONS.get(cname or "constant", CORRECTIONS["constant"])
         if cname == "table":
             tr = reader(gr.raw("correction_table"), f"{gr.where.table}.correction_table")
-            qs = tr.raw("volume_flow_ratio")
-            es = tr.raw("efficiency_ratio")
-            tr.finish()
-            try:
-                corr = make_table_correction(qs, es)
-            except (ValueError, TypeError) as exc:
-                problems.add(tr.where.error(str(exc)))
+            corr = _correction_table(tr, eta) or corr
         alpha = gr.number("moisture_factor", default=1.0, lo=0.0, hi=3.0)
         dflow = gr.quantity("design_flow", "mass_flow", default=None, positive=True)
         exhaust = None
@@ -257,7 +309,8 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
                 rr.where = Where(file, f"{kind} '{rname}'", None)
             r_from = rr.string("from")
             r_to = rr.string("to")
-            T_out = (rr.quantity("outlet_temperature", "temperature", lo=273.15, hi=1073.15)
+            T_out = (rr.quantity("outlet_temperature", "temperature", lo=T_MIN, hi=T_MAX,
+                                 reason=IF97)
                      if kind == "reheater" else None)
             rr.finish()
             if None in (rname, r_from, r_to) or (kind == "reheater" and T_out is None):
@@ -291,6 +344,10 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     load_loss = gen.quantity("load_loss", "power", default=0.0, lo=0.0)
     stated_output = gen.quantity("design_output", "power", default=None, positive=True)
     gen.finish()
+    if rating and None not in (mech, fixed, load_loss) and mech + fixed + load_loss >= rating:
+        problems.add(gen.where.child("mechanical_loss").error(
+            f"the losses (mechanical {mech / 1e6:.4g} MW, fixed {fixed / 1e6:.4g} MW, load "
+            f"{load_loss / 1e6:.4g} MW) add up to the rating {rating / 1e6:.4g} MW or more"))
 
     # --- heaters, pumps and feedwater -------------------------------------------
     heaters: dict[str, Heater] = {}
@@ -347,7 +404,7 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
             problems.add(fw.where.child("train").error("expected a list of heater and pump "
                                                        "names in water-flow order"))
             order = []
-        bdp = fw.quantity("boiler_pressure_drop", "pressure", default=0.0, lo=0.0)
+        bdp = fw.quantity("boiler_pressure_drop", "pressure_difference", default=0.0)
         fw.finish()
         for j, item in enumerate(order):
             if item not in heaters and item not in pumps:
@@ -356,7 +413,17 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
         if cond:
             feedwater = FeedwaterTrain(cond, list(order), Boiler(bdp or 0.0, t_m or 1.0))
 
-    limits = top.raw("limits", {})
+    if t_p is not None and t_T is not None:
+        _check_superheated(problems, steam, th.where.child("temperature"), t_T, t_p,
+                           "the throttle temperature")
+    for path in paths:
+        if path.is_reheater and path.outlet in design_p:
+            _check_superheated(problems, steam,
+                               Where(file, f"reheater '{path.name}'", "outlet_temperature"),
+                               path.outlet_temperature, design_p[path.outlet],
+                               "the reheater outlet temperature")
+
+    limits = read_limits(reader(top.raw("limits", {}), "limits"))
     top.finish(also_valid=("about", "throttle", "nodes", "exhaust", "throttle_valve",
                            "stage_group", "reheater", "pipe", "extraction", "generator",
                            "heater", "pump", "feedwater", "limits"))
@@ -371,9 +438,26 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     model = Model(name, description or "", file, text, hashlib.sha256(text.encode()).hexdigest(),
                   graph, list(nx.topological_sort(graph)), design_p, throttle, valve, groups,
                   paths, extractions, list(exhaust_nodes), generator, heaters, pumps, feedwater,
-                  stated_output=stated_output, limits=limits if isinstance(limits, dict) else {})
+                  stated_output=stated_output, limits=limits)
     _calibrate(model, v_wo, steam)
     return model
+
+
+def _check_superheated(problems: Problems, steam: SteamTables, where: Where, T: float,
+                       p: float, what: str) -> None:
+    """Record a problem unless ``(p, T)`` is superheated (or supercritical) steam.
+
+    A state given by pressure [Pa] and temperature [K] is steam only above the
+    saturation temperature (above the critical temperature at supercritical
+    pressure); below it, it is water, which no stage group can expand.
+    """
+    T_sat = T_CRIT if p >= P_CRIT else steam.T_sat(p)
+    if T <= T_sat:
+        problems.add(where.error(
+            f"{what} {T - 273.15:.1f} degC is not above the "
+            f"{'critical' if p >= P_CRIT else 'saturation'} temperature "
+            f"{T_sat - 273.15:.1f} degC at the design pressure {p / 1e5:.5g} bar there: the "
+            f"steam would be water; the turbine needs superheated steam at this point"))
 
 
 def _build_graph(file, design_p, throttle, valve, groups, paths, extractions, exhaust_nodes,
@@ -419,13 +503,16 @@ def _build_graph(file, design_p, throttle, valve, groups, paths, extractions, ex
                 f"design pressure must fall from {a!r} ({design_p[a] / 1e5:.5g} bar) to "
                 f"{b!r} ({design_p[b] / 1e5:.5g} bar)", file=file, table=table, key="to"))
         g.add_edge(a, b, component=comp)
-    if problems:
-        return g
     if not nx.is_directed_acyclic_graph(g):
         cycle = nx.find_cycle(g)
-        comps = [g.edges[e]["component"].name for e in cycle]
-        raise TopologyError(f"the components {', '.join(comps)} form a loop; steam must flow "
-                            f"from the throttle to the exhaust", file=file, table="stage_group")
+        comps = [g.edges[e]["component"] for e in cycle]
+        first = next((t for c, t, _a, _b in edges if c is comps[0]), "stage_group")
+        problems.add(TopologyError(
+            f"the components {', '.join(repr(c.name) for c in comps)} form a loop "
+            f"({' -> '.join([cycle[0][0]] + [e[1] for e in cycle])}); steam must flow from "
+            f"the throttle to the exhaust", file=file, table=first, key="to"))
+    if problems:
+        return g
     if g.in_degree(throttle.node):
         problems.add(TopologyError("the throttle node must not have components flowing into it",
                                    file=file, table="throttle", key="node"))
@@ -543,6 +630,7 @@ def _calibrate(model: Model, wide_open_fraction: float | None, steam: SteamTable
     h: dict[str, float] = {}
     src = model.source
     m_in[src] = model.throttle.flow
+    at = ("throttle", "temperature")  # where the march is, for the error message
     try:
         h[src] = steam.h_pT(p[src], model.throttle.temperature)
         for n in model.order:
@@ -571,6 +659,7 @@ def _calibrate(model: Model, wide_open_fraction: float | None, steam: SteamTable
                     file=file, table=f"stage_group '{(given or outs)[0].name}'",
                     key="design_flow")
             for c in outs:
+                at = _table_of(c)
                 m = c.design_flow if c in given else rest / len(free)
                 model.design_group_flow[c.name] = m
                 h_out = _calibrate_component(c, m, p[c.inlet], h[n], p[c.outlet], steam,
@@ -580,11 +669,55 @@ def _calibrate(model: Model, wide_open_fraction: float | None, steam: SteamTable
     except PartloadError as exc:
         if isinstance(exc, InputError):
             raise
-        raise InputError(f"the design heat balance cannot be evaluated: {exc}", file=file) \
-            from None
+        raise InputError(f"the design heat balance cannot be evaluated here: {exc}; check the "
+                         f"design pressures and temperatures of this part of the steam path",
+                         file=file, table=at[0], key=at[1]) from None
     model.design_enthalpy = h
     if model.feedwater is not None and model.heaters:
-        _calibrate_heaters(model, steam)
+        try:
+            _calibrate_heaters(model, steam)
+        except PartloadError as exc:
+            if isinstance(exc, InputError):
+                raise
+            raise InputError(f"the design feedwater heat balance cannot be evaluated: {exc}",
+                             file=file, table="feedwater") from None
+    _check_design_annulus(model, steam)
+
+
+def _table_of(c) -> tuple[str, str]:
+    """Table and key of a component in the model file, for error messages."""
+    if isinstance(c, StageGroup):
+        return f"stage_group '{c.name}'", "efficiency"
+    if isinstance(c, ThrottleValve):
+        return "throttle_valve", "to"
+    return f"{'reheater' if c.is_reheater else 'pipe'} '{c.name}'", "to"
+
+
+def _check_design_annulus(model: Model, steam: SteamTables) -> None:
+    """The design annulus velocity of every exhaust group must lie on its loss curve.
+
+    A velocity outside the curve usually means a wrong annulus area (units) or a
+    curve that does not reach the design point; the loss would be held at the
+    curve's end value, silently.
+    """
+    p = model.design_pressure
+    for c in model.groups:
+        if c.exhaust is None:
+            continue
+        m = model.design_group_flow[c.name]
+        h_in = model.design_enthalpy[c.inlet]
+        h_elep = h_in - c.eta_design * c.dh_s_design
+        try:
+            vel = m * steam.v_ph(p[c.outlet], h_elep) / c.exhaust.area
+        except PartloadError:
+            continue  # reported by the calibration already
+        lo, hi = c.exhaust.curve_velocity[0], c.exhaust.curve_velocity[-1]
+        if not lo <= vel <= hi:
+            raise InputError(
+                f"gives an annulus velocity of {vel:.4g} m/s at design, outside the loss "
+                f"curve {c.exhaust.curve_name!r} ({lo:.4g} to {hi:.4g} m/s); check the area "
+                f"and its unit, or extend the curve to the design point",
+                file=model.file, table=f"stage_group '{c.name}'", key="annulus_area")
 
 
 def _calibrate_component(c, m, p_in, h_in, p_out, steam, wide_open_fraction, model) -> float:

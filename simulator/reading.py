@@ -8,13 +8,14 @@ and an unknown key suggests the closest valid one.
 from __future__ import annotations
 
 import difflib
+import math
 import tomllib
 from pathlib import Path
 
 from .errors import InputError
-from .units import Where, parse
+from .units import Where, format_like, parse
 
-__all__ = ["load_toml", "Problems", "TableReader"]
+__all__ = ["load_toml", "Problems", "ProblemList", "TableReader"]
 
 
 def load_toml(path: str | Path) -> tuple[dict, str]:
@@ -49,12 +50,26 @@ class Problems:
             return
         if len(self.items) == 1:
             raise self.items[0]
-        first = self.items[0]
-        text = f"{len(self.items)} problems:\n" + "\n".join(f"  - {e}" for e in self.items)
-        err = InputError(text, file=None)
-        err.file, err.table, err.key = first.file, first.table, first.key
-        err.problems = list(self.items)  # type: ignore[attr-defined]
-        raise err
+        raise ProblemList(self.items)
+
+
+class ProblemList(InputError):
+    """Several problems of one file, raised together.
+
+    ``problems`` holds each :class:`~simulator.errors.InputError`; ``file``,
+    ``table`` and ``key`` are those of the first.  The message names the file
+    once and lists every problem with its own table and key.
+    """
+
+    def __init__(self, problems: list[InputError]):
+        self.problems = list(problems)
+        first = problems[0]
+        text = f"{len(problems)} problems:\n" + "\n".join(f"  - {e}" for e in problems)
+        super().__init__(text, file=first.file, table=first.table, key=first.key)
+
+    def __str__(self) -> str:
+        files = {p.file for p in self.problems}
+        return f"{self.file}: {self.message}" if self.file and len(files) == 1 else self.message
 
 
 _MISSING = object()
@@ -83,7 +98,7 @@ class TableReader:
 
     def raw(self, key: str, default=_MISSING):
         self.seen.add(key)
-        if key in self.data:
+        if self.data.get(key) is not None:  # None (from Python callers) counts as absent
             return self.data[key]
         if default is _MISSING:
             self.problems.add(self.where.child(key).error("missing required key"))
@@ -91,7 +106,31 @@ class TableReader:
         return default
 
     def quantity(self, key: str, dimension: str, default=_MISSING, *, positive: bool = False,
-                 lo: float | None = None, hi: float | None = None):
+                 lo: float | None = None, hi: float | None = None, reason: str = ""):
+        """Read a quantity with a unit and return it in SI units.
+
+        Parameters
+        ----------
+        key
+            The key in this table.
+        dimension
+            One of :data:`simulator.units.DIMENSIONS`.
+        default
+            Returned when the key is absent; without it the key is required.
+        positive
+            The value must be above zero.
+        lo, hi
+            Smallest and largest allowed values [SI unit of ``dimension``].
+        reason
+            Why the bounds are what they are, shown in the message (for
+            example "the validity range of IAPWS-IF97").
+
+        Returns
+        -------
+        float or None
+            The SI value, ``default`` when absent, ``None`` when wrong (the
+            problem is recorded).
+        """
         value = self.raw(key, default)
         if value is None or value is default:
             return value
@@ -104,11 +143,14 @@ class TableReader:
         if positive and not si > 0.0:
             self.problems.add(w.error(f"must be positive, got {value!r}"))
             return None
+        why = f" ({reason})" if reason else ""
         if lo is not None and si < lo:
-            self.problems.add(w.error(f"{value!r} is below the allowed minimum"))
+            self.problems.add(w.error(f"{value!r} is below the allowed minimum "
+                                      f"{format_like(lo, dimension, value)}{why}"))
             return None
         if hi is not None and si > hi:
-            self.problems.add(w.error(f"{value!r} is above the allowed maximum"))
+            self.problems.add(w.error(f"{value!r} is above the allowed maximum "
+                                      f"{format_like(hi, dimension, value)}{why}"))
             return None
         return si
 
@@ -127,6 +169,9 @@ class TableReader:
                     return None
             self.problems.add(w.error(f"expected a number, got {value!r}"))
             return None
+        if not math.isfinite(value):
+            self.problems.add(w.error(f"expected a finite number, got {value!r}"))
+            return None
         return self._check_range(float(value), w, lo, hi, lo_open)
 
     def _check_range(self, x, w, lo, hi, lo_open):
@@ -135,7 +180,9 @@ class TableReader:
                                       f"{'>' if lo_open else '>='} {lo})"))
             return None
         if hi is not None and x > hi:
-            self.problems.add(w.error(f"{x!r} is out of range (must be <= {hi})"))
+            hint = (f"; for {x:g} % write {x / 100:g} or '{x:g} %'"
+                    if hi == 1.0 and 2.0 <= x <= 100.0 else "")
+            self.problems.add(w.error(f"{x!r} is out of range (must be <= {hi}){hint}"))
             return None
         return x
 

@@ -285,7 +285,10 @@ class PointEquations:
 
     # ---------------------------------------------------------------- residuals
     def residuals(self, x: np.ndarray) -> np.ndarray:
-        return self.evaluate(x, detail=False)[0]
+        try:
+            return self.evaluate(x, detail=False)[0]
+        except (ArithmeticError, ValueError) as exc:  # a trial state the laws cannot take
+            raise _Bad(f"the equations cannot be evaluated at a trial point ({exc})") from None
 
     def evaluate(self, x, detail: bool = False):
         """Residuals at ``x``; with ``detail``, also the full state as a dict."""
@@ -476,16 +479,20 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     jac = jacobian if (jacobian is not None and guess is not None and len(guess) == eq.n
                        and np.shape(jacobian) == shape) else None
     try:
-        nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
-                    broyden=broyden)
-    except ConvergenceError:
-        if guess is None and jac is None:
-            raise
-        nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
-                    broyden=broyden)
-    F, st = eq.evaluate(nr.x, detail=True)
-    if check_limits:
-        _check_feasible(model, cond, steam, eq, st)
+        try:
+            nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
+                        broyden=broyden)
+        except ConvergenceError:
+            if guess is None and jac is None:
+                raise
+            nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
+                        broyden=broyden)
+        F, st = eq.evaluate(nr.x, detail=True)
+        _check_physical(model, cond, steam, eq, st)
+        if check_limits:
+            _check_feasible(model, cond, steam, eq, st)
+    except SolveError as exc:
+        raise _with_request(exc, cond, eq) from None
     result = _build_result(model, cond, steam, eq, nr, F, st)
     result.flow_ratio = r
     if scaled is not None and abs(r - neighbour.flow_ratio) > 1e-9:
@@ -493,21 +500,63 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     return result
 
 
-def _check_feasible(model, cond, steam, eq, st):
+def _asked(cond: Conditions, eq: PointEquations) -> str:
+    """The request in plain words, for error messages."""
+    if cond.output is not None:
+        what = f"an output of {cond.output / 1e6:.2f} MW"
+    elif cond.throttle_flow is not None:
+        what = f"a throttle flow of {cond.throttle_flow:.2f} kg/s"
+    else:
+        what = "this point"
+    if cond.governing == "throttle":
+        what += f" at a held throttle pressure of {eq.p_fix[eq.src] / 1e5:.2f} bar"
+    return what
+
+
+def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> SolveError:
+    """The error with its message led by what was asked; a trial-point failure becomes an
+    :class:`InfeasibleError` (the request leaves no state the laws can take)."""
+    asked = _asked(cond, eq)
+    text = str(exc)
+    if isinstance(exc, _Bad):
+        return InfeasibleError(f"{asked} cannot be met: {text} (fixed extraction flows may "
+                               f"take more steam than arrives, or the conditions leave no "
+                               f"steam state)")
+    if not text.startswith((asked, "an output of", "a throttle flow of")):
+        exc.args = (f"{asked}: {text}",)
+    return exc
+
+
+def _check_physical(model, cond, steam, eq, st):
+    """Refuse answers no machine can give, whatever the limit checks: water at the
+    throttle, pressures rising through a stage group, negative bleeds."""
     p = st["p"]
     names = eq.names
-    for kind_list_i, outs in enumerate(eq.outs):
+    p_T = p[eq.src]
+    T_T = eq.T_throttle
+    T_sat = 647.096 if p_T >= 22.064e6 else steam.T_sat(p_T)  # critical point, IAPWS R7-97
+    if T_T <= T_sat:
+        raise InfeasibleError(
+            f"the throttle pressure would be {p_T / 1e5:.2f} bar, where the throttle "
+            f"temperature {T_T - 273.15:.1f} degC is not above the saturation temperature "
+            f"{T_sat - 273.15:.1f} degC: the turbine would receive water, not steam")
+    for i, outs in enumerate(eq.outs):
         for kind, c, j in outs:
-            if kind == 0 and p[j] >= p[kind_list_i]:
+            if kind == 0 and p[j] >= p[i]:
                 raise InfeasibleError(
                     f"no pressure ordering exists for this request: stage group {c.name!r} "
                     f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
-                    f"{names[j]!r}) above its inlet ({p[kind_list_i] / 1e5:.4g} bar); "
+                    f"{names[j]!r}) above its inlet ({p[i] / 1e5:.4g} bar); "
                     f"the exhaust pressure may be too high for this flow")
     for name, m in zip((b[0] for b in eq.bleeds), st["bleed_flow"]):
         if m < -1e-9 * eq.m_design:
             raise InfeasibleError(f"extraction {name!r} would need a negative bleed flow "
                                   f"({m:.4g} kg/s); its heater cannot balance at this point")
+
+
+def _check_feasible(model, cond, steam, eq, st):
+    """Refuse answers beyond the throttle valves or the throttle pressure limit."""
+    p = st["p"]
     src = eq.src
     p_T = p[src]
     after = eq.idx[model.valve.outlet]

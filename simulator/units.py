@@ -16,12 +16,13 @@ states its local atmospheric pressure; absolute units (``bar``, ``bara``,
 from __future__ import annotations
 
 import functools
+import math
 import re
 from dataclasses import dataclass
 
 from .errors import InputError
 
-__all__ = ["Where", "parse", "DIMENSIONS"]
+__all__ = ["Where", "parse", "format_like", "DIMENSIONS"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 _GAUGE = {"barg": "bar", "psig": "psi", "kpag": "kPa", "mpag": "MPa"}
@@ -61,6 +62,7 @@ def _registry():
 # dimension name -> (SI unit, example written in files)
 DIMENSIONS = {
     "pressure": ("Pa", "166 bar"),
+    "pressure_difference": ("Pa", "22 bar"),
     "temperature": ("K", "538 degC"),
     "temperature_difference": ("K", "2.8 K"),
     "mass_flow": ("kg/s", "280 kg/s"),
@@ -71,6 +73,30 @@ DIMENSIONS = {
     "fraction": ("", "3 %"),
     "heat_transfer_coefficient_area": ("W/K", "2.5 MW/K"),
 }
+
+
+def _article(dimension: str) -> str:
+    return "an" if dimension[0] in "aeiou" else "a"
+
+
+def _what_unit(unit: str, dimension: str) -> str:
+    """Say what the user's unit measures, for a wrong-dimension message."""
+    if not unit:
+        return " (no unit)"
+    ureg = _registry()
+    try:
+        q = ureg.Quantity(1.0, unit.replace("^", "**"))
+    except Exception:  # pint raises several types for an unknown unit
+        return f" ({unit!r} is not a unit partload knows)"
+    for name, (si, _example) in DIMENSIONS.items():
+        if name in ("fraction", "temperature_difference", "pressure_difference"):
+            continue
+        try:
+            q.to(si.replace("^", "**"))
+        except Exception:  # not this dimension
+            continue
+        return f", which is {_article(name)} {name.replace('_', ' ')}"
+    return f" ({unit!r} is not a unit of {dimension.replace('_', ' ')})"
 
 
 def _split(text: str, where: Where) -> tuple[float, str]:
@@ -104,17 +130,19 @@ def parse(value, dimension: str, where: Where, atmosphere: float | None = None) 
         raise ValueError(f"unknown dimension {dimension!r}")
     example = DIMENSIONS[dimension][1]
     if isinstance(value, bool):
-        raise where.error(f"expected a {dimension.replace('_', ' ')} such as {example!r}, "
-                          f"got {value!r}")
+        raise where.error(f"expected {_article(dimension)} {dimension.replace('_', ' ')} such "
+                          f"as {example!r}, got {value!r}")
     if isinstance(value, (int, float)):
+        if not math.isfinite(value):
+            raise where.error(f"{value!r} is not a finite number")
         if dimension == "fraction":
             return float(value)
         raise where.error(
             f"a {dimension.replace('_', ' ')} needs a unit, for example {example!r}; "
             f"got the bare number {value!r}")
     if not isinstance(value, str):
-        raise where.error(f"expected a {dimension.replace('_', ' ')} such as {example!r}, "
-                          f"got {value!r}")
+        raise where.error(f"expected {_article(dimension)} {dimension.replace('_', ' ')} such "
+                          f"as {example!r}, got {value!r}")
     number, unit = _split(value, where)
     if dimension == "fraction":
         if unit in ("", "-"):
@@ -142,12 +170,54 @@ def parse(value, dimension: str, where: Where, atmosphere: float | None = None) 
     try:
         q = ureg.Quantity(number, unit.replace("^", "**") if unit else "dimensionless")
         si = q.to(DIMENSIONS[dimension][0].replace("^", "**"))
-    except Exception as exc:  # pint raises several types; all mean the same to the user
+    except Exception:  # pint raises several types; all mean the same to the user
         raise where.error(
-            f"expected a {dimension.replace('_', ' ')} such as {example!r}, got {value!r} "
-            f"({type(exc).__name__}: {exc})") from None
+            f"expected {_article(dimension)} {dimension.replace('_', ' ')} such as {example!r}, "
+            f"got {value!r}{_what_unit(unit, dimension)}") from None
     result = float(si.magnitude)
+    if not math.isfinite(result):
+        raise where.error(f"{value!r} is not a finite number")
     if dimension in ("temperature", "pressure") and result <= 0.0:
         raise where.error(f"{value!r} is not above absolute zero")
+    if dimension == "pressure_difference" and result < 0.0:
+        raise where.error(f"{value!r} is negative; a pressure drop is zero or positive")
     return result
+
+
+def format_like(si: float, dimension: str, value) -> str:
+    """Write the SI number ``si`` in the unit the user wrote ``value`` in.
+
+    Used to state a bound in an error message in the user's own terms, e.g.
+    ``format_like(1073.15, "temperature", "900 degC")`` gives ``"800 degC"``.
+    Falls back to the SI unit when the user's unit is a gauge unit, a bare
+    number or cannot be read.
+
+    Parameters
+    ----------
+    si
+        The value in SI units (see the module docstring).
+    dimension
+        One of :data:`DIMENSIONS`.
+    value
+        What the user wrote, such as ``"900 degC"``.
+
+    Returns
+    -------
+    str
+        The number to four significant figures with a unit.
+    """
+    si_unit = DIMENSIONS[dimension][0]
+    if dimension == "fraction":
+        return f"{si * 100:.4g} %"
+    unit = ""
+    if isinstance(value, str):
+        m = _NUMBER.match(value)
+        unit = m.group(2) if m else ""
+    if unit and unit.lower() not in _GAUGE and dimension != "temperature_difference":
+        try:
+            q = _registry().Quantity(si, si_unit.replace("^", "**")).to(unit.replace("^", "**"))
+            return f"{float(q.magnitude):.4g} {unit}"
+        except Exception:  # pint raises several types; fall back to SI
+            pass
+    return f"{si:.4g} {si_unit}"
 

@@ -1,0 +1,421 @@
+"""Operating-limit cautions: does a solved point describe operation that harms the turbine?
+
+A point can be a correct answer to the question asked and still describe
+operation that damages the machine.  :func:`check_point` compares a solved
+point with the limits of its model (:mod:`simulator.limits`, the model file's
+``[limits]`` table or the defaults) and returns a list of :class:`Caution`.
+
+The checks, in the order they are reported (:data:`CHECKS`):
+
+``valves_wide_open``
+    The throttle flow is more than the valves wide open can pass: at the held
+    throttle pressure (throttle governing) or at the highest allowed throttle
+    pressure (sliding pressure).  :func:`simulator.solve.solve_point` refuses
+    such points unless called with ``check_limits=False``, as batch studies
+    may do to record what-ifs; this caution marks them.
+``pressure_rise``
+    A node pressure more than ``max_pressure_rise`` above its design value
+    (the throttle node, bounded by the model's highest allowed throttle
+    pressure, and the exhaust nodes, set by the condenser, are not checked).
+``exhaust_moisture``
+    Moisture at the exit of a last stage (a stage group ending at an exhaust
+    node) above ``max_exhaust_moisture``.
+``last_stage_volume_flow``
+    Volume flow leaving a last stage below ``min_last_stage_volume_flow`` of
+    its design value.
+``exhaust_temperature``
+    Temperature of the steam leaving a last-stage annulus (the used-energy end
+    point at the exhaust pressure) above ``max_exhaust_temperature``.
+
+Each check gives at most one caution per point, for the worst location, and
+names the other locations beyond the limit in its message; so a point has at
+most one caution of each code, which keeps stored results rectangular.
+
+Every caution is an engineering estimate from a performance model, not a
+measurement; the manufacturer's limits govern, and every message says so.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from .case import Conditions
+from .errors import PartloadError, SolveError
+from .limits import Limits, default_limits
+from .model import Model
+from .solve import PointResult, _wide_open
+from .steam import SteamTables, get_backend
+
+__all__ = ["Caution", "check_point", "CHECKS", "CAUTION_CODES", "DEFERENCE",
+           "last_groups", "last_stage_state", "design_last_stage_volume_flow"]
+
+DEFERENCE = "Engineering estimate; the manufacturer's limits govern."
+
+
+@dataclass(frozen=True)
+class Caution:
+    """One operating limit exceeded at one point.
+
+    Attributes
+    ----------
+    code
+        Which check fired, a key of :data:`CHECKS`.
+    message
+        Plain words: what, how much against the limit, where, why it matters,
+        and that it is an engineering estimate.
+    value
+        The checked quantity at its worst location [``unit``].
+    limit
+        The limit it is checked against [``unit``]; NaN when it could not be
+        evaluated.
+    where
+        The node, stage group or component of the worst location.
+    unit
+        SI unit of ``value`` and ``limit``: ``"-"`` for fractions, ``"K"``,
+        ``"kg/s"``.
+    """
+
+    code: str
+    message: str
+    value: float
+    limit: float
+    where: str
+    unit: str
+
+    def to_dict(self) -> dict:
+        """A JSON-ready dict (NaN becomes ``None``)."""
+        def plain(v: float) -> float | None:
+            v = float(v)
+            return None if math.isnan(v) else v
+
+        return {"code": self.code, "message": self.message, "value": plain(self.value),
+                "limit": plain(self.limit), "unit": self.unit, "where": self.where}
+
+
+@dataclass
+class _Point:
+    """What every check needs: the model, the request, the answer, properties."""
+
+    model: Model
+    cond: Conditions
+    result: PointResult
+    steam: SteamTables
+    limits: Limits
+
+    def node_index(self, name: str) -> int:
+        return self.result.node_names.index(name)
+
+    def limit_text(self, name: str, shown: str) -> str:
+        return f"limit {shown}, {self.limits.source(name)}"
+
+
+def _pct(x: float) -> str:
+    return f"{x * 100:.1f} %"
+
+
+def _degc(T: float) -> str:
+    return f"{T - 273.15:.1f} degC"
+
+
+def _others(items: list[tuple[str, str]], shown: int = 3) -> str:
+    """``"; also a (1 %), b (2 %) and 4 more"`` for further locations beyond a limit."""
+    if not items:
+        return ""
+    text = "; also " + ", ".join(f"{w} ({v})" for w, v in items[:shown])
+    if len(items) > shown:
+        text += f" and {len(items) - shown} more"
+    return text
+
+
+def last_groups(model: Model) -> list[int]:
+    """Indices into ``model.groups`` [-] of the stage groups that end at an exhaust node."""
+    ends = set(model.exhaust_nodes)
+    return [k for k, c in enumerate(model.groups) if c.outlet in ends]
+
+
+def last_stage_state(model: Model, result: PointResult, k: int,
+                     steam: SteamTables) -> tuple[float, float, float]:
+    """Flow, volume flow and used-energy end point leaving stage group ``k`` at a point.
+
+    Taken from the point result: the used-energy end point (UEEP) from the
+    group's power, ``h_used = h_in - P / m``; the volume flow at the
+    expansion-line end point from the annulus velocity, ``q = V A``, when the
+    group has an annulus, else ``q = m v(p_out, h_used)`` (no exhaust loss, so
+    the two end points coincide).
+
+    Parameters
+    ----------
+    model
+        The model the point was solved with.
+    result
+        The solved point.
+    k
+        Index of the stage group in ``model.groups`` [-].
+    steam
+        Property backend.
+
+    Returns
+    -------
+    tuple of float
+        ``(m, q, h_used)``: mass flow [kg/s], volume flow [m^3/s], UEEP
+        enthalpy [J/kg].
+    """
+    c = model.groups[k]
+    names = result.node_names
+    m = float(result.group_flow[k])
+    h_in = float(result.node_h[names.index(c.inlet)])
+    h_used = h_in - float(result.group_power[k]) / m if m > 0.0 else h_in
+    if c.exhaust is not None:
+        q = float(result.group_velocity[k]) * c.exhaust.area
+    else:
+        q = m * steam.v_ph(float(result.node_p[names.index(c.outlet)]), h_used)
+    return m, q, h_used
+
+
+def design_last_stage_volume_flow(model: Model, k: int, steam: SteamTables) -> float:
+    """Design volume flow leaving stage group ``k`` at its expansion-line end point.
+
+    From the calibration: the design flow of the group, the design inlet
+    enthalpy, and the stated design efficiency, which is the effective (wet)
+    efficiency at design, so ``h_ELEP = h_in - eta_design dh_s_design``.
+
+    Parameters
+    ----------
+    model
+        A calibrated model.
+    k
+        Index of the stage group in ``model.groups`` [-].
+    steam
+        Property backend.
+
+    Returns
+    -------
+    float
+        Design volume flow [m^3/s].
+    """
+    c = model.groups[k]
+    h_elep = model.design_enthalpy[c.inlet] - c.eta_design * c.dh_s_design
+    return model.design_group_flow[c.name] * steam.v_ph(model.design_pressure[c.outlet], h_elep)
+
+
+# --------------------------------------------------------------------- checks
+def _valves_wide_open(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    t = r.totals
+    m_T = t["throttle_flow"]
+    p_T = t["throttle_pressure"]
+    if r.governing == "throttle":
+        i = pt.node_index(model.source)
+        v = pt.steam.v_ph(p_T, float(r.node_h[i]))
+        needed = model.valve.wide_open_drop(m_T, v)
+        if t["valve_pressure_drop"] >= needed * (1.0 - 1e-9) - 1e-6:
+            return None
+        p_at = p_T
+        at = f"the held throttle pressure {p_T / 1e5:.2f} bar"
+        why = (f"the valves would need a pressure drop of {needed / 1e5:.3g} bar wide open "
+               f"but only {t['valve_pressure_drop'] / 1e5:.3g} bar is available")
+    else:
+        p_max = model.throttle.max_pressure
+        if p_T <= p_max * (1.0 + 1e-9):
+            return None
+        p_at = p_max
+        at = f"the highest allowed throttle pressure {p_max / 1e5:.2f} bar"
+        why = f"this answer needs a throttle pressure of {p_T / 1e5:.2f} bar"
+    try:
+        m_max = _wide_open(model, pt.cond, pt.steam, p_at)[0]
+        cap = f" ({m_max:.2f} kg/s)"
+    except SolveError:
+        m_max, cap = math.nan, ""
+    return Caution(
+        "valves_wide_open",
+        f"Throttle flow {m_T:.2f} kg/s is more than the valves wide open can pass at {at}"
+        f"{cap}: {why}. The machine cannot take this flow; the point was solved with the "
+        f"limit checks off and shows a what-if. {DEFERENCE}",
+        m_T, m_max, model.valve.name, "kg/s")
+
+
+def _pressure_rise(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    name = "max_pressure_rise"
+    lim = pt.limits[name]
+    skip = set(model.exhaust_nodes) | {model.source}
+    over = []
+    for i, n in enumerate(r.node_names):
+        if n in skip:
+            continue
+        rise = float(r.node_p[i]) / model.design_pressure[n] - 1.0
+        if rise > lim:
+            over.append((rise, n, float(r.node_p[i])))
+    if not over:
+        return None
+    over.sort(reverse=True)
+    rise, n, p = over[0]
+    return Caution(
+        "pressure_rise",
+        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
+        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
+        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {_rise_cause(pt, n)} "
+        f"{DEFERENCE}",
+        rise, lim, n, "-")
+
+
+def _groups_after(model: Model, node: str) -> list[int]:
+    """Indices of the stage groups fed by ``node``, through a reheater or pipe if need be."""
+    g = model.graph
+    seen, todo, found = set(), [node], []
+    names = {c.name: k for k, c in enumerate(model.groups)}
+    while todo:
+        n = todo.pop()
+        for succ in g.successors(n):
+            c = g.edges[n, succ]["component"]
+            if c.name in names:
+                found.append(names[c.name])
+            elif succ not in seen:
+                seen.add(succ)
+                todo.append(succ)
+    return found
+
+
+def _rise_cause(pt: _Point, node: str) -> str:
+    """Why the pressure at ``node`` is high, judged by the flow of the groups after it."""
+    r, model = pt.result, pt.model
+    ratios = [(float(r.group_flow[k]) / model.design_group_flow[model.groups[k].name],
+               model.groups[k].name) for k in _groups_after(model, node)]
+    ratio, g = max(ratios) if ratios else (math.nan, "")
+    if ratio > 1.0:
+        return (f"stage overload. Group {g!r} after it carries {_pct(ratio - 1.0)} more steam "
+                f"than at design (typically behind a closed extraction or a heater out of "
+                f"service, or at a throttle flow above design), raising blade loading and "
+                f"thrust; extraction lines and heater shells at this node see more than their "
+                f"design pressure.")
+    ex = model.exhaust_nodes[0]
+    p_ex = float(r.node_p[pt.node_index(ex)])
+    p_ex_d = model.design_pressure[ex]
+    back = (f" the exhaust pressure ({p_ex / 1e3:.3g} kPa against {p_ex_d / 1e3:.3g} kPa at "
+            f"design) or" if p_ex > p_ex_d * 1.001 else "")
+    return (f"the stage groups after it carry no more than their design flow, so this is not a "
+            f"stage overload; the rise comes from{back} hotter steam further on. Extraction "
+            f"lines and heater shells at this node see more than their design pressure.")
+
+
+def _exhaust_moisture(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    name = "max_exhaust_moisture"
+    lim = pt.limits[name]
+    over = sorted(((float(r.group_moisture_out[k]), model.groups[k].name)
+                   for k in last_groups(model)
+                   if float(r.group_moisture_out[k]) > lim), reverse=True)
+    if not over:
+        return None
+    y, g = over[0]
+    return Caution(
+        "exhaust_moisture",
+        f"Moisture leaving the last stage of group {g!r} is {_pct(y)} "
+        f"({pt.limit_text(name, _pct(lim))}){_others([(o[1], _pct(o[0])) for o in over[1:]])}"
+        f": water droplets erode the leading edges of the last moving blades, and the wet "
+        f"expansion costs efficiency. {DEFERENCE}",
+        y, lim, g, "-")
+
+
+def _last_stage_volume_flow(pt: _Point) -> Caution | None:
+    model = pt.model
+    name = "min_last_stage_volume_flow"
+    lim = pt.limits[name]
+    low = []
+    for k in last_groups(model):
+        _m, q, _h = last_stage_state(model, pt.result, k, pt.steam)
+        q_d = design_last_stage_volume_flow(model, k, pt.steam)
+        ratio = q / q_d
+        if ratio < lim:
+            low.append((ratio, model.groups[k].name, q, q_d))
+    if not low:
+        return None
+    low.sort()
+    ratio, g, q, q_d = low[0]
+    return Caution(
+        "last_stage_volume_flow",
+        f"Volume flow leaving the last stage of group {g!r} is {q:.4g} m^3/s, {_pct(ratio)} "
+        f"of its design {q_d:.4g} m^3/s ({pt.limit_text(name, _pct(lim))})"
+        f"{_others([(o[1], _pct(o[0])) for o in low[1:]])}: at such low volume flow the last "
+        f"stages stop expanding the steam and churn it instead (ventilation), heating the "
+        f"blades and the exhaust, and the unsteady flow can make long last-stage blades "
+        f"vibrate. {DEFERENCE}",
+        ratio, lim, g, "-")
+
+
+def _exhaust_temperature(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    name = "max_exhaust_temperature"
+    lim = pt.limits[name]
+    hot = []
+    for k in last_groups(model):
+        c = model.groups[k]
+        if c.exhaust is None:  # a back-pressure exhaust is hot by design
+            continue
+        _m, _q, h_used = last_stage_state(model, r, k, pt.steam)
+        try:
+            T = pt.steam.T_ph(float(r.node_p[pt.node_index(c.outlet)]), h_used)
+        except PartloadError:
+            continue
+        if T > lim:
+            hot.append((T, c.name))
+    if not hot:
+        return None
+    hot.sort(reverse=True)
+    T, g = hot[0]
+    return Caution(
+        "exhaust_temperature",
+        f"Steam leaves the last stage of group {g!r} at {_degc(T)} "
+        f"({pt.limit_text(name, _degc(lim))}){_others([(o[1], _degc(o[0])) for o in hot[1:]])}"
+        f": the last stages heat the steam they churn at low volume flow or high back "
+        f"pressure; the exhaust hood and last-stage blades expand, which threatens "
+        f"clearances and alignment. Exhaust-hood sprays are normally needed here. "
+        f"{DEFERENCE}",
+        T, lim, g, "K")
+
+
+CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
+    "valves_wide_open": _valves_wide_open,
+    "pressure_rise": _pressure_rise,
+    "exhaust_moisture": _exhaust_moisture,
+    "last_stage_volume_flow": _last_stage_volume_flow,
+    "exhaust_temperature": _exhaust_temperature,
+}
+"""The checks by caution code, in the order their cautions are reported."""
+
+CAUTION_CODES: tuple[str, ...] = tuple(CHECKS)
+
+
+def check_point(model: Model, cond: Conditions, result: PointResult,
+                steam: SteamTables | None = None) -> list[Caution]:
+    """Check a solved point against the operating limits of its model.
+
+    Parameters
+    ----------
+    model
+        The calibrated model the point was solved with; its ``limits`` hold
+        the model file's ``[limits]`` or the defaults.
+    cond
+        The conditions the point was solved for.
+    result
+        The solved point.
+    steam
+        Property backend; default the one the point was solved with.
+
+    Returns
+    -------
+    list of Caution
+        At most one per code of :data:`CHECKS`, in that order; empty when the
+        point is within every limit.
+    """
+    steam = steam or get_backend(result.backend)
+    limits = model.limits if isinstance(model.limits, Limits) else default_limits()
+    pt = _Point(model, cond, result, steam, limits)
+    found = []
+    for check in CHECKS.values():
+        caution = check(pt)
+        if caution is not None:
+            found.append(caution)
+    return found

@@ -1,0 +1,177 @@
+"""Operating limits of a turbine model: the ``[limits]`` table of a model file.
+
+Each point the solver answers is checked against these limits by
+:mod:`simulator.cautions`.  A model file may state its own values, the
+manufacturer's where they are known::
+
+    [limits]
+    max_exhaust_moisture = "12 %"           # at the last-stage exit (ELEP)
+    min_last_stage_volume_flow = "30 %"     # of the design volume flow
+    max_pressure_rise = "5 %"               # any node above its design pressure
+    max_exhaust_temperature = "80 degC"     # steam leaving a last-stage annulus
+
+Keys left out take the defaults below.  The defaults are common practice of
+the trade, not taken from a published source or from any one manufacturer;
+they are marked so wherever they are shown.  A manufacturer's limits always
+take precedence.
+
+Defaults and why
+    ``max_exhaust_moisture`` 12 %
+        Above about 12 % moisture at the last-stage exit, erosion of the
+        leading edges of the last moving blades by water droplets becomes a
+        concern (common practice, no source).
+    ``min_last_stage_volume_flow`` 30 % of design
+        Below about 30 % of design volume flow the last stages stop expanding
+        steam and churn it instead (ventilation): the steam and the blades
+        heat up, and long last-stage blades may be excited to vibrate by
+        the unsteady flow (common practice, no source).
+    ``max_pressure_rise`` 5 % above design
+        A stage pressure more than about 5 % above its design value means
+        more steam than designed passes the groups downstream of it, for
+        example behind a closed extraction: stage overload, higher blade
+        loading and thrust, extraction lines and heater shells above their
+        design pressure (common practice, no source).
+    ``max_exhaust_temperature`` 80 degC
+        Chosen as the temperature at which exhaust-hood water sprays commonly
+        start: beyond it an operating point relies on protective equipment,
+        which a planner should know.  Alarm and trip settings are usually
+        higher, about 100-120 degC, and too late to plan by (common practice,
+        no source).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
+
+from .reading import TableReader
+from .steam import T_MAX, T_MIN
+from .units import Where, parse
+
+__all__ = ["LimitSpec", "LIMITS", "Limits", "read_limits", "default_limits",
+           "DEFAULT_SOURCE"]
+
+DEFAULT_SOURCE = "common practice, no source"
+
+
+@dataclass(frozen=True)
+class LimitSpec:
+    """One configurable operating limit.
+
+    Attributes
+    ----------
+    name
+        Key in the ``[limits]`` table.
+    dimension
+        Dimension of the value (see :data:`simulator.units.DIMENSIONS`).
+    default
+        Default as written in a file, e.g. ``"12 %"``.
+    lo, hi
+        Range a stated value must lie in [SI unit of ``dimension``]; ``lo`` is
+        exclusive, ``hi`` inclusive.
+    meaning
+        What the limit bounds, in plain words.
+    source
+        Where the default comes from.
+    """
+
+    name: str
+    dimension: str
+    default: str
+    lo: float
+    hi: float
+    meaning: str
+    source: str = DEFAULT_SOURCE
+
+    @property
+    def default_si(self) -> float:
+        """The default in SI units [SI unit of ``dimension``]."""
+        return parse(self.default, self.dimension, Where(key=self.name))
+
+
+LIMITS: dict[str, LimitSpec] = {spec.name: spec for spec in (
+    LimitSpec("max_exhaust_moisture", "fraction", "12 %", 0.0, 0.5,
+              "largest moisture at the exit of a last stage (expansion-line end point) [-]"),
+    LimitSpec("min_last_stage_volume_flow", "fraction", "30 %", 0.0, 1.0,
+              "smallest volume flow leaving a last stage, over its design value [-]"),
+    LimitSpec("max_pressure_rise", "fraction", "5 %", 0.0, 1.0,
+              "largest rise of a node pressure above its design value, over that value [-]"),
+    LimitSpec("max_exhaust_temperature", "temperature", "80 degC", T_MIN, T_MAX,
+              "highest temperature of the steam leaving a last-stage annulus [K]"),
+)}
+
+
+class Limits(Mapping):
+    """The operating limits of one model: a read-only mapping name -> SI value.
+
+    Every name of :data:`LIMITS` is present; those the model file did not state
+    hold their defaults.
+
+    Parameters
+    ----------
+    values
+        Stated limits by name [SI units]; missing names take the default.
+    given
+        Names stated in the model file.
+    """
+
+    def __init__(self, values: Mapping[str, float] | None = None,
+                 given: frozenset[str] = frozenset()):
+        stated = dict(values or {})
+        unknown = set(stated) - set(LIMITS)
+        if unknown:  # a bug in the caller, not a user mistake
+            raise ValueError(f"unknown limits {sorted(unknown)}")
+        self._values = {name: float(stated.get(name, spec.default_si))
+                        for name, spec in LIMITS.items()}
+        self.given = frozenset(given)
+
+    def __getitem__(self, name: str) -> float:
+        return self._values[name]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._values)
+
+    def __len__(self) -> int:
+        return len(self._values)
+
+    def __repr__(self) -> str:
+        return f"Limits({self._values!r}, given={sorted(self.given)!r})"
+
+    def source(self, name: str) -> str:
+        """Where the value of limit ``name`` comes from, for messages."""
+        return "the model file's [limits]" if name in self.given else LIMITS[name].source
+
+
+def default_limits() -> Limits:
+    """The limits of a model that states none."""
+    return Limits()
+
+
+def read_limits(reader: TableReader) -> Limits:
+    """Read a ``[limits]`` table; problems are recorded in ``reader.problems``.
+
+    Unknown keys are reported with the closest valid name; values of the wrong
+    dimension or out of range are reported with the key.
+
+    Parameters
+    ----------
+    reader
+        A :class:`~simulator.reading.TableReader` on the ``[limits]`` table.
+
+    Returns
+    -------
+    Limits
+        The stated limits, defaults for the rest (and for wrong values, whose
+        problems stop the model from loading anyway).
+    """
+    values: dict[str, float] = {}
+    for name, spec in LIMITS.items():
+        if spec.dimension == "fraction":
+            v = reader.number(name, default=None, lo=spec.lo, hi=spec.hi, lo_open=True)
+        else:
+            v = reader.quantity(name, spec.dimension, default=None, lo=spec.lo, hi=spec.hi,
+                                reason="the validity range of IAPWS-IF97")
+        if v is not None:
+            values[name] = v
+    reader.finish()
+    return Limits(values, frozenset(values))
