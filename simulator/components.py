@@ -24,6 +24,10 @@ from .physics.heater import (
 )
 from .physics.pressure_drop import scaled_pressure_drop
 
+# [J/kg] above the largest saturated-vapour enthalpy of water (2803.3 kJ/kg, IAPWS-IF97)
+# an expansion end point is certainly dry
+H_DRY = 2.81e6
+
 __all__ = [
     "ExhaustEnd",
     "StageGroup",
@@ -107,8 +111,7 @@ class StageGroup:
             (the liquid value is NaN when the end point is far from saturation
             and it was not needed).
         """
-        v_in = steam.v_ph(p_in, h_in)
-        s_in = steam.s_ph(p_in, h_in)
+        v_in, s_in = steam.vs_ph(p_in, h_in)
         m = ellipse_flow(p_in, p_out, v_in, self.K)
         dh_s = h_in - steam.h_ps(p_out, s_in)
         ratio = self.correction(m * v_in / self.q_design, dh_s / self.dh_s_design)
@@ -116,14 +119,20 @@ class StageGroup:
         alpha = self.alpha
         if y_in is None:
             y_in = 1.0 - steam.x_ph(p_in, h_in) if alpha else 0.0
-        h_vap = steam.h_vap_sat(p_out)
-        if h_in - eta_dry * dh_s < h_vap + 1e5:
-            h_liq = steam.h_liq_sat(p_out)
-            h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, alpha)
-        else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
-            h_liq = math.nan
+        h_dry_end = h_in - eta_dry * dh_s
+        if h_dry_end > H_DRY:  # above every saturated vapour: a dry end, no lookups
+            h_vap = h_liq = math.nan
             h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
-        y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+            y_out = 0.0
+        else:
+            h_vap = steam.h_vap_sat(p_out)
+            if h_dry_end < h_vap + 1e5:
+                h_liq = steam.h_liq_sat(p_out)
+                h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, alpha)
+            else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
+                h_liq = math.nan
+                h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
+            y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
         eta = (h_in - h_elep) / dh_s if dh_s else eta_dry
         if self.exhaust is None:
             return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0, h_vap, h_liq

@@ -169,6 +169,8 @@ class FeedwaterMarch:
         p_w = p_c
         h_c = steam.h_liq_sat(p_c)
         h_w = h_c
+        T_w = None  # water temperature [K] when known without a property call
+        sat_w = True  # water is saturated liquid at p_w (hotwell, deaerator outlet)
         h_drain = [0.0] * n
         h_in = [0.0] * n
         h_out = [0.0] * n
@@ -184,14 +186,20 @@ class FeedwaterMarch:
             if kind == 0:
                 p_out = (p_throttle + self.boiler.drop(m_fw) if obj.discharge == "boiler"
                          else obj.discharge_pressure)
-                # Pump suction is usually saturated liquid, exactly on the boundary of
-                # IF97 regions 1 and 4; the volume is taken 10 J/kg (about 2 mK) inside
-                # the liquid region so that it is a smooth function of the state.
-                h_v = min(h_w, steam.h_liq_sat(p_w) - 10.0) if p_w < 22e6 else h_w
-                dh = obj.enthalpy_rise(steam.v_ph(p_w, h_v), p_w, p_out)
+                # suction volume: saturated liquid after the condenser or deaerator, at
+                # the known temperature after a heater, else from (p, h)
+                if sat_w:
+                    v_w = steam.v_liq_sat(p_w)
+                elif T_w is not None:
+                    v_w = steam.v_pT(p_w, T_w)
+                else:
+                    v_w = steam.v_ph(p_w, h_w)
+                dh = obj.enthalpy_rise(v_w, p_w, p_out)
                 pump_power += mw * dh
                 h_w += dh
                 p_w = p_out
+                T_w = None
+                sat_w = False
                 continue
             if kind == 3:
                 bypass[name] = (mw, h_w)
@@ -204,9 +212,11 @@ class FeedwaterMarch:
                 h_out[k] = h_drain[k] = ho
                 duty[k] = mw * (ho - h_w)
                 h_w, p_w = ho, ps
+                T_w = None
+                sat_w = True
                 continue
             ts = steam.T_sat(ps)
-            ti = steam.T_ph(p_w, h_w)
+            ti = steam.T_ph(p_w, h_w) if T_w is None else T_w
             to = obj.outlet_temperature(ts, ti, mw)
             ho = steam.h_pT(p_w, to)
             if obj.dca is not None and ti + obj.dca < ts:
@@ -218,11 +228,14 @@ class FeedwaterMarch:
             h_out[k] = ho
             duty[k] = mw * (ho - h_w)
             h_w = ho
+            T_w = to
+            sat_w = False
             if self._forward[k]:
                 md = drain_out[k]
                 h_dp = hd + steam.v_liq_sat(ps) * (p_w - ps) / obj.drain_pump_efficiency
                 pump_power += md * (h_dp - hd)
                 h_w = (mw * ho + md * h_dp) / (mw + md)
+                T_w = None
         residuals = [0.0] * n
         release = [0.0] * n
         for k, h in enumerate(self.active):

@@ -30,7 +30,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .case import Conditions, override
-from .components import StageGroup, ThrottleValve
+from .components import H_DRY, StageGroup, ThrottleValve
 from .cycle import FeedwaterMarch, HeaterState
 from .errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
 from .model import Model
@@ -326,7 +326,7 @@ class PointEquations:
         src = self.src
         M[src] = m_T
         h[src] = steam.h_pT(p[src], self.T_throttle)
-        F = np.empty(self.n_res)
+        F = [0.0] * self.n_res
         row_of = self.row_of
         has_drop = self.has_drop
         p_design = self.p_design
@@ -349,7 +349,7 @@ class PointEquations:
             out_flow = 0.0
             for kind, c, j in outs:
                 if kind == 0:
-                    if c.alpha:
+                    if c.alpha and hi < H_DRY:
                         hvi = hv[i]
                         if hvi != hvi:  # node state not known from upstream
                             y_in = 1.0 - steam.x_ph(pi, hi)
@@ -401,6 +401,7 @@ class PointEquations:
             k += self.n_h
         if self.demand:
             F[k] = (p_gen - self.cond.output) / self.model.generator.rating
+        F = np.array(F)
         if not detail:
             return F, None
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,

@@ -17,10 +17,12 @@ Reference: W. Wagner et al., "The IAPWS Industrial Formulation 1997 for the
 Thermodynamic Properties of Water and Steam", J. Eng. Gas Turbines Power
 122(1), 150-182, 2000; IAPWS R7-97(2012).
 
-Consistency: the (p, h) and (p, s) functions of ``seuif97`` use the IF97
-backward equations, which agree with the basic equations to about 1 mK and
-jump by about that much at the 4 MPa boundary of sub-regions 2a/2b; the
-solver is unaffected in practice (a jump of 2e-6 in specific volume).
+Consistency: ``seuif97`` evaluates (p, h) and (p, s) states with the IF97
+backward equations, which agree with the basic equations only to 10-25 mK
+and jump at sub-region boundaries and at the saturation line.  This module
+adds one Newton step on the basic equation for single-phase states, so that
+every function here is continuous and consistent with the basic equations to
+about 1e-9 K (see :class:`Seuif97Tables`).
 
 Validity (IAPWS R7-97(2012), section 1): 273.15 K <= T <= 1073.15 K at
 p <= 100 MPa, and 1073.15 K < T <= 2273.15 K at p <= 50 MPa.  States outside
@@ -40,6 +42,9 @@ P_MIN = 611.2127  # [Pa] triple-point pressure; below it no liquid water exists
 T_MIN = 273.15  # [K]
 T_MAX = 1073.15  # [K] region 1-3 upper limit (region 5 is not used by turbines here)
 P_CRIT = 22.064e6  # [Pa] critical pressure, IAPWS R7-97(2012) eq. (1) constants
+# [kJ/kg] largest saturated-vapour enthalpy (2803.3 kJ/kg near 3 MPa, IF97 region 4
+# with region 2; rounded up): any state above it is superheated vapour
+H_VAP_MAX = 2804.0
 
 
 def _range_error(what: str, **state) -> PropertyRangeError:
@@ -61,6 +66,10 @@ class SteamTables:
     def v_ph(self, p: float, h: float) -> float: ...
     def x_ph(self, p: float, h: float) -> float: ...
     def h_ps(self, p: float, s: float) -> float: ...
+
+    def vs_ph(self, p: float, h: float) -> tuple[float, float]:
+        """Specific volume and entropy at one (p, h) state (one lookup where possible)."""
+        return self.v_ph(p, h), self.s_ph(p, h)
     def T_sat(self, p: float) -> float: ...
     def h_liq_sat(self, p: float) -> float: ...
     def h_vap_sat(self, p: float) -> float: ...
@@ -97,26 +106,69 @@ class Seuif97Tables(SteamTables):
             raise _range_error("v(p, T)", p=p, T=T)
         return self._pt(p * 1e-6, T - 273.15, 3)
 
+    # ------------------------------------------------------------------------------
+    # (p, h) and (p, s) states.  seuif97 evaluates them through the IF97 backward
+    # equations T(p, h) and T(p, s), which agree with the basic equations only to
+    # 10-25 mK and jump at sub-region boundaries and at the saturation line.  For
+    # single-phase states one Newton step on the basic equation removes that
+    # (T1 = T0 + (h - h(p, T0)) / c_p, or T0 (s - s(p, T0)) / c_p), leaving an
+    # inconsistency of about 1e-9 K; two-phase states are computed by seuif97 from
+    # the saturation properties and need no step.  Results are then continuous,
+    # which Newton's method at 1e-10 needs.
+
+    def _T_ph(self, p, h):
+        """Temperature [degC] of a single-phase state, or None when two-phase; MPa, kJ/kg."""
+        if not (P_MIN <= p * 1e6 <= P_MAX):
+            raise _range_error("a (p, h) state", p=p * 1e6, h=h * 1e3)
+        if h > H_VAP_MAX:  # above every saturated-vapour enthalpy: superheated
+            x = 1.0
+        else:
+            x = self._ph(p, h, 15)
+            if 0.0 < x < 1.0:
+                return None
+        t0 = self._ph(p, h, 1)
+        if t0 <= -999.0 or t0 + 273.15 > T_MAX + 50.0:
+            raise _range_error("a (p, h) state", p=p * 1e6, h=h * 1e3)
+        pt = self._pt
+        h0 = pt(p, t0, 4)
+        if abs(h - h0) > 50.0:
+            # the backward temperature fell on the other side of the saturation line
+            # (it may err by 25 mK): start from just inside the right phase
+            t_sat = self._px(p, 0.0, 1)
+            t0 = t_sat - 1e-6 if x <= 0.0 else t_sat + 1e-6
+            h0 = pt(p, t0, 4)
+        return t0 + (h - h0) / pt(p, t0, 8)
+
     def T_ph(self, p, h):
-        if P_MIN <= p <= P_MAX:
-            r = self._ph(p * 1e-6, h * 1e-3, 1)
-            if r > -999.0:
-                return r + 273.15
-        raise _range_error("T(p, h)", p=p, h=h)
+        P, H = p * 1e-6, h * 1e-3
+        t = self._T_ph(P, H)
+        if t is None:
+            return self._ph(P, H, 1) + 273.15
+        return t + 273.15
 
     def s_ph(self, p, h):
-        if P_MIN <= p <= P_MAX:
-            r = self._ph(p * 1e-6, h * 1e-3, 5)
-            if r > -999.0:
-                return r * 1e3
-        raise _range_error("s(p, h)", p=p, h=h)
+        P, H = p * 1e-6, h * 1e-3
+        t = self._T_ph(P, H)
+        if t is None:
+            return self._ph(P, H, 5) * 1e3
+        return self._pt(P, t, 5) * 1e3
 
     def v_ph(self, p, h):
-        if P_MIN <= p <= P_MAX:
-            r = self._ph(p * 1e-6, h * 1e-3, 3)
-            if r > 0.0:
-                return r
+        P, H = p * 1e-6, h * 1e-3
+        t = self._T_ph(P, H)
+        r = self._ph(P, H, 3) if t is None else self._pt(P, t, 3)
+        if r > 0.0:
+            return r
         raise _range_error("v(p, h)", p=p, h=h)
+
+    def vs_ph(self, p, h):
+        """Specific volume [m^3/kg] and entropy [J/(kg K)] at one (p, h) state."""
+        P, H = p * 1e-6, h * 1e-3
+        t = self._T_ph(P, H)
+        if t is None:
+            return self._ph(P, H, 3), self._ph(P, H, 5) * 1e3
+        pt = self._pt
+        return pt(P, t, 3), pt(P, t, 5) * 1e3
 
     def x_ph(self, p, h):
         if P_MIN <= p <= P_MAX:
@@ -127,7 +179,24 @@ class Seuif97Tables(SteamTables):
 
     def h_ps(self, p, s):
         if P_MIN <= p <= P_MAX:
-            r = self._ps(p * 1e-6, s * 1e-3, 4)
+            P, S = p * 1e-6, s * 1e-3
+            ps = self._ps
+            x = ps(P, S, 15)
+            if 0.0 < x < 1.0:
+                r = ps(P, S, 4)
+            else:
+                t0 = ps(P, S, 1)
+                if t0 <= -999.0:
+                    raise _range_error("h(p, s)", p=p, s=s)
+                pt = self._pt
+                s0 = pt(P, t0, 5)
+                if abs(S - s0) > 0.1 and P < 22.064:
+                    # backward temperature on the other side of saturation (see _T_ph)
+                    t_sat = self._px(P, 0.0, 1)
+                    t0 = t_sat - 1e-6 if x <= 0.0 else t_sat + 1e-6
+                    s0 = pt(P, t0, 5)
+                t1 = t0 + (S - s0) * (t0 + 273.15) / pt(P, t0, 8)
+                r = pt(P, t1, 4)
             if r > -999.0:
                 return r * 1e3
         raise _range_error("h(p, s)", p=p, s=s)
