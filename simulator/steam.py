@@ -117,7 +117,14 @@ class Seuif97Tables(SteamTables):
     # which Newton's method at 1e-10 needs.
 
     def _T_ph(self, p, h):
-        """Temperature [degC] of a single-phase state, or None when two-phase; MPa, kJ/kg."""
+        """Where a (p, h) state lies; MPa and kJ/kg in, degC out.
+
+        Returns ``(0, T)`` for a single-phase state with its temperature refined
+        on the basic equation, ``(1, None)`` inside the two-phase region (seuif97
+        is exact there), ``(2, x)`` for a two-phase state within the backward
+        equations' uncertainty of the saturation line, with its quality from the
+        saturation enthalpies (seuif97 may report the wrong phase there).
+        """
         if not (P_MIN <= p * 1e6 <= P_MAX):
             raise _range_error("a (p, h) state", p=p * 1e6, h=h * 1e3)
         if h > H_VAP_MAX:  # above every saturated-vapour enthalpy: superheated
@@ -125,7 +132,7 @@ class Seuif97Tables(SteamTables):
         else:
             x = self._ph(p, h, 15)
             if 0.0 < x < 1.0:
-                return None
+                return 1, None
         t0 = self._ph(p, h, 1)
         if t0 <= -999.0 or t0 + 273.15 > T_MAX + 50.0:
             raise _range_error("a (p, h) state", p=p * 1e6, h=h * 1e3)
@@ -133,30 +140,59 @@ class Seuif97Tables(SteamTables):
         h0 = pt(p, t0, 4)
         if abs(h - h0) > 50.0:
             # the backward temperature fell on the other side of the saturation line
-            # (it may err by 25 mK): start from just inside the right phase
-            t_sat = self._px(p, 0.0, 1)
+            # (it may err by 25 mK): the state lies within that of saturation.  Decide
+            # the phase from the saturation enthalpies; a single-phase state steps
+            # from just inside its phase and stays inside it.
+            px = self._px
+            if p < 22.064:
+                h_f, h_g = px(p, 0.0, 4), px(p, 1.0, 4)
+                if h_f <= h <= h_g:
+                    return 2, (h - h_f) / (h_g - h_f)
+                x = 0.0 if h < h_f else 1.0
+            t_sat = px(p, 0.0, 1)
             t0 = t_sat - 1e-6 if x <= 0.0 else t_sat + 1e-6
-            h0 = pt(p, t0, 4)
-        return t0 + (h - h0) / pt(p, t0, 8)
+            t1 = t0 + (h - pt(p, t0, 4)) / pt(p, t0, 8)
+            return 0, (min(t1, t0) if x <= 0.0 else max(t1, t0))
+        t1 = t0 + (h - h0) / pt(p, t0, 8)
+        if p < 22.064 and (t1 < t0 if x >= 1.0 else t1 > t0):
+            # stepping toward saturation: stay at least 1e-6 K inside the phase, where
+            # seuif97's choice of region is certain
+            t_sat = self._px(p, 0.0, 1)
+            t1 = max(t1, t_sat + 1e-6) if x >= 1.0 else min(t1, t_sat - 1e-6)
+        return 0, t1
+
+    def _mix(self, p, x, i):
+        """Property ``i`` of a two-phase state of quality ``x`` at ``p`` [MPa]."""
+        f = self._px(p, 0.0, i)
+        return f + x * (self._px(p, 1.0, i) - f)
 
     def T_ph(self, p, h):
         P, H = p * 1e-6, h * 1e-3
-        t = self._T_ph(P, H)
-        if t is None:
-            return self._ph(P, H, 1) + 273.15
-        return t + 273.15
+        kind, t = self._T_ph(P, H)
+        if kind == 0:
+            return t + 273.15
+        if kind == 2:
+            return self._px(P, 0.0, 1) + 273.15
+        return self._ph(P, H, 1) + 273.15
 
     def s_ph(self, p, h):
         P, H = p * 1e-6, h * 1e-3
-        t = self._T_ph(P, H)
-        if t is None:
-            return self._ph(P, H, 5) * 1e3
-        return self._pt(P, t, 5) * 1e3
+        kind, t = self._T_ph(P, H)
+        if kind == 0:
+            return self._pt(P, t, 5) * 1e3
+        if kind == 2:
+            return self._mix(P, t, 5) * 1e3
+        return self._ph(P, H, 5) * 1e3
 
     def v_ph(self, p, h):
         P, H = p * 1e-6, h * 1e-3
-        t = self._T_ph(P, H)
-        r = self._ph(P, H, 3) if t is None else self._pt(P, t, 3)
+        kind, t = self._T_ph(P, H)
+        if kind == 0:
+            r = self._pt(P, t, 3)
+        elif kind == 2:
+            r = self._mix(P, t, 3)
+        else:
+            r = self._ph(P, H, 3)
         if r > 0.0:
             return r
         raise _range_error("v(p, h)", p=p, h=h)
@@ -164,11 +200,13 @@ class Seuif97Tables(SteamTables):
     def vs_ph(self, p, h):
         """Specific volume [m^3/kg] and entropy [J/(kg K)] at one (p, h) state."""
         P, H = p * 1e-6, h * 1e-3
-        t = self._T_ph(P, H)
-        if t is None:
-            return self._ph(P, H, 3), self._ph(P, H, 5) * 1e3
-        pt = self._pt
-        return pt(P, t, 3), pt(P, t, 5) * 1e3
+        kind, t = self._T_ph(P, H)
+        if kind == 0:
+            pt = self._pt
+            return pt(P, t, 3), pt(P, t, 5) * 1e3
+        if kind == 2:
+            return self._mix(P, t, 3), self._mix(P, t, 5) * 1e3
+        return self._ph(P, H, 3), self._ph(P, H, 5) * 1e3
 
     def x_ph(self, p, h):
         if P_MIN <= p <= P_MAX:
@@ -190,13 +228,31 @@ class Seuif97Tables(SteamTables):
                     raise _range_error("h(p, s)", p=p, s=s)
                 pt = self._pt
                 s0 = pt(P, t0, 5)
-                if abs(S - s0) > 0.1 and P < 22.064:
-                    # backward temperature on the other side of saturation (see _T_ph)
-                    t_sat = self._px(P, 0.0, 1)
-                    t0 = t_sat - 1e-6 if x <= 0.0 else t_sat + 1e-6
-                    s0 = pt(P, t0, 5)
-                t1 = t0 + (S - s0) * (t0 + 273.15) / pt(P, t0, 8)
-                r = pt(P, t1, 4)
+                near = abs(S - s0) > 0.1 and P < 22.064
+                r = None
+                if near:
+                    # backward temperature on the other side of saturation (see _T_ph):
+                    # decide the phase from the saturation entropies
+                    px = self._px
+                    s_f, s_g = px(P, 0.0, 5), px(P, 1.0, 5)
+                    if s_f < S < s_g:
+                        h_f = px(P, 0.0, 4)
+                        r = h_f + (S - s_f) / (s_g - s_f) * (px(P, 1.0, 4) - h_f)
+                    else:
+                        x = 0.0 if S <= s_f else 1.0
+                        t_sat = px(P, 0.0, 1)
+                        t0 = t_sat - 1e-6 if x <= 0.0 else t_sat + 1e-6
+                        s0 = pt(P, t0, 5)
+                if r is None:
+                    t1 = t0 + (S - s0) * (t0 + 273.15) / pt(P, t0, 8)
+                    if near:
+                        t1 = min(t1, t0) if x <= 0.0 else max(t1, t0)
+                    elif P < 22.064 and (t1 < t0 if x >= 1.0 else t1 > t0):
+                        # stepping toward saturation: stay inside the phase (see _T_ph)
+                        t_sat = self._px(P, 0.0, 1)
+                        t1 = (max(t1, t_sat + 1e-6) if x >= 1.0
+                              else min(t1, t_sat - 1e-6))
+                    r = pt(P, t1, 4)
             if r > -999.0:
                 return r * 1e3
         raise _range_error("h(p, s)", p=p, s=s)
