@@ -54,6 +54,7 @@ class Conditions:
     extraction_control: tuple = ()
     heaters_out: frozenset = frozenset()
     label: str = ""
+    held_pressures: tuple = ()  # (control valve name, held inlet pressure [Pa])
 
     def controls(self) -> dict:
         return dict(self.extraction_control)
@@ -84,7 +85,8 @@ def load_case(path: str | Path, model: Model | None = None) -> Case:
     name = top.string("name", default=path.stem)
     description = top.string("description", default="")
     backend = top.string("backend", default="seuif97", choices=sorted(BACKENDS))
-    top.finish(also_valid=("operation", "extractions", "heaters", "sweep", "profile"))
+    top.finish(also_valid=("operation", "extractions", "heaters", "control_valves", "sweep",
+                           "profile"))
     problems.raise_if_any()
     if model is None:
         model_path = (path.parent / model_ref).resolve()
@@ -101,7 +103,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
     """Resolve the ``[operation]``, ``[extractions]`` and ``[heaters]`` tables."""
     problems = Problems()
     op = TableReader(data.get("operation", {}), Where(file, "operation"), problems,
-                     atmosphere=None)
+                     atmosphere=model.atmosphere)
     flows = [k for k in ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction")
              if k in op.data]
     if len(flows) > 1:
@@ -210,9 +212,31 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
         if model.heaters[hname].kind == "deaerator":
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))
+    held = []
+    cv = data.get("control_valves", {})
+    if not isinstance(cv, dict):
+        problems.add(Where(file, "control_valves").error("expected tables "
+                                                        "[control_valves.NAME]"))
+        cv = {}
+    valves = {c.name: c for c in model.control_valves}
+    for vname, vdat in cv.items():
+        w = Where(file, f"control_valves.{vname}")
+        if vname not in valves:
+            import difflib
+
+            hint = difflib.get_close_matches(vname, list(valves), n=1)
+            problems.add(w.error(f"the model has no control valve {vname!r}"
+                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
+            continue
+        vr = TableReader(vdat, w, problems, atmosphere=model.atmosphere)
+        p_held = vr.quantity("pressure", "pressure", lo=P_MIN, hi=P_MAX)
+        vr.finish()
+        if p_held is not None:
+            held.append((vname, p_held))
     problems.raise_if_any()
     return Conditions(m_T, out, governing, p_T, T_T, T_rh, p_x, tuple(sorted(controls)),
-                      frozenset(out_set))
+                      frozenset(out_set), held_pressures=tuple(sorted(held)))
+
 
 
 def override(cond: Conditions, **changes) -> Conditions:

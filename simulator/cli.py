@@ -29,10 +29,15 @@ def _cmd_check(args) -> int:
     model = load_model(args.model)
     result = solve_point(model, Conditions(throttle_flow=model.throttle.flow), args.backend)
     if args.json:
-        print(json.dumps({"model": model.name, "file": model.file, "design": point_to_dict(
-            result, "design")}, indent=2))
+        print(json.dumps({"model": model.name, "file": model.file,
+                          "warnings": list(model.warnings),
+                          "design": point_to_dict(result, "design")}, indent=2))
         return 0
     print(format_model(model))
+    if model.warnings:
+        print("\nWARNINGS")
+        for w in model.warnings:
+            print(f"  ! {w}")
     print()
     print("Design heat balance as calibrated")
     print("=================================")

@@ -32,6 +32,7 @@ __all__ = [
     "ExhaustEnd",
     "StageGroup",
     "ThrottleValve",
+    "ControlValve",
     "PressureDropPath",
     "Extraction",
     "Generator",
@@ -162,6 +163,20 @@ class ThrottleValve:
     def wide_open_drop(self, m_dot: float, v_in: float) -> float:
         """Pressure drop [Pa] of the wide-open valves at ``m_dot`` and inlet volume ``v_in``."""
         return scaled_pressure_drop(m_dot, v_in, self.dp_wide_open, self.m_design, self.v_design)
+
+
+@dataclass
+class ControlValve(ThrottleValve):
+    """A valve inside the turbine that holds the pressure at its inlet node, such as
+    the valve ahead of the LP section of an extraction-condensing unit holding the
+    process-steam pressure.  While it throttles, the inlet pressure is held (at
+    the design pressure, or the case's setting); when holding it would need less
+    than its wide-open drop, the valve is wide open and the inlet pressure rises
+    above the setting.  Wide open, its drop follows the same quadratic law as
+    :class:`ThrottleValve`; ``wide_open_fraction`` is the model file's
+    ``wide_open_drop`` [-] (``None``: the design drop)."""
+
+    wide_open_fraction: float | None = None
 
 
 @dataclass

@@ -179,6 +179,7 @@ class FeedwaterMarch:
         T_in = [0.0] * n
         T_out = [0.0] * n
         T_sat = [0.0] * n
+        p_win = [0.0] * n  # water pressure entering each heater [Pa]
         bypass = {}
         pump_power = 0.0
         for s, (kind, obj, k, name) in enumerate(steps):
@@ -207,6 +208,7 @@ class FeedwaterMarch:
             ps = obj.shell_pressure(p_node[self._ext_node[k]])
             p_sh[k] = ps
             h_in[k] = h_w
+            p_win[k] = p_w
             if kind == 2:
                 ho = steam.h_liq_sat(ps)
                 h_out[k] = h_drain[k] = ho
@@ -290,7 +292,29 @@ class FeedwaterMarch:
                     hs.T_out = hs.T_drain = hs.T_sat
                 states[name] = hs
             summary["heaters"] = states
+            summary["problems"] = self._problems(steam, steps, p_sh, p_win, T_out)
         return residuals, summary
+
+    def _problems(self, steam, steps, p_sh, p_win, T_out) -> list[tuple[str, str]]:
+        """Water-side states no plant can have: ``(item name, message)`` pairs."""
+        out = []
+        last_pump = None
+        for kind, _obj, k, name in steps:
+            if kind == 0:
+                last_pump = name
+                continue
+            if kind == 2 and p_win[k] < p_sh[k]:
+                out.append((last_pump or name,
+                            f"water reaches deaerator {name!r} at {p_win[k] / 1e5:.4g} bar, below "
+                            f"its {p_sh[k] / 1e5:.4g} bar: the pump before it"
+                            f"{f' ({last_pump!r})' if last_pump else ''} cannot feed it"))
+            elif kind == 1 and p_win[k] < 22.064e6 and T_out[k] >= steam.T_sat(p_win[k]):
+                out.append((last_pump or name,
+                            f"feedwater would boil in heater {name!r}: {T_out[k] - 273.15:.1f} "
+                            f"degC at {p_win[k] / 1e5:.4g} bar; the pump before it"
+                            f"{f' ({last_pump!r})' if last_pump else ''} gives too little "
+                            f"pressure"))
+        return out
 
 
 def design_feedwater_states(model, steam) -> dict[str, dict]:
@@ -305,7 +329,7 @@ def design_feedwater_states(model, steam) -> dict[str, dict]:
     h = [model.design_enthalpy[n] for n in model.order]
     _, summary = march.evaluate(steam, p, h, bleed, model.throttle.flow, model.throttle.pressure,
                                 detail=True)
-    out = {}
+    out = {"_problems": summary["problems"]}
     for name, hs in summary["heaters"].items():
         out[name] = {"duty": hs.duty, "steam_release": hs.steam_release,
                      "m_water": hs.m_water, "T_in": hs.T_in, "T_out": hs.T_out,

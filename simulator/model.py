@@ -27,6 +27,7 @@ import networkx as nx
 
 from .components import (
     Boiler,
+    ControlValve,
     ExhaustEnd,
     Extraction,
     FeedwaterTrain,
@@ -93,13 +94,16 @@ class Model:
     design_group_flow: dict[str, float] = field(default_factory=dict)
     stated_output: float | None = None
     limits: Limits = field(default_factory=default_limits)
+    warnings: list[str] = field(default_factory=list)
+    control_valves: list[ControlValve] = field(default_factory=list)
+    atmosphere: float | None = None  # [Pa] stated local atmosphere, for gauge pressures
 
     @property
     def source(self) -> str:
         return self.throttle.node
 
     def component(self, name: str):
-        for c in [self.valve, *self.groups, *self.paths]:
+        for c in [self.valve, *self.groups, *self.paths, *self.control_valves]:
             if c.name == name:
                 return c
         raise KeyError(name)
@@ -278,7 +282,11 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
         g_from = gr.string("from")
         g_to = gr.string("to")
         eta = gr.number("efficiency", lo=0.0, hi=1.0, lo_open=True)
-        cname = gr.string("efficiency_correction", default="velocity_ratio",
+        # The exhaust-loss curve already carries the last stage's losses at low
+        # volume flow, so an exhaust group defaults to a constant efficiency.
+        is_exhaust = gr.has("annulus_area") or gr.has("loss_curve")
+        cname = gr.string("efficiency_correction",
+                          default="constant" if is_exhaust else "velocity_ratio",
                           choices=sorted(CORRECTIONS) + ["table"])
         corr = CORRECTIONS.get(cname or "constant", CORRECTIONS["constant"])
         if cname == "table":
@@ -316,6 +324,20 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
             if None in (rname, r_from, r_to) or (kind == "reheater" and T_out is None):
                 continue
             paths.append(PressureDropPath(rname, r_from, r_to, T_out))
+
+    control_valves: list[ControlValve] = []
+    for i, r in enumerate(top.table_list("control_valve")):
+        rr = reader(r, f"control_valve[{i}]")
+        rname = rr.string("name")
+        if rname:
+            rr.where = Where(file, f"control_valve '{rname}'", None)
+        r_from = rr.string("from")
+        r_to = rr.string("to")
+        frac = rr.quantity("wide_open_drop", "fraction", default=None, lo=0.0, hi=0.5)
+        rr.finish()
+        if None in (rname, r_from, r_to):
+            continue
+        control_valves.append(ControlValve(rname, r_from, r_to, wide_open_fraction=frac))
 
     # --- extractions -------------------------------------------------------------
     extractions: dict[str, Extraction] = {}
@@ -426,19 +448,21 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     limits = read_limits(reader(top.raw("limits", {}), "limits"))
     top.finish(also_valid=("about", "throttle", "nodes", "exhaust", "throttle_valve",
                            "stage_group", "reheater", "pipe", "extraction", "generator",
-                           "heater", "pump", "feedwater", "limits"))
+                           "heater", "pump", "feedwater", "limits", "control_valve"))
     problems.raise_if_any()
 
     throttle = ThrottleDesign(t_node, t_p, t_T, t_m, t_pmax or t_p)
     valve = ThrottleValve("throttle valve", t_node, v_to)
     generator = Generator(rating, mech, fixed, load_loss)
-    graph = _build_graph(file, design_p, throttle, valve, groups, paths, extractions,
+    graph = _build_graph(file, design_p, throttle, valve, groups, paths + control_valves,
+                         extractions,
                          exhaust_nodes, heaters, pumps, feedwater, problems)
     problems.raise_if_any()
     model = Model(name, description or "", file, text, hashlib.sha256(text.encode()).hexdigest(),
                   graph, list(nx.topological_sort(graph)), design_p, throttle, valve, groups,
                   paths, extractions, list(exhaust_nodes), generator, heaters, pumps, feedwater,
-                  stated_output=stated_output, limits=limits)
+                  stated_output=stated_output, limits=limits, control_valves=control_valves,
+                  atmosphere=atmosphere)
     _calibrate(model, v_wo, steam)
     return model
 
@@ -477,8 +501,7 @@ def _build_graph(file, design_p, throttle, valve, groups, paths, extractions, ex
 
     edges = [(valve, "throttle_valve", valve.inlet, valve.outlet)]
     edges += [(c, f"stage_group '{c.name}'", c.inlet, c.outlet) for c in groups]
-    edges += [(c, f"{'reheater' if c.is_reheater else 'pipe'} '{c.name}'", c.inlet, c.outlet)
-              for c in paths]
+    edges += [(c, _table_of(c)[0], c.inlet, c.outlet) for c in paths]
     names = set()
     for comp, table, a, b in edges:
         if comp.name in names:
@@ -688,6 +711,8 @@ def _table_of(c) -> tuple[str, str]:
     """Table and key of a component in the model file, for error messages."""
     if isinstance(c, StageGroup):
         return f"stage_group '{c.name}'", "efficiency"
+    if isinstance(c, ControlValve):
+        return f"control_valve '{c.name}'", "to"
     if isinstance(c, ThrottleValve):
         return "throttle_valve", "to"
     return f"{'reheater' if c.is_reheater else 'pipe'} '{c.name}'", "to"
@@ -742,13 +767,15 @@ def _calibrate_component(c, m, p_in, h_in, p_out, steam, wide_open_fraction, mod
         return c.expand(steam, p_in, h_in, p_out)[1]
     if isinstance(c, ThrottleValve):
         dp = p_in - p_out
+        if isinstance(c, ControlValve):
+            wide_open_fraction = c.wide_open_fraction
         c.m_design, c.v_design = m, v_in
         c.dp_wide_open = dp if wide_open_fraction is None else wide_open_fraction * p_in
         if c.dp_wide_open > dp * (1 + 1e-12):
             raise InputError(
                 f"the wide-open valve drop ({c.dp_wide_open / 1e5:.4g} bar) exceeds the design "
                 f"drop from the node pressures ({dp / 1e5:.4g} bar)", file=model.file,
-                table="throttle_valve", key="wide_open_drop")
+                table=_table_of(c)[0], key="wide_open_drop")
         return h_in
     c.dp_design, c.m_design, c.v_design = p_in - p_out, m, v_in
     return c.outlet_enthalpy(steam, p_out, h_in)
@@ -759,6 +786,11 @@ def _calibrate_heaters(model: Model, steam: SteamTables) -> None:
     from .cycle import design_feedwater_states
 
     states = design_feedwater_states(model, steam)
+    for item, message in states.pop("_problems"):
+        if item in model.pumps:
+            raise InputError(f"at design, {message}", file=model.file, table=f"pump '{item}'",
+                             key="discharge_pressure")
+        raise InputError(f"at design, {message}", file=model.file, table=f"heater '{item}'")
     for name, st in states.items():
         htr = model.heaters[name]
         release = st["steam_release"]
@@ -771,12 +803,18 @@ def _calibrate_heaters(model: Model, steam: SteamTables) -> None:
                              table=table, key="ttd")
         htr.closure = duty / release
         htr.duty_design = duty
-        if not 0.8 <= htr.closure <= 1.25:
+        if not 0.9 <= htr.closure <= 1.1:
             raise InputError(
                 f"design heat balance of heater {name!r} does not close: feedwater gains "
-                f"{duty / 1e6:.4g} MW while the bleed and drains give up {release / 1e6:.4g} MW; "
-                f"check the design flow of extraction {htr.extraction!r}", file=model.file,
+                f"{duty / 1e6:.4g} MW while the bleed and drains give up {release / 1e6:.4g} MW "
+                f"(closure {htr.closure:.3f}, allowed 0.9-1.1); check the design flow of "
+                f"extraction {htr.extraction!r}, the TTD and the DCA", file=model.file,
                 table=table, key="extraction")
+        if abs(htr.closure - 1.0) > 0.01:
+            model.warnings.append(
+                f"heater {name!r}: design heat balance closes to {htr.closure:.4f} (more than "
+                f"1 % from 1); every off-design bleed of this heater is scaled by it. Check the "
+                f"design flow of extraction {htr.extraction!r}, the TTD and the DCA.")
         if htr.kind == "closed":
             htr.cp = duty / st["m_water"] / max(st["T_out"] - st["T_in"], 1e-6)
             if htr.ttd_method == "ua":

@@ -30,7 +30,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .case import Conditions, override
-from .components import H_DRY, StageGroup, ThrottleValve
+from .components import H_DRY, ControlValve, StageGroup, ThrottleValve
 from .cycle import FeedwaterMarch, HeaterState
 from .errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
 from .model import Model
@@ -100,6 +100,7 @@ class PointResult:
     jacobian: np.ndarray = field(repr=False, default=None)
     flow_ratio: float = 1.0
     x_slope: np.ndarray = field(repr=False, default=None)
+    wide_open_valves: frozenset = frozenset()
 
     def node(self, name: str) -> dict:
         i = self.node_names.index(name)
@@ -127,8 +128,9 @@ class PointEquations:
     """
 
     def __init__(self, model: Model, cond: Conditions, steam: SteamTables,
-                 mode: str = "point"):
+                 mode: str = "point", wide_open: frozenset = frozenset()):
         self.model = model
+        self.wide_open = frozenset(wide_open)  # control valves that are wide open
         self.steam = steam
         self.mode = mode
         g = model.graph
@@ -141,23 +143,32 @@ class PointEquations:
         self.src = idx[model.source]
         self.exhaust_idx = [idx[n] for n in model.exhaust_nodes]
         self.throttle_fixed = cond.governing == "throttle" or mode == "wide_open"
-        fixed = set(self.exhaust_idx) | ({self.src} if self.throttle_fixed else set())
+        # control valves that throttle hold their inlet pressure
+        self.holding = [(idx[c.inlet], c) for c in model.control_valves
+                        if c.name not in self.wide_open]
+        fixed = (set(self.exhaust_idx) | ({self.src} if self.throttle_fixed else set())
+                 | {i for i, _ in self.holding})
         self.free = [i for i in range(N) if i not in fixed]
         self.p_design = [model.design_pressure[n] for n in names]
         self.m_design = model.throttle.flow
         # outgoing components per node: (kind, component, outlet index)
-        # kind 0 stage group, 1 throttle valve, 2 reheater or pipe
+        # kind 0 stage group, 1 throttle valve, 2 reheater or pipe, 3 control valve
+        # holding its inlet pressure, 4 control valve wide open
         self.outs: list[list] = [[] for _ in range(N)]
         self.has_drop = [False] * N
         for i, n in enumerate(names):
             for succ in g.successors(n):
                 c = g.edges[n, succ]["component"]
                 if isinstance(c, StageGroup):
-                    self.outs[i].append((0, c, idx[succ]))
+                    kind = 0
+                elif isinstance(c, ControlValve):
+                    kind = 4 if c.name in self.wide_open else 3
+                elif isinstance(c, ThrottleValve):
+                    kind = 1
                 else:
-                    self.outs[i].append((1 if isinstance(c, ThrottleValve) else 2, c,
-                                         idx[succ]))
-                    self.has_drop[i] = True
+                    kind = 2
+                self.outs[i].append((kind, c, idx[succ]))
+                self.has_drop[i] = kind != 0
         # extractions
         controls = cond.controls()
         self.heaters_out = frozenset(cond.heaters_out)
@@ -223,6 +234,9 @@ class PointEquations:
         if self.throttle_fixed:
             p_fix[self.src] = (cond.throttle_pressure if cond.throttle_pressure is not None
                                else model.throttle.pressure)
+        held = dict(cond.held_pressures)
+        for i, c in self.holding:
+            p_fix[i] = held.get(c.name, self.p_design[i])
         self.p_fix = p_fix
         self.T_throttle = (cond.throttle_temperature if cond.throttle_temperature is not None
                            else model.throttle.temperature)
@@ -333,6 +347,7 @@ class PointEquations:
         shaft = 0.0
         groups = {} if detail else None
         drops = {}
+        needed = {}  # wide-open drop of each holding control valve at its flow [Pa]
         valve_drop_needed = 0.0
         limit = 1e-9 * md
         for i in range(N):
@@ -372,12 +387,20 @@ class PointEquations:
                     if detail:
                         groups[c.name] = r
                     out_flow += m
+                elif kind == 3:  # holding its inlet pressure: passes the net flow
+                    m = net
+                    h_out = hi
+                    if detail:
+                        drops[c.name] = (m, pi - p[j], h_out)
+                        needed[c.name] = c.wide_open_drop(m, steam.v_ph(pi, hi))
+                    out_flow = m
                 else:
                     m = net
                     v = steam.v_ph(pi, hi)
-                    if kind == 1:
+                    if kind == 1 or kind == 4:
                         dp = c.wide_open_drop(m, v)
-                        valve_drop_needed = dp
+                        if kind == 1:
+                            valve_drop_needed = dp
                         h_out = hi
                     else:
                         dp = c.drop(m, v)
@@ -406,22 +429,23 @@ class PointEquations:
             return F, None
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
                  "groups": groups, "drops": drops, "shaft": shaft, "p_gen": p_gen,
-                 "valve_drop_needed": valve_drop_needed, "feedwater": summary}
+                 "valve_drop_needed": valve_drop_needed, "feedwater": summary,
+                 "control_valve_needed": needed}
         return F, state
 
 
 def equations_for(model: Model, cond: Conditions, steam: SteamTables,
-                  mode: str = "point") -> PointEquations:
+                  mode: str = "point", wide_open: frozenset = frozenset()) -> PointEquations:
     """The compiled equations for ``cond``, reused across points of the same structure."""
     key = (cond.governing, mode, cond.output is not None, cond.extraction_control,
-           cond.heaters_out, steam.name)
+           cond.heaters_out, steam.name, frozenset(wide_open))
     key = key + (threading.get_ident(),)  # one compiled copy per thread: it holds state
     cache = model.__dict__.setdefault("_equations", {})
     eq = cache.get(key)
     if eq is None:
         if len(cache) > 64:
             cache.clear()
-        eq = cache[key] = PointEquations(model, cond, steam, mode)
+        eq = cache[key] = PointEquations(model, cond, steam, mode, wide_open)
     else:
         eq.set_conditions(cond)
     return eq
@@ -464,41 +488,79 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     """
     if steam is None or isinstance(steam, str):
         steam = get_backend(steam or "seuif97")
-    eq = equations_for(model, cond, steam)
-    shape = (eq.n_res, eq.n)
-    r = eq.flow_ratio()
-    scaled = None
-    if (neighbour is not None and neighbour.x is not None and len(neighbour.x) == eq.n
-            and guess is None):
-        scaled = eq.scaled_guess(neighbour.x, neighbour.flow_ratio)
-        guess = scaled
-        step = r - neighbour.flow_ratio
-        if neighbour.x_slope is not None and abs(step) < 0.15:
-            guess = scaled + neighbour.x_slope * step  # secant predictor along the load
-        jacobian = neighbour.jacobian if jacobian is None else jacobian
-    x0 = eq.guess() if guess is None or len(guess) != eq.n else np.asarray(guess, float)
-    jac = jacobian if (jacobian is not None and guess is not None and len(guess) == eq.n
-                       and np.shape(jacobian) == shape) else None
+    # Control valves hold their inlet pressure unless they would need less than their
+    # wide-open drop; then they are wide open and that pressure floats above its
+    # setting.  Start from the neighbour's valve states and switch until consistent.
+    wide = neighbour.wide_open_valves if neighbour is not None else frozenset()
+    tried = set()
+    eq = equations_for(model, cond, steam, wide_open=wide)
     try:
-        try:
-            nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
-                        broyden=broyden)
-        except ConvergenceError:
-            if guess is None and jac is None:
-                raise
-            nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
-                        broyden=broyden)
-        F, st = eq.evaluate(nr.x, detail=True)
+        while True:
+            tried.add(wide)
+            eq = equations_for(model, cond, steam, wide_open=wide)
+            nr, st, F, scaled = _solve_structure(eq, steam, guess, jacobian, broyden,
+                                                 neighbour)
+            switch = _valves_to_switch(model, cond, eq, st)
+            if not switch or (wide ^ switch) in tried:
+                break
+            wide = wide ^ switch
         _check_physical(model, cond, steam, eq, st)
         if check_limits:
             _check_feasible(model, cond, steam, eq, st)
     except SolveError as exc:
         raise _with_request(exc, cond, eq) from None
     result = _build_result(model, cond, steam, eq, nr, F, st)
+    r = eq.flow_ratio()
     result.flow_ratio = r
+    result.wide_open_valves = wide
     if scaled is not None and abs(r - neighbour.flow_ratio) > 1e-9:
         result.x_slope = (nr.x - scaled) / (r - neighbour.flow_ratio)
     return result
+
+
+def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighbour):
+    """Newton on one set of equations; returns ``(newton result, state, F, scaled)``."""
+    shape = (eq.n_res, eq.n)
+    r = eq.flow_ratio()
+    scaled = None
+    if (neighbour is not None and neighbour.x is not None and len(neighbour.x) == eq.n
+            and guess is None and neighbour.wide_open_valves == eq.wide_open):
+        scaled = eq.scaled_guess(neighbour.x, neighbour.flow_ratio)
+        guess = scaled
+        step = r - neighbour.flow_ratio
+        if neighbour.x_slope is not None and abs(step) < 0.15:
+            guess = scaled + neighbour.x_slope * step  # secant predictor along the load
+        jacobian = neighbour.jacobian if jacobian is None else jacobian
+    usable = guess is not None and len(guess) == eq.n
+    x0 = np.asarray(guess, float) if usable else eq.guess()
+    jac = jacobian if (jacobian is not None and usable
+                       and np.shape(jacobian) == shape) else None
+    try:
+        nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
+                    broyden=broyden)
+    except ConvergenceError:
+        if not usable:
+            raise
+        nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
+                    broyden=broyden)
+    F, st = eq.evaluate(nr.x, detail=True)
+    return nr, st, F, scaled
+
+
+def _valves_to_switch(model, cond, eq, st) -> frozenset:
+    """Control valves whose state (holding or wide open) contradicts the solution."""
+    p = st["p"]
+    held = dict(cond.held_pressures)
+    switch = set()
+    for c in model.control_valves:
+        i, j = eq.idx[c.inlet], eq.idx[c.outlet]
+        if c.name in eq.wide_open:
+            setting = held.get(c.name, model.design_pressure[c.inlet])
+            if p[i] < setting * (1.0 - 1e-9):  # it can throttle again
+                switch.add(c.name)
+        elif p[i] - p[j] < st["control_valve_needed"][c.name] - 1e-6 * p[i]:
+            switch.add(c.name)  # holding would need less than the wide-open drop
+    return frozenset(switch)
 
 
 def _asked(cond: Conditions, eq: PointEquations) -> str:
@@ -549,6 +611,9 @@ def _check_physical(model, cond, steam, eq, st):
                     f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
                     f"{names[j]!r}) above its inlet ({p[i] / 1e5:.4g} bar); "
                     f"the exhaust pressure may be too high for this flow")
+    fw = st.get("feedwater")
+    if fw is not None and fw.get("problems"):
+        raise InfeasibleError(fw["problems"][0][1])
     for name, m in zip((b[0] for b in eq.bleeds), st["bleed_flow"]):
         if m < -1e-9 * eq.m_design:
             raise InfeasibleError(f"extraction {name!r} would need a negative bleed flow "
@@ -565,7 +630,9 @@ def _check_feasible(model, cond, steam, eq, st):
              else f"a throttle flow of {st['m_T']:.2f} kg/s")
     if cond.governing == "throttle":
         available = p_T - p[after]
-        if available < st["valve_drop_needed"] * (1.0 - 1e-9) - 1e-6:
+        # valves-wide-open drop to 1e-5 of throttle pressure: the design point itself
+        # sits on that limit, and its exact value moves by pascals with the back pressure
+        if available < st["valve_drop_needed"] - 1e-5 * p_T:
             m_max, P_max = _wide_open(model, cond, steam, p_T)
             raise InfeasibleError(
                 f"{asked} is beyond the valves-wide-open capacity at the held throttle "
@@ -633,7 +700,8 @@ def _build_result(model, cond, steam, eq, nr, F, st) -> PointResult:
         "exhaust_flow": sum(st["M"][eq.idx[n]] for n in model.exhaust_nodes),
     }
     reheat = 0.0
-    path_names = [model.valve.name] + [c.name for c in model.paths]
+    path_names = ([model.valve.name] + [c.name for c in model.paths]
+                  + [c.name for c in model.control_valves])
     path_heat = []
     for name in path_names:
         m, _dp, h_out = st["drops"][name]
@@ -665,6 +733,11 @@ def _build_result(model, cond, steam, eq, nr, F, st) -> PointResult:
         totals["heater_heat_loss"] = heater_loss
         process = sum(f * hh for f, hh, b in zip(ex_flow, ex_h, eq.bleeds) if b[2] != 2)
         totals["process_steam_energy"] = process - makeup * h_c
+        # heat chargeable to power: the heat added less the net enthalpy that leaves
+        # with process steam (returned as make-up at condensate enthalpy); equal to
+        # heat_rate for a unit without process steam
+        totals["heat_rate_power"] = ((boiler - totals["process_steam_energy"]) / P_gen
+                                     if P_gen > 0 else math.nan)
         totals["energy_imbalance"] = (boiler + fw["pump_power"] - st["shaft"]
                                       - totals["condenser_duty"] - heater_loss
                                       - totals["process_steam_energy"])

@@ -137,7 +137,7 @@ def test_exhaust_moisture_with_cold_condenser_and_low_reheat(reheat_model):
     assert codes(found) == ["exhaust_moisture"]
     c = found[0]
     assert c.where == "LPA3" and c.value > 0.12
-    assert c.value == pytest.approx(0.1374, abs=5e-4)  # regression value
+    assert c.value == pytest.approx(0.1390, abs=5e-4)  # regression value
     assert "LPB2" in c.message and "erode" in c.message
 
 
@@ -156,11 +156,11 @@ def test_low_load_ventilation(reheat_model):
     assert codes(found) == ["last_stage_volume_flow", "exhaust_temperature"]
     vol = caution(found, "last_stage_volume_flow")
     assert vol.where == "LPB2" and vol.value < 0.30
-    assert vol.value == pytest.approx(0.218, abs=0.002)  # regression value
+    assert vol.value == pytest.approx(0.2026, abs=0.002)  # regression value
     assert "ventilation" in vol.message and "LPA3" in vol.message
     hot = caution(found, "exhaust_temperature")
     assert hot.unit == "K" and hot.value > 273.15 + 80.0
-    assert hot.value - 273.15 == pytest.approx(123.8, abs=0.5)  # regression value
+    assert hot.value - 273.15 == pytest.approx(99.8, abs=0.5)  # regression value
 
 
 def test_volume_flow_quiet_at_part_load(reheat_model):

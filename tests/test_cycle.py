@@ -160,3 +160,19 @@ def test_ua_method_widens_ttd_with_more_duty():
     assert lp4.ttd > 2.8 + 0.5
     d = solve_point(model, Conditions(throttle_flow=280.0))
     assert next(h for h in d.heaters if h.name == "LP4").ttd == pytest.approx(2.8, abs=0.03)
+
+
+def test_heat_rate_chargeable_to_power(reheat_model, industrial_model):
+    # Without process steam the heat rate chargeable to power is the heat rate;
+    # with it, the net enthalpy leaving with process steam is taken off the heat
+    # added (an enthalpy allocation, common practice, no source).
+    r = solve_point(reheat_model, Conditions(throttle_flow=200.0))
+    assert r.totals["heat_rate_power"] == pytest.approx(r.totals["heat_rate"], rel=1e-12)
+    i = solve_point(industrial_model, Conditions(throttle_flow=60.0))
+    t = i.totals
+    assert t["process_steam_energy"] > 0.2 * t["heat_added"]
+    assert t["heat_rate_power"] * t["generator_output"] == pytest.approx(
+        t["heat_added"] - t["process_steam_energy"], rel=1e-12)
+    # a non-reheat 92 bar unit: 7,000-11,000 kJ/kWh chargeable to power (common
+    # practice, no source)
+    assert 7000.0 < t["heat_rate_power"] * 3600.0 < 11000.0 < t["heat_rate"] * 3600.0

@@ -51,7 +51,9 @@ def test_velocity_ratio_parabola():
     assert velocity_ratio(1.0, 1.0) == pytest.approx(1.0)
     assert velocity_ratio(1.0, 1.0 / 0.64) == pytest.approx(0.96)
     assert velocity_ratio(1.0, 1.0 / 1.44) == pytest.approx(2 * 1.2 - 1.44)
-    assert velocity_ratio(1.0, 0.2) == 0.0  # floored far from design
+    # outside 0.5 <= r <= 1.5 the ratio is held at the end value 2(1.5) - 1.5^2 = 0.75
+    assert velocity_ratio(1.0, 0.2) == pytest.approx(0.75)
+    assert velocity_ratio(1.0, 10.0) == pytest.approx(0.75)
     assert constant(0.3, 2.0) == 1.0
 
 

@@ -107,9 +107,9 @@ def test_closing_an_extraction_raises_downstream_pressure_and_output():
 
 
 def test_process_extraction_closed_raises_output(industrial_model):
-    base = solve_point(industrial_model, Conditions(throttle_flow=70.0))
+    base = solve_point(industrial_model, Conditions(throttle_flow=45.0))
     closed = solve_point(industrial_model, Conditions(
-        throttle_flow=70.0, extraction_control=(("process_steam", ("closed", 0.0)),)))
+        throttle_flow=45.0, extraction_control=(("process_steam", ("closed", 0.0)),)))
     assert closed.totals["generator_output"] > 1.1 * base.totals["generator_output"]
     assert closed.node("lp_x")["p"] > base.node("lp_x")["p"]
 
@@ -166,3 +166,41 @@ def test_warm_start_from_a_neighbour(reheat_model):
     c = solve_point(reheat_model, Conditions(throttle_flow=205.0))
     np.testing.assert_allclose(b.node_p, c.node_p, rtol=1e-9)
     assert b.evaluations < c.evaluations
+
+
+def test_control_valve_holds_process_pressure_then_opens_wide(industrial_model):
+    # The LP control valve holds the process-node pressure while it can throttle;
+    # with more LP flow than it passes wide open, it opens fully and the process
+    # pressure rises above its setting (complementarity of the two states).
+    model = industrial_model
+    p_set = model.design_pressure["process"]
+    closed = (("process_steam", ("closed", 0.0)),)
+    low = solve_point(model, Conditions(throttle_flow=35.0, extraction_control=closed))
+    assert low.node("process")["p"] == pytest.approx(p_set, rel=1e-12)
+    assert not low.wide_open_valves
+    i = low.path_names.index("LP control valve")
+    valve = model.control_valves[0]
+    v_in = get_backend().v_ph(low.node("process")["p"], low.node("process")["h"])
+    assert low.path_pressure_drop[i] >= valve.wide_open_drop(low.path_flow[i], v_in)
+    high = solve_point(model, Conditions(throttle_flow=49.0, extraction_control=closed))
+    assert high.wide_open_valves == frozenset({"LP control valve"})
+    assert high.node("process")["p"] > 1.05 * p_set
+    i = high.path_names.index("LP control valve")
+    v_in = get_backend().v_ph(high.node("process")["p"], high.node("process")["h"])
+    assert high.path_pressure_drop[i] == pytest.approx(
+        valve.wide_open_drop(high.path_flow[i], v_in), rel=1e-8)
+    # a warm start across the switch gives the same answer as a cold one
+    warm = solve_point(model, Conditions(throttle_flow=49.0, extraction_control=closed),
+                       neighbour=low)
+    np.testing.assert_allclose(warm.node_p, high.node_p, rtol=1e-9)
+
+
+def test_process_pressure_setting_from_the_case(tmp_path, industrial_model):
+    case = tmp_path / "held.toml"
+    case.write_text(f'model = "{industrial_model.file}"\n'
+                    '[operation]\nthrottle_flow_fraction = 0.8\n'
+                    '[control_valves."LP control valve"]\npressure = "10 barg"\n')
+    c = load_case(case)
+    r = solve_point(c.model, c.conditions)
+    # 10 barg with the model's stated atmosphere of 1.013 bar
+    assert r.node("process")["p"] == pytest.approx(11.013e5, rel=1e-12)

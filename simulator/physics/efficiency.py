@@ -28,6 +28,9 @@ def constant(q_ratio: float, dh_ratio: float) -> float:
     return 1.0
 
 
+R_MIN, R_MAX = 0.5, 1.5  # range of the velocity-ratio parabola [-]
+
+
 def velocity_ratio(q_ratio: float, dh_ratio: float) -> float:
     """Velocity-ratio parabola of an impulse stage.
 
@@ -37,17 +40,19 @@ def velocity_ratio(q_ratio: float, dh_ratio: float) -> float:
 
     .. math::  \\eta / \\eta_d = 2 r - r^2
 
-    which is 1 at design and falls off either side.  Valid near design
-    (0.5 < r < 1.5); the result is floored at zero.
+    which is 1 at design and falls off either side.  Valid near design,
+    0.5 <= r <= 1.5; outside that range ``r`` is held at the nearer end (ratio
+    0.75), since the parabola says nothing reliable beyond it.
 
     Reference: textbook impulse-stage theory, e.g. S. L. Dixon and C. A. Hall,
     *Fluid Mechanics and Thermodynamics of Turbomachinery*, 7th ed.,
     Butterworth-Heinemann, 2014, ch. 4 (blade efficiency versus ``U/c1``).
     """
     if dh_ratio <= 0.0:
-        return 0.0
-    r = math.sqrt(1.0 / dh_ratio)
-    return max(2.0 * r - r * r, 0.0)
+        r = R_MAX
+    else:
+        r = min(max(math.sqrt(1.0 / dh_ratio), R_MIN), R_MAX)
+    return 2.0 * r - r * r
 
 
 def make_table_correction(q_ratios: Sequence[float],
