@@ -1,0 +1,419 @@
+"""The charts engineers look at, drawn from study result files (PNG).
+
+Each chart is drawn from one result file, or from two overlaid (heater in
+versus out of service, two exhaust pressures): the first file in solid lines
+with round markers, the second dashed with square markers.  Inside a file,
+every series (one combination of the swept values other than the load) has
+its own colour.  Sweeps are drawn as lines through their points; profiles,
+whose points are not ordered by load, as dots.
+
+Charts (:data:`CHARTS`), each 8 x 5 in at 100 dpi, i.e. 800 x 500 pixels:
+
+``willans``
+    Generator output [MW] versus throttle flow [kg/s]: the Willans line.
+``heat_rate``
+    Heat rate [kJ/kWh] versus generator output [MW].
+``node_pressures``
+    Pressure at every node [bar, log scale] versus throttle flow [kg/s]: the
+    ellipse law's near-proportional lines.
+``bleed_flows``
+    Bleed flow of every extraction [kg/s] versus generator output [MW].
+``expansion``
+    Expansion lines on the h-s (Mollier) chart with the saturation line, for
+    chosen loads (default: the lowest, a middle and the highest throttle flow
+    of each file's first series).
+
+Points that failed are not drawn; points with operating-limit cautions are
+ringed in red, and a note under each chart counts both.  Drawing uses
+matplotlib's Agg backend through :class:`matplotlib.figure.Figure`, so it
+needs no display and leaves pyplot's global state alone.
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+from collections.abc import Sequence
+from pathlib import Path
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+
+from .errors import InputError, ResultFileError
+from .store import StudyData, read_study, to_display
+
+__all__ = ["CHARTS", "FIGSIZE", "DPI", "plot_study", "plot_willans", "plot_heat_rate",
+           "plot_node_pressures", "plot_bleed_flows", "plot_expansion", "saturation_line"]
+
+FIGSIZE = (8.0, 5.0)  # [in]
+DPI = 100  # [1/in] so a chart is 800 x 500 pixels
+_STYLES = [("-", "o"), ("--", "s"), (":", "^"), ("-.", "D")]
+_CAUTION = "#d62728"
+
+
+def _figure() -> Figure:
+    fig = Figure(figsize=FIGSIZE, dpi=DPI)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _label(st: StudyData, others: Sequence[StudyData]) -> str:
+    """A short name for a file: its case name, or file name when names clash."""
+    names = [o.name for o in others]
+    return st.name if names.count(st.name) == 1 else st.path.stem
+
+
+def _curves(st: StudyData):
+    """``(series index, series label, point indices)`` of the converged points."""
+    ok = st.ok
+    out = []
+    for s, text in enumerate(st.series_labels):
+        idx = np.flatnonzero((st.series == s) & ok)
+        if idx.size:
+            out.append((s, text, idx))
+    return out
+
+
+def _is_profile(st: StudyData) -> bool:
+    return "profile" in str(st.attrs.get("study_kind", ""))
+
+
+def _note(fig: Figure, studies: Sequence[StudyData]) -> None:
+    parts = []
+    for st in studies:
+        n = st.n_points
+        failed = int(np.sum(st.status > 0))
+        pending = int(np.sum(st.status < 0))
+        c = st.cautions
+        n_c = int(np.sum(c > 0)) if c is not None else None
+        bits = [f"{n} points"]
+        if failed:
+            bits.append(f"{failed} failed (not drawn)")
+        if pending:
+            bits.append(f"{pending} not solved yet")
+        if n_c is not None:
+            bits.append(f"{n_c} with cautions (red rings)" if n_c else "no cautions")
+        label = _label(st, studies) if len(studies) > 1 else st.name
+        parts.append(f"{label}: " + ", ".join(bits))
+    models = sorted({str(st.attrs.get("model_name", "")) for st in studies})
+    text = "; ".join(parts) + f".  Model: {', '.join(models)}."
+    fig.text(0.01, 0.01, textwrap.fill(text, 170), fontsize=7, color="0.3")
+
+
+def _item_colours(items: Sequence[str]) -> dict:
+    """Distinct colours: the default cycle up to 10 items, 'tab20' up to 20."""
+    if len(items) <= 10:
+        return {name: f"C{j}" for j, name in enumerate(items)}
+    import matplotlib
+
+    cmap = matplotlib.colormaps["tab20"]
+    return {name: cmap(j % 20) for j, name in enumerate(items)}
+
+
+def _dots(n: int, scale: float = 1.0) -> dict:
+    """Marker size and opacity for a cloud of ``n`` profile points."""
+    if n <= 500:
+        return {"marker": "o", "markersize": 3.5 * scale, "alpha": 0.9}
+    return {"marker": ".", "markersize": 2.0 * scale, "alpha": 0.4}
+
+
+def _disp(st: StudyData, key: str) -> np.ndarray:
+    return to_display(st.data[key], st.units.get(key, ""), key)[0]
+
+
+def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, ylabel: str,
+              title: str) -> Figure:
+    fig = _figure()
+    ax = fig.add_subplot(111)
+    colour = 0
+    for k, st in enumerate(studies):
+        ls, marker = _STYLES[k % len(_STYLES)]
+        x_all = _disp(st, xkey)
+        y_all = _disp(st, ykey)
+        profile = _is_profile(st)
+        for _s, text, idx in _curves(st):
+            x, y = x_all[idx], y_all[idx]
+            name = text or ("profile points" if profile else "all points")
+            if len(studies) > 1:
+                name = f"{_label(st, studies)}: {name}" if text else _label(st, studies)
+            c = f"C{colour % 10}"
+            colour += 1
+            if profile:
+                ax.plot(x, y, linestyle="none", color=c, label=name, **_dots(len(x)))
+            else:
+                order = np.argsort(x, kind="stable")
+                ax.plot(x[order], y[order], linestyle=ls, marker=marker, markersize=4, color=c,
+                        label=name)
+            cz = st.cautions
+            if cz is not None:
+                ring = cz[idx] > 0
+                if ring.any():
+                    ax.plot(x[ring], y[ring], linestyle="none", marker="o",
+                            markersize=6 if profile else 9, markerfacecolor="none",
+                            markeredgecolor=_CAUTION, markeredgewidth=0.8)
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.set_title(title)
+    ax.grid(True, alpha=0.3)
+    if ax.lines:
+        ax.legend(fontsize=8, loc="best")
+    fig.subplots_adjust(left=0.11, right=0.97, top=0.92, bottom=0.15)
+    _note(fig, studies)
+    return fig
+
+
+def plot_willans(studies: Sequence[StudyData]) -> Figure:
+    """Generator output [MW] versus throttle flow [kg/s] (the Willans line)."""
+    return _xy_chart(studies, "totals/throttle_flow", "totals/generator_output",
+                     "throttle flow [kg/s]", "generator output [MW]",
+                     "Output versus throttle flow (Willans line)")
+
+
+def plot_heat_rate(studies: Sequence[StudyData]) -> Figure:
+    """Heat rate [kJ/kWh] versus generator output [MW]."""
+    for st in studies:
+        if "totals/heat_rate" not in st.data:
+            raise ResultFileError(f"{st.path} has no heat rate (the model has no feedwater "
+                                  f"train), so no heat-rate chart")
+    return _xy_chart(studies, "totals/generator_output", "totals/heat_rate",
+                     "generator output [MW]", "heat rate [kJ/kWh]",
+                     "Heat rate versus output")
+
+
+def _multi_chart(studies: Sequence[StudyData], xkey: str, group: str, quantity: str,
+                 xlabel: str, ylabel: str, title: str, log: bool = False,
+                 skip_zero: bool = False) -> Figure:
+    """One colour per item (node, extraction), one line style per file and series."""
+    fig = _figure()
+    ax = fig.add_subplot(111)
+    items = []
+    for st in studies:
+        for name in st.names.get(group, []):
+            if name not in items:
+                items.append(name)
+    colours = _item_colours(items)
+    curve_styles = []
+    k_style = 0
+    for st in studies:
+        x_all = _disp(st, xkey)
+        y_all = _disp(st, f"{group}/{quantity}")
+        profile = _is_profile(st)
+        for _s, text, idx in _curves(st):
+            ls, marker = _STYLES[k_style % len(_STYLES)]
+            k_style += 1
+            name = text or "all points"
+            if len(studies) > 1:
+                name = f"{_label(st, studies)}: {name}" if text else _label(st, studies)
+            curve_styles.append((ls, marker, name))
+            x = x_all[idx]
+            order = np.argsort(x, kind="stable")
+            for j, item in enumerate(st.names[group]):
+                y = y_all[idx, j]
+                if skip_zero and np.all(np.nan_to_num(y) == 0.0):
+                    continue  # closed throughout: nothing to draw
+                if profile:
+                    ax.plot(x, y, linestyle="none", color=colours[item],
+                            **_dots(len(x), 0.75))
+                else:
+                    ax.plot(x[order], y[order], linestyle=ls, marker=marker, markersize=3,
+                            linewidth=1.2, color=colours[item])
+    if log:
+        ax.set_yscale("log")
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.set_title(title)
+    ax.grid(True, which="both", alpha=0.25)
+    handles = [Line2D([], [], color=colours[i], label=i) for i in items]
+    leg = ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+                    title=group.replace("_", " "), title_fontsize=7)
+    ax.add_artist(leg)
+    if len(curve_styles) > 1:
+        style_handles = [Line2D([], [], color="0.2", linestyle=ls, marker=m, markersize=3,
+                                label=name) for ls, m, name in curve_styles]
+        ax.legend(handles=style_handles, fontsize=7, loc="lower left",
+                  bbox_to_anchor=(1.01, 0.0))
+    fig.subplots_adjust(left=0.10, right=0.74, top=0.92, bottom=0.15)
+    _note(fig, studies)
+    return fig
+
+
+def plot_node_pressures(studies: Sequence[StudyData]) -> Figure:
+    """Pressure at every node [bar, log scale] versus throttle flow [kg/s]."""
+    return _multi_chart(studies, "totals/throttle_flow", "nodes", "pressure",
+                        "throttle flow [kg/s]", "pressure [bar]",
+                        "Node pressures versus throttle flow", log=True)
+
+
+def plot_bleed_flows(studies: Sequence[StudyData]) -> Figure:
+    """Bleed flow of every extraction [kg/s] versus generator output [MW]."""
+    return _multi_chart(studies, "totals/generator_output", "extractions", "flow",
+                        "generator output [MW]", "bleed flow [kg/s]",
+                        "Bleed flows versus load", skip_zero=True)
+
+
+def saturation_line(steam=None, n: int = 120) -> tuple[np.ndarray, np.ndarray]:
+    """The saturation line (liquid side, then vapour side) on the h-s chart.
+
+    Parameters
+    ----------
+    steam : property backend (default seuif97)
+    n : points on each side [-]
+
+    Returns
+    -------
+    s, h : entropy [J/(kg K)] and enthalpy [J/kg] from the triple point up
+        the liquid side to near the critical point and down the vapour side
+    """
+    from .steam import P_CRIT, P_MIN, get_backend
+
+    steam = steam or get_backend("seuif97")
+    p = np.geomspace(P_MIN * 1.001, P_CRIT * 0.999, n)
+    h_f = np.array([steam.h_liq_sat(x) for x in p])
+    h_g = np.array([steam.h_vap_sat(x) for x in p])
+    # entropy 1 J/kg inside each single-phase region, so that no backend has to decide
+    # on which side of the line a state exactly on it lies (error about 1/T_sat, below
+    # 0.004 J/(kg K))
+    s_f = np.array([steam.s_ph(x, h - 1.0) for x, h in zip(p, h_f)])
+    s_g = np.array([steam.s_ph(x, h + 1.0) for x, h in zip(p, h_g)])
+    return np.concatenate([s_f, s_g[::-1]]), np.concatenate([h_f, h_g[::-1]])
+
+
+def _pick_points(st: StudyData, loads: Sequence[float] | None) -> list[int]:
+    """Points for expansion lines: the given loads [fraction of design throttle
+    flow], else the lowest, a middle and the highest flow of the first series."""
+    curves = _curves(st)
+    if not curves:
+        return []
+    idx = curves[0][2]
+    flow = st.total("throttle_flow")[idx]
+    if loads:
+        design = float(st.attrs.get("design_throttle_flow", np.nan))
+        if not math.isfinite(design):
+            design = float(np.nanmax(flow))
+        picks = []
+        for f in loads:
+            k = int(idx[np.argmin(np.abs(flow - f * design))])
+            if k not in picks:
+                picks.append(k)
+        return picks
+    order = idx[np.argsort(flow, kind="stable")]
+    picks = [int(order[0]), int(order[len(order) // 2]), int(order[-1])]
+    return list(dict.fromkeys(picks))
+
+
+def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None = None,
+                   steam=None) -> Figure:
+    """Expansion lines on the h-s chart with the saturation line.
+
+    Parameters
+    ----------
+    studies : one or two result files
+    loads : throttle flows as fractions of design [-] (the nearest converged
+        point of each file's first series is drawn); default: lowest, middle
+        and highest flow
+    steam : property backend for the saturation line (default seuif97)
+    """
+    fig = _figure()
+    ax = fig.add_subplot(111)
+    s_sat, h_sat = saturation_line(steam)
+    s_lo, s_hi, h_lo, h_hi = math.inf, -math.inf, math.inf, -math.inf
+    colour = 0
+    for k, st in enumerate(studies):
+        ls, marker = _STYLES[k % len(_STYLES)]
+        names = st.names["nodes"]
+        pos = {n: j for j, n in enumerate(names)}
+        top = st.topology
+        segments = [(a, b, "-") for a, b in zip(top["group_inlet"], top["group_outlet"])]
+        thr, after = st.attrs.get("throttle_node", ""), st.attrs.get("valve_outlet_node", "")
+        if thr in pos and after in pos:
+            segments.append((thr, after, ":"))
+        for a, b in zip(top.get("path_inlet", []), top.get("path_outlet", [])):
+            segments.append((a, b, ":"))
+        S = st.data["nodes/entropy"] / 1e3
+        H = st.data["nodes/enthalpy"] / 1e3
+        for i in _pick_points(st, loads):
+            c = f"C{colour % 10}"
+            colour += 1
+            P = st.total("generator_output")[i] / 1e6
+            m = st.total("throttle_flow")[i]
+            name = f"{P:.0f} MW, {m:.0f} kg/s"
+            if len(studies) > 1:
+                name = f"{_label(st, studies)}: {name}"
+            for a, b, style in segments:
+                ia, ib = pos[a], pos[b]
+                xs, ys = [S[i, ia], S[i, ib]], [H[i, ia], H[i, ib]]
+                ax.plot(xs, ys, linestyle=ls if style == "-" else ":", color=c,
+                        linewidth=1.4 if style == "-" else 0.9,
+                        marker=marker if style == "-" else None, markersize=3)
+            ax.plot([], [], linestyle=ls, marker=marker, color=c, label=name)
+            ok = np.isfinite(S[i]) & np.isfinite(H[i])
+            s_lo, s_hi = min(s_lo, S[i, ok].min()), max(s_hi, S[i, ok].max())
+            h_lo, h_hi = min(h_lo, H[i, ok].min()), max(h_hi, H[i, ok].max())
+    ax.plot(s_sat / 1e3, h_sat / 1e3, color="0.35", linewidth=1.0,
+            label="saturation line")
+    if math.isfinite(s_lo):
+        ds, dh = max(s_hi - s_lo, 0.2), max(h_hi - h_lo, 200.0)
+        ax.set_xlim(s_lo - 0.15 * ds, s_hi + 0.15 * ds)
+        ax.set_ylim(h_lo - 0.12 * dh, h_hi + 0.08 * dh)
+    ax.set_xlabel("specific entropy [kJ/(kg K)]")
+    ax.set_ylabel("specific enthalpy [kJ/kg]")
+    ax.set_title("Expansion lines (h-s chart); dotted: valves, reheater, pipes")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=7, loc="lower left")
+    fig.subplots_adjust(left=0.11, right=0.97, top=0.92, bottom=0.15)
+    _note(fig, studies)
+    return fig
+
+
+CHARTS = {
+    "willans": plot_willans,
+    "heat_rate": plot_heat_rate,
+    "node_pressures": plot_node_pressures,
+    "bleed_flows": plot_bleed_flows,
+    "expansion": plot_expansion,
+}
+
+
+def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
+               loads: Sequence[float] | None = None,
+               charts: Sequence[str] | None = None) -> list[Path]:
+    """Draw the charts of one result file, or of two overlaid, as PNG files.
+
+    Parameters
+    ----------
+    paths : one or two study result files
+    out_dir : folder for the PNG files (default: that of the first file)
+    loads : throttle flows for the expansion lines, fractions of design [-]
+    charts : names from :data:`CHARTS` (default all)
+
+    Returns
+    -------
+    list of Path
+        ``<stem>_<chart>.png``, or ``<stem>_vs_<other stem>_<chart>.png`` for
+        two files; existing files of these names are replaced.
+    """
+    if not 1 <= len(paths) <= 2:
+        raise InputError("give one result file, or two to overlay")
+    studies = [read_study(p) for p in paths]
+    chosen = list(charts) if charts else list(CHARTS)
+    for c in chosen:
+        if c not in CHARTS:
+            raise InputError(f"unknown chart {c!r}; valid: {', '.join(CHARTS)}")
+    first = studies[0].path
+    out_dir = Path(out_dir) if out_dir is not None else first.parent
+    out_dir.mkdir(parents=True, exist_ok=True)
+    stem = first.stem if len(studies) == 1 else f"{first.stem}_vs_{studies[1].path.stem}"
+    written = []
+    for c in chosen:
+        if c == "heat_rate" and any("totals/heat_rate" not in st.data for st in studies):
+            continue
+        fig = (CHARTS[c](studies, loads) if c == "expansion" else CHARTS[c](studies))
+        out = out_dir / f"{stem}_{c}.png"
+        try:
+            fig.savefig(out, dpi=DPI)
+        except OSError as exc:
+            raise ResultFileError(f"cannot write {out}: {exc}") from None
+        written.append(out)
+    return written

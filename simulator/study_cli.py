@@ -1,0 +1,281 @@
+"""Command-line commands for batch studies: ``study``, ``export``, ``plot``, ``demo``.
+
+Added to ``partload`` by :func:`add_commands`.  Exit codes are those of
+:mod:`simulator.cli`: 0 the study ran to its end (points that could not be
+solved are recorded in the file and counted in the summary, not errors of the
+command); 2 a mistake in the case, sweep, profile or command line; 3 a result
+file that is damaged, another program's, or in the way; 130 interrupted
+(Ctrl-C or SIGTERM; the file holds every finished point, continue with
+``--resume``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import signal
+import sys
+import threading
+from pathlib import Path
+
+from .errors import InputError
+
+__all__ = ["add_commands", "run_study_command", "default_workers", "DEMO_CASE"]
+
+DEMO_CASE = "reheat_load_sweep.toml"
+
+
+def default_workers() -> int:
+    """Worker processes by default: the CPUs this process may use [-]."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _workers(text: str) -> int:
+    """A whole number of at least 1 (workers, points)."""
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if n < 1:
+        raise argparse.ArgumentTypeError("at least 1")
+    return n
+
+
+def _loads(text: str) -> list[float]:
+    try:
+        vals = [float(x) / 100.0 for x in text.replace(";", ",").split(",") if x.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"expected percentages of design throttle flow such as 40,70,100; got {text!r}"
+        ) from None
+    if not vals or any(v <= 0 for v in vals):
+        raise argparse.ArgumentTypeError("give positive percentages such as 40,70,100")
+    return vals
+
+
+def _on_sigterm(signum, frame):  # pragma: no cover - exercised by a subprocess test
+    """SIGTERM stops a study like Ctrl-C: finished chunks are kept."""
+    raise KeyboardInterrupt
+
+
+def run_study_command(case_path: str | Path, *, output: str | Path | None = None,
+                      workers: int | None = None, scheduler: str | None = None,
+                      resume: bool = False, force: bool = False, backend: str | None = None,
+                      plots: bool = False, quiet: bool = False, out=None,
+                      auto_resume: bool = False, limit: int | None = None,
+                      beyond_limits: bool = False) -> int:
+    """Plan, run and store a study; print its summary.  Returns the exit code.
+
+    ``auto_resume`` (the demo): continue an existing result of the same study,
+    which does nothing when it is complete, instead of refusing it.  ``limit``
+    plans only the first points (a trial run).  ``beyond_limits`` solves points
+    beyond valves wide open as what-ifs instead of recording them as failed.
+    """
+    from .case import load_case
+    from .store import StudyFile, check_target
+    from .study import Progress, plan_study, result_layout, run_study
+
+    out = out or sys.stdout
+    case = load_case(case_path)
+    plan = plan_study(case, backend)
+    if limit is not None:
+        plan = plan.head(limit)
+    path = Path(output) if output else Path("results") / f"{Path(case.file).stem}.h5"
+    if path.is_dir():
+        path = path / f"{Path(case.file).stem}.h5"
+    action = check_target(path, resume=resume or auto_resume, force=force)
+    layout = result_layout(case.model, plan.backend)
+    main_thread = threading.current_thread() is threading.main_thread()
+    old_handler = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None
+    try:
+        check = not beyond_limits
+        if action == "resume":
+            sf = StudyFile.resume(path, plan, layout, check_limits=check)
+        else:
+            sf = StudyFile.create(path, plan, layout, check_limits=check)
+        try:
+            skip = sf.done_chunks(plan) if action == "resume" else set()
+            n_done = sum(c.size for c in plan.chunks if c.index in skip)
+            axes = " x ".join(plan.axes)
+            trial = f" (the first {plan.limit}: --limit)" if plan.limit is not None else ""
+            print(f"partload study: case {case.name!r}, {plan.n_points} points{trial} "
+                  f"({axes}); model {case.model.name!r}; properties {plan.backend}"
+                  + ("; beyond-limit points solved as what-ifs" if beyond_limits else ""),
+                  file=out)
+            if action == "resume":
+                print(f"  resuming {path}: {n_done} of {plan.n_points} points were done",
+                      file=out)
+            elif resume:
+                print(f"  nothing to resume: {path} does not exist yet; starting", file=out)
+            elif action == "replace":
+                print(f"  replacing the earlier result {path} (--force)", file=out)
+            n_workers = workers if workers is not None else default_workers()
+            progress = Progress(plan.n_points, initial=n_done, enabled=not quiet)
+            try:
+                summary = run_study(plan, sf.write, workers=n_workers, scheduler=scheduler,
+                                    skip=skip, layout=layout, progress=progress,
+                                    check_limits=check)
+            finally:
+                progress.close()
+            done_now = int(sf.done.sum())
+        finally:
+            sf.close()
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGTERM, old_handler)
+    _print_summary(summary, plan, path, done_now, out)
+    if summary.interrupted:
+        print(f"partload: interrupted; {path} holds the {done_now} finished points of "
+              f"{plan.n_points}. Continue with: partload study {case.file} --resume"
+              + (f" --output {path}" if output else "")
+              + (f" --limit {plan.limit}" if plan.limit is not None else "")
+              + (" --beyond-limits" if beyond_limits else ""), file=sys.stderr)
+        return 130
+    if plots:
+        from .plots import plot_study
+
+        files = plot_study([path])
+        print("  plots: " + ", ".join(str(f) for f in files), file=out)
+    return 0
+
+
+def _print_summary(s, plan, path, done_now, out) -> None:
+    rate = s.n_solved / s.seconds if s.seconds > 0 else 0.0
+    where = s.where if s.where != "this process" else "this process (1 worker)"
+    if s.n_solved:
+        print(f"  solved {s.n_solved} points in {s.seconds:.1f} s on {where} "
+              f"({rate:.0f} points/s): {s.n_converged} converged, {s.n_failed} failed"
+              + (f", {s.n_internal} internal errors (please report)" if s.n_internal else "")
+              + (f"; {s.n_cautions} with operating-limit cautions" if s.n_cautions else ""),
+              file=out)
+    elif not s.interrupted:
+        print("  nothing to do: every point was already done", file=out)
+    for i, label, msg in sorted(s.failures)[:5]:
+        print(f"  failed: point {i} ({label}): {msg}", file=out)
+    more = s.n_failed + s.n_internal - min(len(s.failures), 5)
+    if more > 0:
+        print(f"  ... and {more} more failed points; see /solver/message in the file", file=out)
+    print(f"  results: {path} ({done_now} of {plan.n_points} points done)", file=out)
+
+
+def _cmd_study(args) -> int:
+    return run_study_command(args.case, output=args.output, workers=args.workers,
+                             scheduler=args.scheduler, resume=args.resume, force=args.force,
+                             backend=args.backend, plots=args.plots, quiet=args.quiet,
+                             limit=args.limit, beyond_limits=args.beyond_limits)
+
+
+def _cmd_export(args) -> int:
+    from .store import export_csv
+
+    files = export_csv(args.result, args.output, si=args.si)
+    for f in files:
+        print(f)
+    return 0
+
+
+def _cmd_plot(args) -> int:
+    from .plots import plot_study
+
+    paths = [args.result] + ([args.other] if args.other else [])
+    files = plot_study(paths, args.output, loads=args.loads)
+    for f in files:
+        print(f)
+    return 0
+
+
+def _demo_case() -> Path:
+    here = Path("cases") / DEMO_CASE
+    if here.exists():
+        return here
+    packaged = Path(__file__).resolve().parents[1] / "cases" / DEMO_CASE
+    if packaged.exists():
+        return packaged
+    raise InputError(f"the demo case {DEMO_CASE} was not found in ./cases or next to the "
+                     f"package; run the demo from the project folder")
+
+
+def _cmd_demo(args) -> int:
+    case = _demo_case()
+    output = Path(args.output) / f"{case.stem}.h5"
+    return run_study_command(case, output=output, workers=args.workers, force=args.force,
+                             plots=True, quiet=args.quiet, auto_resume=not args.force)
+
+
+def add_commands(sub) -> None:
+    """Add ``study``, ``export``, ``plot`` and ``demo`` to the ``partload`` parser."""
+    c = sub.add_parser(
+        "study", help="run a sweep or profile study into an HDF5 result file",
+        description="Solve every point of the case's [sweep] and/or [profile] and store the "
+                    "results in an HDF5 file (default results/<case>.h5). Points that cannot "
+                    "be solved are recorded with their reason; the study goes on. An existing "
+                    "result is never overwritten without --force.",
+        epilog="Exit status: 0 the study ran to its end (failed points are recorded, not "
+               "errors); 2 a mistake in the case, sweep or profile; 3 a result file in the way, "
+               "damaged or another program's, or a changed model on --resume; 130 interrupted "
+               "(Ctrl-C or SIGTERM: every finished point is kept; continue with --resume).")
+    c.add_argument("case", help="case file (TOML) with a [sweep] or [profile] table")
+    c.add_argument("--workers", type=_workers, default=None,
+                   help=f"local worker processes (default: the CPUs available, here "
+                        f"{default_workers()}); 1 solves in this process")
+    c.add_argument("--scheduler", default=None, metavar="ADDR",
+                   help="address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
+                        "(needs pip install 'partload[cluster]'); replaces --workers")
+    g = c.add_mutually_exclusive_group()
+    g.add_argument("--resume", action="store_true",
+                   help="continue an interrupted study in the existing file (checks that "
+                        "model, case and profile are unchanged)")
+    g.add_argument("--force", action="store_true",
+                   help="replace an existing result file of partload")
+    c.add_argument("--output", "-o", default=None, metavar="PATH",
+                   help="result file (default results/<case file name>.h5)")
+    c.add_argument("--backend", default=None, help="steam property backend: seuif97 or iapws "
+                                                   "(default: the case's, else seuif97)")
+    c.add_argument("--limit", type=_workers, default=None, metavar="N",
+                   help="solve only the first N points of the plan (a trial run)")
+    c.add_argument("--beyond-limits", action="store_true",
+                   help="solve points beyond valves wide open as what-ifs (marked with the "
+                        "valves_wide_open caution) instead of recording them as failed")
+    c.add_argument("--plots", action="store_true", help="draw the charts next to the file")
+    c.add_argument("--quiet", "-q", action="store_true", help="no progress display")
+    c.set_defaults(func=_cmd_study)
+
+    c = sub.add_parser("export", help="write a study result as CSV files for spreadsheets",
+                       description="Write <stem>_points.csv (inputs, solver record, totals), "
+                                   "<stem>_nodes.csv, _stage_groups.csv, _extractions.csv and "
+                                   "_heaters.csv; one row per point, units in the headers.")
+    c.add_argument("result", help="study result file (HDF5)")
+    c.add_argument("--output", "-o", default=None, metavar="DIR",
+                   help="folder for the CSV files (default: that of the result file)")
+    c.add_argument("--si", action="store_true",
+                   help="SI units as in the HDF5 file (default: bar, degC, MW, kJ/kWh, ...)")
+    c.set_defaults(func=_cmd_export)
+
+    c = sub.add_parser("plot", help="draw the charts of a study result (PNG)",
+                       description="Willans line, heat rate, node pressures, bleed flows and "
+                                   "expansion lines on the h-s chart; with a second file, "
+                                   "both overlaid.")
+    c.add_argument("result", help="study result file (HDF5)")
+    c.add_argument("other", nargs="?", default=None, help="a second result file to overlay")
+    c.add_argument("--output", "-o", default=None, metavar="DIR",
+                   help="folder for the PNG files (default: that of the first file)")
+    c.add_argument("--loads", type=_loads, default=None, metavar="PCT,...",
+                   help="throttle flows for the expansion lines, in %% of design "
+                        "(default: lowest, middle and highest)")
+    c.set_defaults(func=_cmd_plot)
+
+    c = sub.add_parser("demo", help="run the demo study: load sweep of the demo reheat unit "
+                                    "with and without heater HP8, its HDF5 file and plots",
+                       description=f"Runs cases/{DEMO_CASE} into results/ and draws its "
+                                   f"charts. Run again, it finishes an interrupted demo or "
+                                   f"just redraws the charts of a complete one.")
+    c.add_argument("--output", "-o", default="results", metavar="DIR",
+                   help="folder for the result file and charts (default results)")
+    c.add_argument("--workers", type=_workers, default=None,
+                   help="local worker processes (default: the CPUs available)")
+    c.add_argument("--force", action="store_true", help="start the demo afresh")
+    c.add_argument("--quiet", "-q", action="store_true", help="no progress display")
+    c.set_defaults(func=_cmd_demo)

@@ -1,0 +1,171 @@
+"""Tests of simulator.plots: charts of study results as PNG files.
+
+The charts are drawn for a small sweep of the demo reheat unit (invented
+data).  Each must be an 800 x 500 pixel image (8 x 5 in at 100 dpi, the size
+stated in simulator.plots) with something drawn on it.  The saturation line is
+checked against IAPWS-IF97 values of the steam tables (W. Wagner, H.-J.
+Kretzschmar, "International Steam Tables", 2nd ed., Springer 2008, table
+2.3): at the triple point s' = 0 and s'' = 9.1555 kJ/(kg K); the enthalpy
+of saturated vapour peaks at about 2803 kJ/kg near 3 MPa.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+from matplotlib.image import imread
+
+from simulator.cli import main
+from simulator.plots import CHARTS, DPI, FIGSIZE, plot_study, saturation_line
+from simulator.store import read_study
+
+ROOT = Path(__file__).resolve().parents[1]
+MODEL = ROOT / "models" / "demo_reheat_unit.toml"
+SIZE = (int(FIGSIZE[1] * DPI), int(FIGSIZE[0] * DPI))  # (rows, columns) = (500, 800)
+
+
+def study(folder: Path, name: str, body: str) -> Path:
+    case = folder / f"{name}.toml"
+    case.write_text(f"model = {json.dumps(str(MODEL))}\n" + body, encoding="utf-8")
+    out = folder / f"{name}.h5"
+    assert main(["study", str(case), "--workers", "1", "--output", str(out), "-q"]) == 0
+    return out
+
+
+@pytest.fixture(scope="module")
+def results(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("plots")
+    sweep = """
+[sweep]
+throttle_flow_fraction = {from = 0.4, to = 1.0, points = 5}
+heater_out = ["none", "HP8"]
+"""
+    a = study(folder, "cool", sweep + 'exhaust_pressure = "5 kPa"\n')
+    b = study(folder, "warm", sweep + 'exhaust_pressure = "10 kPa"\n')
+    (folder / "p.csv").write_text("time,output [MW],exhaust_pressure [kPa]\n"
+                                  + "".join(f"h{k},{150 + 7 * k},{5 + k * 0.2:.1f}\n"
+                                            for k in range(24)), encoding="utf-8")
+    c = study(folder, "day", '[profile]\nfile = "p.csv"\n')
+    return a, b, c
+
+
+def assert_chart(path: Path) -> None:
+    img = imread(path)
+    assert img.shape[:2] == SIZE
+    rgb = img[..., :3]
+    not_white = np.any(rgb < 0.95, axis=-1).mean()
+    assert not_white > 0.02, f"{path.name} looks empty"
+    # colour, not just black axes (200 pixels: fewer than the 24 dots of the smallest
+    # chart here); what is drawn is checked on the figures in test_charts_draw_every_point
+    saturated = (rgb.max(axis=-1) - rgb.min(axis=-1) > 0.3).sum()
+    assert saturated > 200, f"{path.name} has no coloured curve"
+
+
+def test_every_chart_of_a_sweep(results, tmp_path):
+    files = plot_study([results[0]], tmp_path)
+    assert [f.name for f in files] == [f"cool_{c}.png" for c in CHARTS]
+    for f in files:
+        assert_chart(f)
+
+
+def test_two_files_overlaid(results, tmp_path):
+    files = plot_study([results[0], results[1]], tmp_path, loads=[0.4, 1.0])
+    assert [f.name for f in files] == [f"cool_vs_warm_{c}.png" for c in CHARTS]
+    for f in files:
+        assert_chart(f)
+
+
+def test_profile_charts_and_cli(results, tmp_path, capsys):
+    assert main(["plot", str(results[2]), "--output", str(tmp_path), "--loads", "60,90"]) == 0
+    printed = capsys.readouterr().out.split()
+    assert len(printed) == len(CHARTS)
+    for f in printed:
+        assert_chart(Path(f))
+
+
+def test_charts_draw_every_converged_point(results):
+    from simulator.plots import plot_bleed_flows, plot_node_pressures, plot_willans
+
+    st = read_study(results[0])
+    n_ok = int(st.ok.sum())
+    assert n_ok == 10
+    ax = plot_willans([st]).axes[0]
+    drawn = [ln for ln in ax.lines if not ln.get_label().startswith("_")]
+    assert sum(len(ln.get_xdata()) for ln in drawn) == n_ok
+    xy = np.concatenate([np.column_stack([ln.get_xdata(), ln.get_ydata()]) for ln in drawn])
+    expected = np.column_stack([st.total("throttle_flow")[st.ok],
+                                st.total("generator_output")[st.ok] / 1e6])
+    np.testing.assert_allclose(np.sort(xy, axis=0), np.sort(expected, axis=0), rtol=1e-12)
+    # one line per node and series on the pressure chart; E8 is closed with HP8 out
+    ax = plot_node_pressures([st]).axes[0]
+    assert len([ln for ln in ax.lines if len(ln.get_xdata())]) == 2 * len(st.names["nodes"])
+    ax = plot_bleed_flows([st]).axes[0]
+    assert len([ln for ln in ax.lines if len(ln.get_xdata())]) == 2 * 8 - 1
+
+
+def test_charts_use_the_stored_numbers(results):
+    # the Willans line of the demo unit rises with flow (a fact of the trade: output is
+    # nearly proportional to throttle flow), and the stored output is what is drawn
+    st = read_study(results[0])
+    flow = st.total("throttle_flow")[st.series == 0]
+    power = st.total("generator_output")[st.series == 0]
+    assert np.all(np.diff(power) > 0) and np.all(np.diff(flow) > 0)
+    # HP8 out of service: more output at the same flow, higher heat rate (less
+    # regeneration) - common practice for a top heater out of service
+    p_out = st.total("generator_output")[st.series == 1]
+    hr_in = st.total("heat_rate")[st.series == 0]
+    hr_out = st.total("heat_rate")[st.series == 1]
+    assert np.all(p_out > power) and np.all(hr_out > hr_in)
+
+
+def test_saturation_line_against_steam_tables():
+    s, h = saturation_line()  # [J/(kg K)], [J/kg]
+    assert s[0] == pytest.approx(0.0, abs=0.5)  # liquid at the triple point [J/(kg K)]
+    assert s[-1] == pytest.approx(9155.5, rel=1e-3)  # vapour at the triple point
+    assert h.max() == pytest.approx(2803e3, rel=1e-3)
+
+
+def test_unknown_chart_and_too_many_files(results):
+    from simulator.errors import InputError
+
+    with pytest.raises(InputError, match="unknown chart"):
+        plot_study([results[0]], charts=["pie"])
+    with pytest.raises(InputError, match="one result file, or two"):
+        plot_study(list(results))
+
+
+def test_demo_command_writes_file_and_charts(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(ROOT)  # the demo case is found in ./cases
+    out = tmp_path / "demo"
+    assert main(["demo", "--output", str(out), "--workers", "2", "-q"]) == 0
+    st = read_study(out / "reheat_load_sweep.h5")
+    assert st.n_points == 30 and st.ok.all()
+    # the 15-point curves are continuous, with no jumps: along each series the output,
+    # every free node pressure and every open bleed rise with throttle flow and the heat
+    # rate falls (ellipse law and sliding pressure: common practice), and no step stands
+    # out: a second difference is below 0.3 of the largest first difference (measured
+    # at most 0.22, the heat rate's hyperbola; a jump to another solution would give 1-2)
+    names = st.names["nodes"]
+    for s in (0, 1):
+        m = st.series == s
+        assert m.sum() == 15
+        curves = {"output": st.total("generator_output")[m],
+                  "heat rate": -st.total("heat_rate")[m]}
+        for j, node in enumerate(names):
+            if node != "condenser":
+                curves[f"p {node}"] = st.data["nodes/pressure"][m, j]
+        for j, ex in enumerate(st.names["extractions"]):
+            if not (s == 1 and ex == "E8"):  # closed with HP8 out
+                curves[f"bleed {ex}"] = st.data["extractions/flow"][m, j]
+        for what, y in curves.items():
+            d1 = np.diff(y)
+            assert (d1 > 0).all(), what
+            assert np.abs(np.diff(d1)).max() < 0.3 * d1.max(), what
+    for c in CHARTS:
+        assert_chart(out / f"reheat_load_sweep_{c}.png")
+    # run again: the complete result is kept and the charts redrawn
+    assert main(["demo", "--output", str(out), "-q"]) == 0
+    assert "nothing to do" in capsys.readouterr().out
