@@ -134,7 +134,7 @@ def bench_profile(quick: bool) -> dict:
                 cmd += ["--limit", "876"]
             # peak memory of the study process and its workers: time -v is not on
             # every machine, so the child reports its own and its children's maxrss
-            wrapper = ("import resource, runpy, sys; sys.argv = sys.argv[1:]; "
+            wrapper = ("import resource, runpy, sys; sys.argv = ['partload'] + sys.argv[1:]; "
                        "code = 0\n"
                        "try:\n    runpy.run_module('simulator.cli', run_name='__main__')\n"
                        "except SystemExit as e:\n    code = e.code or 0\n"
@@ -142,7 +142,7 @@ def bench_profile(quick: bool) -> dict:
                        "c = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss\n"
                        "print('PEAK_KB', s, c, file=sys.stderr)\nsys.exit(code)")
             t = time.perf_counter()
-            proc = subprocess.run([sys.executable, "-c", wrapper, *cmd[1:]], cwd=ROOT,
+            proc = subprocess.run([sys.executable, "-c", wrapper, *cmd[3:]], cwd=ROOT,
                                   capture_output=True, text=True, timeout=900,
                                   env={**os.environ, "PYTHONPATH": str(ROOT)})
             wall = time.perf_counter() - t
@@ -150,7 +150,9 @@ def bench_profile(quick: bool) -> dict:
             for line in proc.stderr.splitlines():
                 if line.startswith("PEAK_KB"):
                     _, s_kb, c_kb = line.split()
-                    peak = (int(s_kb) + (int(c_kb) if workers > 1 else 0)) / 1024.0
+                    # upper bound of the total: the study process plus each worker at
+                    # the largest worker's peak (ru_maxrss of children is their maximum)
+                    peak = (int(s_kb) + (workers * int(c_kb) if workers > 1 else 0)) / 1024.0
             out[f"workers_{workers}"] = {
                 "wall_s": wall, "returncode": proc.returncode, "peak_memory_mb": peak,
                 "points": 876 if quick else 8760,
@@ -195,7 +197,11 @@ def bench_compare(quick: bool) -> dict:
     for f in fr[1:]:
         cond = Conditions(throttle_flow=f * m_d)
         eq = equations_for(model, cond, steam)
+        # both start where the default path starts: the neighbour scaled to this flow
+        # plus the secant step along the load
         x0 = eq.scaled_guess(prev.x, prev.flow_ratio)
+        if prev.x_slope is not None:
+            x0 = x0 + prev.x_slope * (eq.flow_ratio() - prev.flow_ratio)
         t = time.perf_counter()
         nr = newton(eq.residuals, x0, tol=TOL, jacobian=prev.jacobian)
         ours.append(time.perf_counter() - t)

@@ -13,6 +13,7 @@ Case file reference: see README.md, section "Case file".
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -155,20 +156,9 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
         problems.add(op.where.child("reheat_temperature").error("the model has no reheater"))
 
     controls = []
-    ex = data.get("extractions", {})
-    if not isinstance(ex, dict):
-        problems.add(Where(file, "extractions").error("expected tables [extractions.NAME]"))
-        ex = {}
     out_set = set()
-    for ename, edat in ex.items():
-        w = Where(file, f"extractions.{ename}")
-        if ename not in model.extractions:
-            import difflib
-
-            hint = difflib.get_close_matches(ename, list(model.extractions), n=1)
-            problems.add(w.error(f"the model has no extraction {ename!r}"
-                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
-            continue
+    for ename, w, edat in _named_tables(data, "extractions", model.extractions, "extraction",
+                                        file, problems):
         er = TableReader(edat, w, problems)
         control = er.string("control", choices=("closed", "flow", "fraction", "heater"))
         value = 0.0
@@ -188,19 +178,8 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
             out_set.add(e.heater)
         elif control is not None and value is not None:
             controls.append((ename, (control, float(value))))
-    hs = data.get("heaters", {})
-    if not isinstance(hs, dict):
-        problems.add(Where(file, "heaters").error("expected tables [heaters.NAME]"))
-        hs = {}
-    for hname, hdat in hs.items():
-        w = Where(file, f"heaters.{hname}")
-        if hname not in model.heaters:
-            import difflib
-
-            hint = difflib.get_close_matches(hname, list(model.heaters), n=1)
-            problems.add(w.error(f"the model has no heater {hname!r}"
-                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
-            continue
+    for hname, w, hdat in _named_tables(data, "heaters", model.heaters, "heater", file,
+                                        problems):
         hr = TableReader(hdat, w, problems)
         ins = hr.boolean("in_service", default=True)
         hr.finish()
@@ -213,21 +192,9 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))
     held = []
-    cv = data.get("control_valves", {})
-    if not isinstance(cv, dict):
-        problems.add(Where(file, "control_valves").error("expected tables "
-                                                        "[control_valves.NAME]"))
-        cv = {}
     valves = {c.name: c for c in model.control_valves}
-    for vname, vdat in cv.items():
-        w = Where(file, f"control_valves.{vname}")
-        if vname not in valves:
-            import difflib
-
-            hint = difflib.get_close_matches(vname, list(valves), n=1)
-            problems.add(w.error(f"the model has no control valve {vname!r}"
-                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
-            continue
+    for vname, w, vdat in _named_tables(data, "control_valves", valves, "control valve", file,
+                                        problems):
         vr = TableReader(vdat, w, problems, atmosphere=model.atmosphere)
         p_held = vr.quantity("pressure", "pressure", lo=P_MIN, hi=P_MAX)
         vr.finish()
@@ -237,6 +204,22 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
     return Conditions(m_T, out, governing, p_T, T_T, T_rh, p_x, tuple(sorted(controls)),
                       frozenset(out_set), held_pressures=tuple(sorted(held)))
 
+
+def _named_tables(data: dict, key: str, known, what: str, file: str, problems: Problems):
+    """``(name, where, table)`` of each ``[KEY.NAME]`` table whose NAME the model knows;
+    unknown names are reported with the closest known one."""
+    tables = data.get(key, {})
+    if not isinstance(tables, dict):
+        problems.add(Where(file, key).error(f"expected tables [{key}.NAME]"))
+        return
+    for name, table in tables.items():
+        w = Where(file, f"{key}.{name}")
+        if name not in known:
+            hint = difflib.get_close_matches(name, list(known), n=1)
+            problems.add(w.error(f"the model has no {what} {name!r}"
+                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
+            continue
+        yield name, w, table
 
 
 def override(cond: Conditions, **changes) -> Conditions:

@@ -121,6 +121,7 @@ class FeedwaterMarch:
                 steps.append((1, self.heaters[item], pos[item], item))
         self._steps = steps
         self._forward = [self.dest.get(h) == "forward" for h in self.active]
+        self._active_heaters = [self.heaters[h] for h in self.active]
 
     def evaluate(self, steam, p_node, h_node, bleed, m_fw: float, p_throttle: float,
                  detail: bool = False):
@@ -240,11 +241,12 @@ class FeedwaterMarch:
                 T_w = None
         residuals = [0.0] * n
         release = [0.0] * n
-        for k, h in enumerate(self.active):
-            ht = self.heaters[h]
+        ext = self._ext_node
+        into = self._into
+        for k, ht in enumerate(self._active_heaters):
             ref = h_drain[k]
-            q = bleed[k] * (h_node[self._ext_node[k]] - ref)
-            for j in self._into[k]:
+            q = bleed[k] * (h_node[ext[k]] - ref)
+            for j in into[k]:
                 q += drain_out[j] * (h_drain[j] - ref)
             release[k] = q
             residuals[k] = (ht.closure * q - duty[k]) / ht.duty_design

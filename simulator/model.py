@@ -187,6 +187,15 @@ def _correction_table(tr: TableReader, eta: float | None):
         return None
 
 
+def _edge_table(rr: TableReader, kind: str):
+    """Read the name and end nodes of a component table; once its name is known,
+    its messages name it (``[stage_group 'HP1']``) instead of its position."""
+    name = rr.string("name")
+    if name:
+        rr.where = Where(rr.where.file, f"{kind} '{name}'", None)
+    return rr, name, rr.string("from"), rr.string("to")
+
+
 def build_model(data: dict, text: str = "", file: str = "<model>",
                 steam: SteamTables | None = None) -> Model:
     """Validate model-file data, build the graph and calibrate it.
@@ -275,12 +284,7 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     # --- stage groups ------------------------------------------------------------
     groups: list[StageGroup] = []
     for i, g in enumerate(top.table_list("stage_group")):
-        gr = reader(g, f"stage_group[{i}]")
-        gname = gr.string("name")
-        if gname:
-            gr.where = Where(file, f"stage_group '{gname}'", None)
-        g_from = gr.string("from")
-        g_to = gr.string("to")
+        gr, gname, g_from, g_to = _edge_table(reader(g, f"stage_group[{i}]"), "stage_group")
         eta = gr.number("efficiency", lo=0.0, hi=1.0, lo_open=True)
         # The exhaust-loss curve already carries the last stage's losses at low
         # volume flow, so an exhaust group defaults to a constant efficiency.
@@ -311,12 +315,7 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     paths: list[PressureDropPath] = []
     for kind in ("reheater", "pipe"):
         for i, r in enumerate(top.table_list(kind)):
-            rr = reader(r, f"{kind}[{i}]")
-            rname = rr.string("name")
-            if rname:
-                rr.where = Where(file, f"{kind} '{rname}'", None)
-            r_from = rr.string("from")
-            r_to = rr.string("to")
+            rr, rname, r_from, r_to = _edge_table(reader(r, f"{kind}[{i}]"), kind)
             T_out = (rr.quantity("outlet_temperature", "temperature", lo=T_MIN, hi=T_MAX,
                                  reason=IF97)
                      if kind == "reheater" else None)
@@ -327,12 +326,8 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
 
     control_valves: list[ControlValve] = []
     for i, r in enumerate(top.table_list("control_valve")):
-        rr = reader(r, f"control_valve[{i}]")
-        rname = rr.string("name")
-        if rname:
-            rr.where = Where(file, f"control_valve '{rname}'", None)
-        r_from = rr.string("from")
-        r_to = rr.string("to")
+        rr, rname, r_from, r_to = _edge_table(reader(r, f"control_valve[{i}]"),
+                                              "control_valve")
         frac = rr.quantity("wide_open_drop", "fraction", default=None, lo=0.0, hi=0.5)
         rr.finish()
         if None in (rname, r_from, r_to):

@@ -221,12 +221,14 @@ class PointEquations:
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
         self.calls = 0
+        self._last = None
         self.set_conditions(cond)
 
     def set_conditions(self, cond: Conditions) -> None:
         """Set the operating values (flow or demand, pressures, temperatures)."""
         model = self.model
         self.cond = cond
+        self._last = None
         p_fix = [math.nan] * self.N
         for i in self.exhaust_idx:
             p_fix[i] = (cond.exhaust_pressure if cond.exhaust_pressure is not None
@@ -305,11 +307,18 @@ class PointEquations:
             raise _Bad(f"the equations cannot be evaluated at a trial point ({exc})") from None
 
     def evaluate(self, x, detail: bool = False):
-        """Residuals at ``x``; with ``detail``, also the full state as a dict."""
-        self.calls += 1
+        """Residuals at ``x``; with ``detail``, also the full state as a dict.
+
+        The march of the last call is kept, so that the detailed state of the
+        point Newton has just converged on costs no second march of the steam path.
+        """
         steam = self.steam
         N = self.N
         xs = x.tolist() if isinstance(x, np.ndarray) else list(x)
+        last = self._last
+        if detail and last is not None and last[0] == xs:
+            return self._detail(*last[1:])
+        self.calls += 1
         p = list(self.p_fix)
         exp = math.exp
         for k, i in enumerate(self.free):
@@ -345,9 +354,8 @@ class PointEquations:
         has_drop = self.has_drop
         p_design = self.p_design
         shaft = 0.0
-        groups = {} if detail else None
-        drops = {}
-        needed = {}  # wide-open drop of each holding control valve at its flow [Pa]
+        glist = []  # (name, expansion result) of every stage group, in march order
+        dlist = []  # (kind, component, inlet, outlet, flow, outlet enthalpy) of the others
         valve_drop_needed = 0.0
         limit = 1e-9 * md
         for i in range(N):
@@ -384,15 +392,12 @@ class PointEquations:
                     if r[9] == r[9]:
                         hl[j] = r[9]
                     shaft += m * (hi - h_out)
-                    if detail:
-                        groups[c.name] = r
+                    glist.append((c.name, r))
                     out_flow += m
                 elif kind == 3:  # holding its inlet pressure: passes the net flow
                     m = net
                     h_out = hi
-                    if detail:
-                        drops[c.name] = (m, pi - p[j], h_out)
-                        needed[c.name] = c.wide_open_drop(m, steam.v_ph(pi, hi))
+                    dlist.append((kind, c, i, j, m, h_out))
                     out_flow = m
                 else:
                     m = net
@@ -405,8 +410,7 @@ class PointEquations:
                     else:
                         dp = c.drop(m, v)
                         h_out = c.outlet_enthalpy(steam, p[j], hi, self.T_reheat)
-                    if detail:
-                        drops[c.name] = (m, pi - p[j], h_out)
+                    dlist.append((kind, c, i, j, m, h_out))
                     if row_of[i] >= 0:
                         F[row_of[i]] = (pi - p[j] - dp) / p_design[i]
                     out_flow = m
@@ -416,19 +420,35 @@ class PointEquations:
                 F[row_of[i]] = (net - out_flow) / md
         p_gen = self.model.generator.output(shaft)
         k = len(self.node_rows)
-        summary = None
         if self.fw is not None:
-            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src],
-                                            detail=detail)
+            res, _ = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src])
             F[k:k + self.n_h] = res
             k += self.n_h
         if self.demand:
             F[k] = (p_gen - self.cond.output) / self.model.generator.rating
         F = np.array(F)
+        self._last = (xs, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, p_gen,
+                      valve_drop_needed, glist, dlist)
         if not detail:
             return F, None
+        return self._detail(*self._last[1:])
+
+    def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, p_gen,
+                valve_drop_needed, glist, dlist):
+        """The full state of a marched point, as a dict (see :func:`_build_result`)."""
+        steam = self.steam
+        drops = {}
+        needed = {}  # wide-open drop of each holding control valve at its flow [Pa]
+        for kind, c, i, j, m, h_out in dlist:
+            drops[c.name] = (m, p[i] - p[j], h_out)
+            if kind == 3:
+                needed[c.name] = c.wide_open_drop(m, steam.v_ph(p[i], h[i]))
+        summary = None
+        if self.fw is not None:
+            _, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[self.src],
+                                          detail=True)
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
-                 "groups": groups, "drops": drops, "shaft": shaft, "p_gen": p_gen,
+                 "groups": dict(glist), "drops": drops, "shaft": shaft, "p_gen": p_gen,
                  "valve_drop_needed": valve_drop_needed, "feedwater": summary,
                  "control_valve_needed": needed}
         return F, state
@@ -657,9 +677,7 @@ def _build_result(model, cond, steam, eq, nr, F, st) -> PointResult:
     x = np.empty(N)
     for i in range(N):
         try:
-            T[i] = steam.T_ph(p[i], h[i])
-            s[i] = steam.s_ph(p[i], h[i])
-            x[i] = steam.x_ph(p[i], h[i])
+            T[i], s[i], x[i] = steam.Tsx_ph(p[i], h[i])
         except PropertyRangeError:
             T[i] = s[i] = x[i] = math.nan
     gnames = [c.name for c in model.groups]

@@ -70,6 +70,10 @@ class SteamTables:
     def vs_ph(self, p: float, h: float) -> tuple[float, float]:
         """Specific volume and entropy at one (p, h) state (one lookup where possible)."""
         return self.v_ph(p, h), self.s_ph(p, h)
+
+    def Tsx_ph(self, p: float, h: float) -> tuple[float, float, float]:
+        """Temperature, entropy and quality at one (p, h) state."""
+        return self.T_ph(p, h), self.s_ph(p, h), self.x_ph(p, h)
     def T_sat(self, p: float) -> float: ...
     def h_liq_sat(self, p: float) -> float: ...
     def h_vap_sat(self, p: float) -> float: ...
@@ -207,6 +211,19 @@ class Seuif97Tables(SteamTables):
         if kind == 2:
             return self._mix(P, t, 3), self._mix(P, t, 5) * 1e3
         return self._ph(P, H, 3), self._ph(P, H, 5) * 1e3
+
+    def Tsx_ph(self, p, h):
+        """Temperature [K], entropy [J/(kg K)] and quality [-] at one (p, h) state."""
+        P, H = p * 1e-6, h * 1e-3
+        kind, t = self._T_ph(P, H)
+        if kind == 0:
+            # single phase: liquid at or below the saturated-liquid enthalpy
+            x = 0.0 if P < 22.064 and H <= self._px(P, 0.0, 4) else 1.0
+            return t + 273.15, self._pt(P, t, 5) * 1e3, x
+        if kind == 2:
+            return self._px(P, 0.0, 1) + 273.15, self._mix(P, t, 5) * 1e3, t
+        return (self._ph(P, H, 1) + 273.15, self._ph(P, H, 5) * 1e3,
+                self._ph(P, H, 15))
 
     def x_ph(self, p, h):
         if P_MIN <= p <= P_MAX:

@@ -132,3 +132,15 @@ def test_seuif97_temperature_consistent_with_basic_equation():
     steam = get_backend("seuif97")
     for p, T in [(188e5, 500.0), (6.8e3, 300.0), (41e5, 611.0), (166e5, 811.15)]:
         assert steam.T_ph(p, steam.h_pT(p, T)) == pytest.approx(T, abs=1e-7)
+
+
+@pytest.mark.parametrize("p, h", [(166e5, 3.4e6), (6.8e3, 2.3e6), (188e5, 1.2e6), (3e4, 2.6e6),
+                                  (6.8e3, 161114.2), (3e4, 2624551.1)])
+def test_combined_state_equals_separate_calls(p, h):
+    steam = get_backend("seuif97")
+    T, s, x = steam.Tsx_ph(p, h)
+    assert T == pytest.approx(steam.T_ph(p, h), abs=1e-9)
+    assert s == pytest.approx(steam.s_ph(p, h), rel=1e-12)
+    assert x == pytest.approx(steam.x_ph(p, h), abs=1e-6)
+    v, s2 = steam.vs_ph(p, h)
+    assert v == pytest.approx(steam.v_ph(p, h), rel=1e-12) and s2 == pytest.approx(s, rel=1e-12)
