@@ -275,10 +275,10 @@ def main(argv=None) -> int:
         _target("warm point, median", pts["warm_ms"], 2.0, unit="ms"),
         _target("cold point, median", pts["cold_ms"], 20.0, unit="ms"),
         _target("8,760-point profile on 2 workers with HDF5", w2.get("wall_s"), 20.0, unit="s")
-        if not args.quick else None,
+        if not (args.quick or args.skip_profile) else None,
         _target("scaling exponent 10-200 groups (warm points)", sc["warm_exponent"], 1.3),
         _target("peak memory of the profile", w2.get("peak_memory_mb"), 400.0, unit="MB")
-        if not args.quick else None,
+        if not (args.quick or args.skip_profile) else None,
         _target("fsolve time / ours (warm points)", cmp_["fsolve_ratio"], 3.0, False, "x"),
         _target("iapws backend time / seuif97 (warm points)", cmp_["iapws_ratio"], 300.0,
                 False, "x"),

@@ -80,6 +80,10 @@ def load_case(path: str | Path, model: Model | None = None) -> Case:
     """Read a case file and the model it names."""
     path = Path(path)
     data, text = load_toml(path)
+    if "model" not in data and ("throttle" in data or "stage_group" in data):
+        raise InputError("this is a model file, not a case file; check it with "
+                         "'partload check', and solve it through a case file that names it "
+                         "with model = \"...\"", file=str(path))
     problems = Problems()
     top = TableReader(data, Where(str(path)), problems)
     model_ref = top.string("model")

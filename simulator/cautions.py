@@ -376,12 +376,82 @@ def _exhaust_temperature(pt: _Point) -> Caution | None:
         T, lim, g, "K")
 
 
+def _steam_temperature(pt: _Point) -> Caution | None:
+    model, cond = pt.model, pt.cond
+    name = "max_steam_temperature_rise"
+    lim = pt.limits[name]
+    hot = []
+    T_T = cond.throttle_temperature
+    if T_T is not None and T_T - model.throttle.temperature > lim:
+        hot.append((T_T - model.throttle.temperature, "throttle", T_T))
+    if cond.reheat_temperature is not None:
+        for c in model.paths:
+            if c.is_reheater and cond.reheat_temperature - c.outlet_temperature > lim:
+                hot.append((cond.reheat_temperature - c.outlet_temperature, c.name,
+                            cond.reheat_temperature))
+    if not hot:
+        return None
+    hot.sort(reverse=True)
+    dT, where, T = hot[0]
+    return Caution(
+        "steam_temperature",
+        f"Steam at the {where} is {_degc(T)}, {dT:.1f} K above its design temperature "
+        f"({pt.limit_text(name, f'{lim:.1f} K')})"
+        f"{_others([(o[1], f'+{o[0]:.1f} K') for o in hot[1:]])}: hotter steam spends the "
+        f"creep life of steam chests, valves, inlet blading and boiler outlet headers faster "
+        f"than designed; only short excursions are normally allowed. {DEFERENCE}",
+        dT, lim, where, "K")
+
+
+def _generator_output(pt: _Point) -> Caution | None:
+    name = "max_generator_output"
+    lim = pt.limits[name]
+    rating = pt.model.generator.rating
+    ratio = pt.result.totals["generator_output"] / rating
+    if not ratio > lim:
+        return None
+    return Caution(
+        "generator_output",
+        f"Generator output is {pt.result.totals['generator_output'] / 1e6:.1f} MW, "
+        f"{_pct(ratio)} of its {rating / 1e6:.1f} MW rating "
+        f"({pt.limit_text(name, _pct(lim))}): the windings run hotter than designed. "
+        f"{DEFERENCE}",
+        ratio, lim, "generator", "-")
+
+
+def _back_pressure(pt: _Point) -> Caution | None:
+    model, r = pt.model, pt.result
+    name = "max_back_pressure"
+    lim = pt.limits[name]
+    high = []
+    for n in model.exhaust_nodes:
+        ratio = float(r.node_p[pt.node_index(n)]) / model.design_pressure[n]
+        if ratio > lim:
+            high.append((ratio, n))
+    if not high:
+        return None
+    high.sort(reverse=True)
+    ratio, n = high[0]
+    p = float(r.node_p[pt.node_index(n)])
+    return Caution(
+        "back_pressure",
+        f"Exhaust pressure at {n!r} is {p / 1e3:.3g} kPa, {_pct(ratio)} of its design "
+        f"{model.design_pressure[n] / 1e3:.3g} kPa ({pt.limit_text(name, _pct(lim))})"
+        f"{_others([(o[1], _pct(o[0])) for o in high[1:]])}: a high back pressure loads the "
+        f"last-stage blades harder, heats the exhaust and, at low flow, can excite blade "
+        f"flutter. {DEFERENCE}",
+        ratio, lim, n, "-")
+
+
 CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "valves_wide_open": _valves_wide_open,
     "pressure_rise": _pressure_rise,
     "exhaust_moisture": _exhaust_moisture,
     "last_stage_volume_flow": _last_stage_volume_flow,
     "exhaust_temperature": _exhaust_temperature,
+    "steam_temperature": _steam_temperature,
+    "generator_output": _generator_output,
+    "back_pressure": _back_pressure,
 }
 """The checks by caution code, in the order their cautions are reported."""
 

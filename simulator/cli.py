@@ -2,7 +2,8 @@
 
 Exit codes: 0 success; 1 a point that cannot be solved (convergence, a limit of
 the machine, a property range); 2 a mistake in the input (file, table and key
-named) or in the command line; 3 a result file that is damaged or in the way.
+named) or in the command line; 3 a result file that is damaged or in the way, or a
+file or folder the command cannot read or write.
 ``--debug`` shows the traceback of any error.
 """
 
@@ -55,6 +56,10 @@ def _cmd_point(args) -> int:
     from .solve import solve_point
 
     case = load_case(args.case)
+    if "sweep" in case.data or "profile" in case.data:
+        print(f"partload: note: {args.case} also defines a study ([sweep] or [profile]); "
+              f"'point' solves its base point only, 'partload study' runs the study",
+              file=sys.stderr)
     backend = args.backend or case.backend
     result = solve_point(case.model, case.conditions, backend)
     cautions = _cautions(case.model, case.conditions, result)
@@ -66,10 +71,8 @@ def _cmd_point(args) -> int:
 
 
 def _cautions(model, cond, result):
-    try:
-        from .cautions import check_point
-    except ImportError:  # pragma: no cover - cautions module is optional during development
-        return []
+    from .cautions import check_point
+
     return check_point(model, cond, result)
 
 
@@ -98,12 +101,9 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
     c.set_defaults(func=_cmd_point)
 
-    try:
-        from . import study_cli
-    except ImportError:
-        study_cli = None
-    if study_cli is not None:
-        study_cli.add_commands(sub)
+    from . import study_cli
+
+    study_cli.add_commands(sub)
     return p
 
 
@@ -141,6 +141,12 @@ def main(argv: list[str] | None = None) -> int:
         except OSError:
             pass
         return 0
+    except OSError as exc:  # a folder or file the command cannot write or read
+        if args.debug:
+            traceback.print_exc()
+        where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+        print(f"partload: file system: {where}{exc.strerror or exc}", file=sys.stderr)
+        return 3
 
 
 if __name__ == "__main__":

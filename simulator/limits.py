@@ -9,6 +9,9 @@ manufacturer's where they are known::
     min_last_stage_volume_flow = "30 %"     # of the design volume flow
     max_pressure_rise = "5 %"               # any node above its design pressure
     max_exhaust_temperature = "80 degC"     # steam leaving a last-stage annulus
+    max_steam_temperature_rise = "0 K"      # throttle and reheat above design
+    max_generator_output = "100 %"          # of the generator rating
+    max_back_pressure = "250 %"             # of the design exhaust pressure
 
 Keys left out take the defaults below.  The defaults are common practice of
 the trade, not taken from a published source or from any one manufacturer;
@@ -37,6 +40,20 @@ Defaults and why
         which a planner should know.  Alarm and trip settings are usually
         higher, about 100-120 degC, and too late to plan by (common practice,
         no source).
+    ``max_steam_temperature_rise`` 0 K
+        Steam hotter than design at the throttle or after the reheater spends
+        the creep life of steam chests, valves, inlet blading and boiler
+        outlet headers faster than designed; short excursions are usually
+        allowed by the manufacturer, continuous operation is not (common
+        practice, no source).
+    ``max_generator_output`` 100 % of rating
+        Above its rating the generator's windings run hotter than designed
+        (common practice, no source).
+    ``max_back_pressure`` 250 % of the design exhaust pressure
+        A condenser pressure far above design loads the last-stage blades
+        harder and, at low flow, heats the exhaust and can excite blade
+        flutter; 250 % is roughly where alarms are set on condensing units
+        designed for 5-10 kPa (common practice, no source).
 """
 
 from __future__ import annotations
@@ -98,6 +115,12 @@ LIMITS: dict[str, LimitSpec] = {spec.name: spec for spec in (
               "largest rise of a node pressure above its design value, over that value [-]"),
     LimitSpec("max_exhaust_temperature", "temperature", "80 degC", T_MIN, T_MAX,
               "highest temperature of the steam leaving a last-stage annulus [K]"),
+    LimitSpec("max_steam_temperature_rise", "temperature_difference", "0 K", -1e-9, 100.0,
+              "largest excess of throttle or reheat temperature over its design value [K]"),
+    LimitSpec("max_generator_output", "fraction", "100 %", 0.0, 2.0,
+              "largest generator output, over the rating [-]"),
+    LimitSpec("max_back_pressure", "fraction", "250 %", 0.0, 100.0,
+              "largest exhaust (back) pressure, over its design value [-]"),
 )}
 
 

@@ -204,6 +204,9 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     :class:`~simulator.errors.InputError`.
     """
     steam = steam or get_backend("seuif97")
+    if isinstance(data, dict) and "model" in data and "throttle" not in data:
+        raise InputError("this is a case file (it names a model), not a model file; "
+                         "solve it with 'partload point' or 'partload study'", file=file)
     problems = Problems()
     top = TableReader(data, Where(file, None, None), problems)
     about = top.sub("about", default={})

@@ -19,6 +19,7 @@ Thermodynamic Properties of Water and Steam", J. Eng. Gas Turbines Power
 
 Consistency: ``seuif97`` evaluates (p, h) and (p, s) states with the IF97
 backward equations, which agree with the basic equations only to 10-25 mK
+(from memory of IAPWS R7-97(2012))
 and jump at sub-region boundaries and at the saturation line.  This module
 adds one Newton step on the basic equation for single-phase states, so that
 every function here is continuous and consistent with the basic equations to

@@ -181,10 +181,19 @@ def _open(path: Path, mode: str) -> h5py.File:
         return h5py.File(path, mode)
     except OSError as exc:
         text = str(exc)
-        if "lock" in text.lower():
+        if "unable to lock file" in text.lower():
             raise ResultFileError(f"{path} is in use by another process (a study still "
                                   f"running?): {text}") from None
         raise ResultFileError(f"{path} cannot be read as HDF5; it is damaged ({text})") from None
+
+
+def _in_use(path: Path) -> bool:
+    """Whether another process holds the file open for writing (its HDF5 lock)."""
+    try:
+        h5py.File(path, "r").close()  # a locking open: refused while a writer holds it
+    except OSError as exc:
+        return "unable to lock file" in str(exc).lower()
+    return False
 
 
 def _check_ours(f: h5py.File, path: Path) -> None:
@@ -262,6 +271,10 @@ def check_target(path: str | Path, *, resume: bool = False, force: bool = False)
                                   f"'format = {FORMAT}' attribute); partload will not "
                                   f"overwrite it, even with --force")
         if force:
+            if _in_use(path):
+                raise ResultFileError(f"{path} is in use by another process (a study still "
+                                      f"running?); partload will not replace it while it "
+                                      f"is being written")
             return "replace"
         if resume:
             return "resume"
@@ -434,7 +447,11 @@ def _write_structure(f: h5py.File, plan: StudyPlan, layout: ResultLayout) -> Non
     a["property_backend"] = plan.backend
     a["units"] = "SI; every numeric dataset states its unit in its 'unit' attribute"
     a["model_name"] = model.name
-    a["model_file"] = str(model.file)
+    # as the case file names it (relative to the case), not this machine's path
+    try:
+        a["model_file"] = os.path.relpath(model.file, Path(case.file).resolve().parent)
+    except ValueError:  # another drive
+        a["model_file"] = Path(model.file).name
     a["model_sha256"] = model.sha256
     a["case_name"] = case.name
     a["case_description"] = case.description
@@ -502,6 +519,12 @@ def _write_structure(f: h5py.File, plan: StudyPlan, layout: ResultLayout) -> Non
         if fl.unit:
             ds.attrs["unit"] = fl.unit
         ds.attrs["description"] = fl.description
+
+    def dimensionless(name, obj):  # every numeric dataset states a unit
+        if isinstance(obj, h5py.Dataset) and obj.dtype.kind in "iuf" and "unit" not in obj.attrs:
+            obj.attrs["unit"] = "-"
+
+    f.visititems(dimensionless)
 
 
 def _check_same_study(f: h5py.File, path: Path, plan: StudyPlan) -> None:

@@ -439,8 +439,14 @@ def _linear_unit(kind: AxisKind, unit: str, w: Where) -> tuple[float, float]:
     if not unit:
         raise w.error(f"this column needs its unit in the header, for example "
                       f"'{w.key} [{_EXAMPLE_UNIT.get(kind.dimension, 'unit')}]'")
-    y1 = parse(f"1 {unit}", kind.dimension, w)
-    y2 = parse(f"2 {unit}", kind.dimension, w)
+    try:
+        y1 = parse(f"1 {unit}", kind.dimension, w)
+        y2 = parse(f"2 {unit}", kind.dimension, w)
+    except InputError:
+        ex = _EXAMPLE_UNIT.get(kind.dimension, "unit")
+        raise w.error(f"the column header '{w.key} [{unit}]' gives the unit [{unit}], which is "
+                      f"not an absolute {kind.dimension.replace('_', ' ')} unit; write for "
+                      f"example '{w.key} [{ex}]'") from None
     return y2 - y1, 2.0 * y1 - y2
 
 

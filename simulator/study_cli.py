@@ -222,7 +222,7 @@ def add_commands(sub) -> None:
                    help=f"local worker processes (default: the CPUs available, here "
                         f"{default_workers()}); 1 solves in this process")
     c.add_argument("--scheduler", default=None, metavar="ADDR",
-                   help="address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
+                   help="address of a running Dask scheduler, e.g. tcp://127.0.0.1:8786 "
                         "(needs pip install 'partload[cluster]'); replaces --workers")
     g = c.add_mutually_exclusive_group()
     g.add_argument("--resume", action="store_true",

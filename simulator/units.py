@@ -10,7 +10,7 @@ those SI numbers and refuses anything of the wrong dimension with an
 
 Gauge pressures (``barg``, ``psig``, ``kPag``) are accepted only when the file
 states its local atmospheric pressure; absolute units (``bar``, ``bara``,
-``psia``, ``psi``, ``kPa``, ``MPa``, ``inHg``, ``mmHg``) always are.
+``psia``, ``kPa``, ``MPa``, ``inHg``, ``mmHg``) always are.
 """
 
 from __future__ import annotations
@@ -25,7 +25,7 @@ from .errors import InputError
 __all__ = ["Where", "parse", "format_like", "DIMENSIONS"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
-_GAUGE = {"barg": "bar", "psig": "psi", "kpag": "kPa", "mpag": "MPa"}
+_GAUGE = {"barg": "bar", "psig": "psia", "kpag": "kPa", "mpag": "MPa"}
 
 
 @dataclass(frozen=True)
@@ -144,6 +144,9 @@ def parse(value, dimension: str, where: Where, atmosphere: float | None = None) 
         raise where.error(f"expected {_article(dimension)} {dimension.replace('_', ' ')} such "
                           f"as {example!r}, got {value!r}")
     number, unit = _split(value, where)
+    if dimension == "pressure" and unit == "psi":
+        raise where.error(f"{value!r}: write 'psia' (absolute) or 'psig' (gauge); bare 'psi' "
+                          f"is read both ways in practice")
     if dimension == "fraction":
         if unit in ("", "-"):
             return number

@@ -225,7 +225,8 @@ def test_every_caution_defers_and_serialises(reheat_model):
 def test_registry_order_and_one_caution_per_code(reheat_model):
     assert CAUTION_CODES == tuple(CHECKS) == ("valves_wide_open", "pressure_rise",
                                               "exhaust_moisture", "last_stage_volume_flow",
-                                              "exhaust_temperature")
+                                              "exhaust_temperature", "steam_temperature",
+                                              "generator_output", "back_pressure")
     # overload everywhere: one pressure_rise caution naming the worst node, not ten
     _, found = solved(reheat_model, Conditions(throttle_flow=300.0), check_limits=False)
     assert codes(found).count("pressure_rise") == 1
@@ -239,3 +240,35 @@ def test_check_point_on_a_case_does_not_change_the_answer():
     check_point(case.model, case.conditions, r)
     check_point(case.model, override(case.conditions), r)
     assert (r.node_p == before[0]).all() and r.totals == before[1]
+
+
+def test_hot_steam_caution(reheat_model):
+    # 20 K above the design throttle temperature (538 degC in the model file)
+    _, found = solved(reheat_model, Conditions(throttle_flow=200.0,
+                                               throttle_temperature=811.15 + 20.0))
+    c = caution(found, "steam_temperature")
+    assert c.where == "throttle" and c.value == pytest.approx(20.0)
+    assert "creep" in c.message
+    # at design temperatures it stays quiet (identity: 0 K above design)
+    _, found = solved(reheat_model, Conditions(throttle_flow=200.0,
+                                               throttle_temperature=811.15))
+    assert "steam_temperature" not in codes(found)
+
+
+def test_generator_above_rating_caution(reheat_model):
+    # HP7 and HP8 out near full flow: more steam reaches the IP and LP, output
+    # above the 350 MW rating (regression: about 354 MW)
+    cond = Conditions(throttle_flow=280.0, heaters_out=frozenset({"HP7", "HP8"}))
+    r, found = solved(reheat_model, cond, check_limits=False)
+    assert r.totals["generator_output"] > reheat_model.generator.rating
+    c = caution(found, "generator_output")
+    assert c.value == pytest.approx(r.totals["generator_output"] / 350e6)
+
+
+def test_high_back_pressure_caution(reheat_model):
+    # 20 kPa against 6.8 kPa design: 294 % of design, above the 250 % default
+    _, found = solved(reheat_model, Conditions(throttle_flow=200.0, exhaust_pressure=20e3))
+    c = caution(found, "back_pressure")
+    assert c.value == pytest.approx(20.0 / 6.8) and c.where == "condenser"
+    _, found = solved(reheat_model, Conditions(throttle_flow=200.0, exhaust_pressure=15e3))
+    assert "back_pressure" not in codes(found)

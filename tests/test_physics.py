@@ -58,6 +58,7 @@ def test_velocity_ratio_parabola():
 
 
 def test_table_correction_interpolates_and_holds_ends():
+    # hand calculation: halfway between 0.4 and 0.8 the ratio is halfway, 0.88
     f = make_table_correction([0.4, 0.8, 1.0], [0.8, 0.96, 1.0])
     assert f(0.6, 1.0) == pytest.approx(0.88)
     assert f(0.1, 1.0) == pytest.approx(0.8)
@@ -92,6 +93,7 @@ def test_expansion_closed_form_equals_fixed_point(h_in, y_in):
 
 
 def test_expansion_dry_end_is_plain_efficiency():
+    # hand calculation: a dry end is h_in - eta dh_s = 3400 - 0.85 * 200 kJ/kg
     assert expansion_end(3.4e6, 2e5, 0.85, 0.0, 1e6, 2.7e6) == pytest.approx(3.4e6 - 1.7e5)
 
 
@@ -99,6 +101,8 @@ def test_used_energy_end_point_hand_value():
     # UEEP = ELEP + L * 0.87 * (1 - y)(1 - 0.65 y): L = 30 kJ/kg, y = 0.10:
     # 30 * 0.87 * 0.9 * 0.935 = 21.96 kJ/kg (hand calculation, Spencer-Cotton-Cannon form)
     assert used_energy_end_point(2.3e6, 3.0e4, 0.10) == pytest.approx(2.3e6 + 21963.15)
+    # hand calculations: 100 kg/s * 18 m^3/kg / 8 m^2 = 225 m/s; halfway between
+    # the curve points 200 and 300 m/s the loss is halfway, 25 kJ/kg
     assert annulus_velocity(100.0, 18.0, 8.0) == pytest.approx(225.0)
     assert exhaust_loss(225.0, [100.0, 200.0, 300.0], [30e3, 20e3, 40e3]) == pytest.approx(25e3)
 
@@ -113,6 +117,7 @@ def test_generator_output_satisfies_its_loss_equation():
 
 
 def test_scaled_pressure_drop_quadratic_in_flow():
+    # hand calculation: half the flow, a quarter of the drop; twice the volume, twice
     assert scaled_pressure_drop(50.0, 0.1, 4e5, 100.0, 0.1) == pytest.approx(1e5)
     assert scaled_pressure_drop(100.0, 0.2, 4e5, 100.0, 0.1) == pytest.approx(8e5)
 

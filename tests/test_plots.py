@@ -124,6 +124,8 @@ def test_charts_use_the_stored_numbers(results):
 def test_saturation_line_against_steam_tables():
     s, h = saturation_line()  # [J/(kg K)], [J/kg]
     assert s[0] == pytest.approx(0.0, abs=0.5)  # liquid at the triple point [J/(kg K)]
+    # IAPWS R7-97(2012) saturation properties (from memory): s'' = 9.1555 kJ/(kg K) at
+    # the triple point; h'' peaks at about 2803 kJ/kg near 3 MPa
     assert s[-1] == pytest.approx(9155.5, rel=1e-3)  # vapour at the triple point
     assert h.max() == pytest.approx(2803e3, rel=1e-3)
 

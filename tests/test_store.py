@@ -112,6 +112,7 @@ def test_layout_reads_back_with_h5py_alone(sweep_file):
         # the README example
         ok = f["solver/status"][:] == 0
         p_cross = f["nodes/pressure"][ok, nodes.index("crossover")] / 1e5
+        # crossover above 1 bar at any load of this sweep (design 4.6 bar; regression)
         assert p_cross.shape == (8,) and (p_cross > 1.0).all()
         # values equal a point solved on its own
         for i in (1, 7):

@@ -251,6 +251,8 @@ def test_shipped_hourly_profile_is_a_year():
     plan = plan_study(load_case(ROOT / "cases" / "reheat_hourly_profile.toml"))
     assert plan.n_points == 8760
     out = plan.inputs["output"].values / 350e6  # fraction of the 350 MW rating
+    # the generator script's bounds: dispatch between 45 % and 95 % of rating, condenser
+    # 4-11 kPa over the seasons (invented data; regression values of that script)
     assert 0.45 <= out.min() < 0.5 and 0.9 < out.max() <= 0.95
     p = plan.inputs["exhaust_pressure"].values
     assert 4e3 < p.min() < 5.5e3 and 9.5e3 < p.max() < 11e3

@@ -101,7 +101,7 @@ def baumann_factor(y_mean: float, alpha: float = 1.0) -> float:
     ----------
     y_mean : mean moisture fraction of the expansion, inlet and outlet averaged [-]
     alpha : Baumann factor [-]; 1 is Baumann's own value, measured values span
-        about 0.4-2.5.
+        about 0.4-2.5 (range quoted from memory of the literature).
 
     Reference: K. Baumann, "Some recent developments in large steam turbine
     practice", J. Inst. Electrical Engineers 59(302), 565-623, 1921.

@@ -13,7 +13,8 @@ that it holds for real steam, including wet steam.
 Assumptions: many stages in series, no choking change of the group, flow
 angles unchanged off-design.  Accurate within about 1 % for groups of three or
 more stages over 30-110 % flow; less so for a single stage or near zero
-pressure ratio change.
+pressure ratio change (common practice, no source; Cooke 1985 discusses the
+accuracy).
 
 References
 ----------

@@ -6,7 +6,7 @@ dynamic head, ``rho c^2 / 2 = m^2 v / (2 A^2)``, so from a design point
 .. math::  \\Delta p = \\Delta p_d (m / m_d)^2 (v / v_d)
 
 Assumption: friction factor constant (fully rough turbulent flow), which holds
-well for reheaters and steam lines at 30-110 % flow.
+well for reheaters and steam lines at 30-110 % flow (common practice, no source).
 
 Reference: common practice; the quadratic law follows from the Darcy-Weisbach
 equation with a constant friction factor (any fluid-mechanics text, e.g.
