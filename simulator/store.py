@@ -257,6 +257,10 @@ def check_target(path: str | Path, *, resume: bool = False, force: bool = False)
         raise ResultFileError(f"{path} exists and is not an HDF5 file; partload will not "
                               f"overwrite it, even with --force (move or delete it, or choose "
                               f"another --output)")
+    if force and _in_use(path):  # checked before this process opens it (HDF5 shares handles)
+        raise ResultFileError(f"{path} is in use by another process (a study still "
+                              f"running?); partload will not replace it while it is being "
+                              f"written")
     try:
         f = _open(path, "r")
     except ResultFileError:
@@ -271,10 +275,6 @@ def check_target(path: str | Path, *, resume: bool = False, force: bool = False)
                                   f"'format = {FORMAT}' attribute); partload will not "
                                   f"overwrite it, even with --force")
         if force:
-            if _in_use(path):
-                raise ResultFileError(f"{path} is in use by another process (a study still "
-                                      f"running?); partload will not replace it while it "
-                                      f"is being written")
             return "replace"
         if resume:
             return "resume"

@@ -72,3 +72,22 @@ def test_installed_command_runs():
                           capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
     assert json.loads(proc.stdout)["totals"]["makeup_flow"] == pytest.approx(25.0, rel=1e-6)
+
+
+def test_wrong_kind_of_file_is_named(capsys):
+    assert main(["check", str(ROOT / "cases/reheat_part_load.toml")]) == 2
+    assert "this is a case file" in capsys.readouterr().err
+    assert main(["point", str(ROOT / "models/demo_reheat_unit.toml")]) == 2
+    assert "this is a model file" in capsys.readouterr().err
+
+
+def test_bare_psi_is_refused_and_gauge_needs_the_atmosphere():
+    from simulator.errors import InputError
+    from simulator.units import Where, parse
+
+    with pytest.raises(InputError, match="psia"):
+        parse("2400 psi", "pressure", Where("m.toml", "nodes", "throttle"))
+    # 100 psig at 1.01325 bar: 689,475.7 Pa + 101,325 Pa (1 psi = 6,894.757 Pa, NIST SP 811)
+    assert parse("100 psig", "pressure", Where(), 101325.0) == pytest.approx(790800.7, rel=1e-7)
+    with pytest.raises(InputError, match="atmospheric"):
+        parse("100 psig", "pressure", Where("m.toml", "nodes", "x"))

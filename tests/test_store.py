@@ -250,6 +250,44 @@ def test_foreign_and_damaged_files_are_refused(sweep_file, tmp_path, capsys):
     assert read_study(damaged).done.all()
 
 
+def test_a_result_being_written_is_not_replaced(sweep_file, tmp_path, capsys):
+    # another process holds the file open for writing (as a running study does)
+    case, out = sweep_file
+    busy = tmp_path / "busy.h5"
+    shutil.copy(out, busy)
+    holder = subprocess.Popen(
+        [sys.executable, "-c", "import h5py, sys, time; f = h5py.File(sys.argv[1], 'r+'); "
+         "print('open', flush=True); time.sleep(30)", str(busy)], stdout=subprocess.PIPE,
+        text=True)
+    try:
+        assert holder.stdout.readline().strip() == "open"
+        before = busy.read_bytes()
+        assert run_cli("study", case, "--workers", "1", "--output", busy, "-q", "--force") == 3
+        assert "in use" in capsys.readouterr().err
+        assert busy.read_bytes() == before
+    finally:
+        holder.kill()
+        holder.wait()
+
+
+def test_damaged_file_is_called_damaged_not_in_use(sweep_file, tmp_path, capsys):
+    _, out = sweep_file
+    cut = tmp_path / "cut.h5"
+    cut.write_bytes(out.read_bytes()[:5000])
+    assert run_cli("plot", cut, "--output", tmp_path) == 3
+    err = capsys.readouterr().err
+    assert "damaged" in err and "in use" not in err
+
+
+def test_unwritable_output_folder_is_a_clear_error(sweep_file, tmp_path, capsys):
+    _, out = sweep_file
+    blocker = tmp_path / "afile"
+    blocker.write_text("x", encoding="utf-8")
+    assert run_cli("export", out, "--output", blocker / "sub") == 3
+    err = capsys.readouterr().err
+    assert "afile" in err and "Traceback" not in err
+
+
 # ------------------------------------------------------ kill and resume
 @pytest.fixture(scope="module")
 def long_case(tmp_path_factory):
