@@ -38,6 +38,9 @@ __all__ = [
     "Generator",
     "Heater",
     "Pump",
+    "Boiler",
+    "FeedwaterTrain",
+    "H_DRY",
 ]
 
 
