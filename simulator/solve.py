@@ -100,6 +100,8 @@ class PointResult:
     jacobian: np.ndarray = field(repr=False, default=None)
     flow_ratio: float = 1.0
     x_slope: np.ndarray = field(repr=False, default=None)
+    x_curvature: np.ndarray = field(repr=False, default=None)
+    slope_from: float = math.nan  # flow ratio of the point the slope was taken from
     wide_open_valves: frozenset = frozenset()
 
     def node(self, name: str) -> dict:
@@ -535,6 +537,11 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     result.wide_open_valves = wide
     if scaled is not None and abs(r - neighbour.flow_ratio) > 1e-9:
         result.x_slope = (nr.x - scaled) / (r - neighbour.flow_ratio)
+        result.slope_from = neighbour.flow_ratio
+        if neighbour.x_slope is not None and abs(r - neighbour.slope_from) > 1e-9:
+            # second divided difference, for a quadratic predictor at the next point
+            result.x_curvature = ((result.x_slope - neighbour.x_slope)
+                                  / (r - neighbour.slope_from))
     return result
 
 
@@ -550,6 +557,8 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
         step = r - neighbour.flow_ratio
         if neighbour.x_slope is not None and abs(step) < 0.15:
             guess = scaled + neighbour.x_slope * step  # secant predictor along the load
+            if neighbour.x_curvature is not None:  # quadratic through three points
+                guess = guess + neighbour.x_curvature * step * (r - neighbour.slope_from)
         jacobian = neighbour.jacobian if jacobian is None else jacobian
     usable = guess is not None and len(guess) == eq.n
     x0 = np.asarray(guess, float) if usable else eq.guess()

@@ -38,12 +38,31 @@ def test_demo_cases_plain_newton_equals_default(case_path):
 def test_continuation_along_a_sweep_equals_cold_points(reheat_model):
     m_d = reheat_model.throttle.flow
     prev = None
+    evaluations = []
     for f in np.linspace(0.45, 1.0, 12):
         cond = Conditions(throttle_flow=f * m_d)
         warm = solve_point(reheat_model, cond, neighbour=prev)
         cold = solve_point(reheat_model, cond, broyden=False)
         _same(warm, cold)
+        evaluations.append(warm.evaluations)
         prev = warm
+    # continuation starts every point from its neighbour and its Jacobian: fewer
+    # residual evaluations than the first, cold point, which forms a Jacobian
+    # (regression of the method; counts, not timings)
+    assert max(evaluations[1:]) < evaluations[0]
+
+
+def test_fine_sweep_needs_one_or_two_iterations(reheat_model):
+    # In a fine sweep the quadratic predictor through the last three solutions
+    # starts Newton so close that one or two iterations reach 1e-10 (regression of
+    # the continuation method; iteration counts, not timings).
+    m_d = reheat_model.throttle.flow
+    prev = None
+    iterations = []
+    for f in np.linspace(0.6, 0.7, 25):
+        prev = solve_point(reheat_model, Conditions(throttle_flow=f * m_d), neighbour=prev)
+        iterations.append(prev.iterations)
+    assert np.median(iterations[3:]) <= 2 and max(iterations[3:]) <= 3 < iterations[0]
 
 
 def test_continuation_across_changing_exhaust_pressure(reheat_model):
