@@ -88,10 +88,6 @@ class StageGroup:
     design_flow: float | None = None
     exhaust: ExhaustEnd | None = None
 
-    def flow(self, p_in: float, p_out: float, v_in: float) -> float:
-        """Mass flow [kg/s] by the ellipse law (Stodola 1927; Cooke 1985)."""
-        return ellipse_flow(p_in, p_out, v_in, self.K)
-
     def expand(self, steam, p_in: float, h_in: float, p_out: float, y_in: float | None = None):
         """Flow and end state of the group for inlet ``(p_in, h_in)`` and ``p_out``.
 

@@ -283,7 +283,7 @@ class FeedwaterMarch:
                                  m_water=through[s_of[k]],
                                  drain_out=drain_out[k], duty=duty[k],
                                  steam_release=release[k], residual=residuals[k])
-                hs.T_sat = steam.T_sat(p_sh[k])
+                hs.T_sat = T_sat[k] if kind == 1 else steam.T_sat(p_sh[k])
                 if kind == 1:
                     hs.T_in, hs.T_out = T_in[k], T_out[k]
                     hs.T_drain = steam.T_ph(p_sh[k], h_drain[k])

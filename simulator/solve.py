@@ -222,7 +222,6 @@ class PointEquations:
         self.unknown_names = ([f"ln p({names[i]})" for i in self.free]
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
-        self.calls = 0
         self._last = None
         self.set_conditions(cond)
 
@@ -320,7 +319,6 @@ class PointEquations:
         last = self._last
         if detail and last is not None and last[0] == xs:
             return self._detail(*last[1:])
-        self.calls += 1
         p = list(self.p_fix)
         exp = math.exp
         for k, i in enumerate(self.free):
