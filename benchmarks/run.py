@@ -30,13 +30,13 @@ from scipy.optimize import fsolve
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from simulator import __version__  # noqa: E402
-from simulator.case import Conditions  # noqa: E402
-from simulator.model import build_model, load_model  # noqa: E402
-from simulator.newton import newton  # noqa: E402
-from simulator.solve import TOL, equations_for, solve_point  # noqa: E402
-from simulator.steam import get_backend  # noqa: E402
-from simulator.synthetic import synthetic_model_data  # noqa: E402
+from partload import __version__  # noqa: E402
+from partload.plant.case import Conditions  # noqa: E402
+from partload.plant.model import build_model, load_model  # noqa: E402
+from partload.plant.synthetic import synthetic_model_data  # noqa: E402
+from partload.solve.newton import newton  # noqa: E402
+from partload.solve.point import TOL, equations_for, solve_point  # noqa: E402
+from partload.steam.if97 import get_backend  # noqa: E402
 
 MODEL = ROOT / "models" / "demo_reheat_unit.toml"
 
@@ -128,7 +128,7 @@ def bench_profile(quick: bool) -> dict:
     for workers in (1, 2):
         with tempfile.TemporaryDirectory() as tmp:
             target = Path(tmp) / "profile.h5"
-            cmd = [sys.executable, "-m", "simulator.cli", "study", str(case), "--workers",
+            cmd = [sys.executable, "-m", "partload.cli", "study", str(case), "--workers",
                    str(workers), "--output", str(target)]
             if quick:
                 cmd += ["--limit", "876"]
@@ -136,7 +136,7 @@ def bench_profile(quick: bool) -> dict:
             # every machine, so the child reports its own and its children's maxrss
             wrapper = ("import resource, runpy, sys; sys.argv = ['partload'] + sys.argv[1:]; "
                        "code = 0\n"
-                       "try:\n    runpy.run_module('simulator.cli', run_name='__main__')\n"
+                       "try:\n    runpy.run_module('partload.cli', run_name='__main__')\n"
                        "except SystemExit as e:\n    code = e.code or 0\n"
                        "s = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss\n"
                        "c = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss\n"

@@ -16,7 +16,6 @@ Everything inside is SI: Pa, K, J/kg, J/(kg K), m^3/kg, kg/s, W.
 
 __version__ = "0.1.0"
 
-from .case import Conditions, load_case  # noqa: E402
 from .errors import (  # noqa: E402
     ConvergenceError,
     InfeasibleError,
@@ -27,8 +26,9 @@ from .errors import (  # noqa: E402
     SolveError,
     TopologyError,
 )
-from .model import Model, load_model  # noqa: E402
-from .solve import PointResult, solve_point  # noqa: E402
+from .plant.case import Conditions, load_case  # noqa: E402
+from .plant.model import Model, load_model  # noqa: E402
+from .solve.point import PointResult, solve_point  # noqa: E402
 
 __all__ = [
     "__version__", "Conditions", "load_case", "load_model", "Model", "PointResult",

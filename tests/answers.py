@@ -57,7 +57,7 @@ def flatten(r) -> dict[str, float]:
 
 def study_points(case):
     """``(index, conditions)`` of the recorded points of a case's study (empty if none)."""
-    from simulator.study import plan_study
+    from partload.study.core import plan_study
 
     if "sweep" not in case.data and "profile" not in case.data:
         return []
@@ -69,9 +69,9 @@ def study_points(case):
 
 def solve_all():
     """``{key: flattened point or error text}`` for every recorded point."""
-    from simulator.case import load_case
-    from simulator.errors import SolveError
-    from simulator.solve import solve_point
+    from partload.errors import SolveError
+    from partload.plant.case import load_case
+    from partload.solve.point import solve_point
 
     out = {}
     for path in sorted(CASES.glob("*.toml")):

@@ -5,8 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
-
-from simulator.model import load_model
+from partload.plant.model import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 MODELS = ROOT / "models"

@@ -7,7 +7,7 @@ import tomllib
 from collections import defaultdict
 from pathlib import Path
 
-from simulator.model import build_model
+from partload.plant.model import build_model
 
 MODELS = Path(__file__).resolve().parent.parent / "models"
 

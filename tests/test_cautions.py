@@ -8,9 +8,7 @@ from pathlib import Path
 
 import pytest
 from helpers import variant
-
-from simulator.case import Conditions, load_case, override
-from simulator.cautions import (
+from partload.cautions.checks import (
     CAUTION_CODES,
     CHECKS,
     DEFERENCE,
@@ -20,11 +18,12 @@ from simulator.cautions import (
     last_groups,
     last_stage_state,
 )
-from simulator.cli import main
-from simulator.errors import InfeasibleError, InputError
-from simulator.limits import DEFAULT_SOURCE, LIMITS, Limits
-from simulator.solve import solve_point
-from simulator.steam import get_backend
+from partload.cli.main import main
+from partload.errors import InfeasibleError, InputError
+from partload.plant.case import Conditions, load_case, override
+from partload.plant.limits import DEFAULT_SOURCE, LIMITS, Limits
+from partload.solve.point import solve_point
+from partload.steam.if97 import get_backend
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -8,8 +8,7 @@ import sys
 from pathlib import Path
 
 import pytest
-
-from simulator.cli import main
+from partload.cli.main import main
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -67,7 +66,7 @@ def test_impossible_demand_exit_code_and_message(tmp_path, capsys):
 
 def test_installed_command_runs():
     # the console script and python -m both reach the same entry point
-    proc = subprocess.run([sys.executable, "-m", "simulator.cli", "point",
+    proc = subprocess.run([sys.executable, "-m", "partload.cli", "point",
                            str(ROOT / "cases/industrial_part_load.toml"), "--json"],
                           capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
@@ -82,8 +81,8 @@ def test_wrong_kind_of_file_is_named(capsys):
 
 
 def test_bare_psi_is_refused_and_gauge_needs_the_atmosphere():
-    from simulator.errors import InputError
-    from simulator.units import Where, parse
+    from partload.errors import InputError
+    from partload.units import Where, parse
 
     with pytest.raises(InputError, match="psia"):
         parse("2400 psi", "pressure", Where("m.toml", "nodes", "throttle"))

@@ -6,11 +6,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from iapws import IAPWS97
-
-from simulator.case import Conditions
-from simulator.errors import InfeasibleError
-from simulator.model import build_model
-from simulator.solve import solve_point
+from partload.errors import InfeasibleError
+from partload.plant.case import Conditions
+from partload.plant.model import build_model
+from partload.solve.point import solve_point
 
 HP8_OUT = Conditions(throttle_flow=280.0, heaters_out=frozenset({"HP8"}),
                      extraction_control=(("E8", ("closed", 0.0)),))

@@ -10,11 +10,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
-from simulator.case import Conditions, load_case
-from simulator.model import build_model
-from simulator.solve import solve_point
-from simulator.synthetic import synthetic_model_data
+from partload.plant.case import Conditions, load_case
+from partload.plant.model import build_model
+from partload.plant.synthetic import synthetic_model_data
+from partload.solve.point import solve_point
 
 CASES = sorted((Path(__file__).resolve().parent.parent / "cases").glob("*.toml"))
 

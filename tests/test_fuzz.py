@@ -33,14 +33,13 @@ import pytest
 from helpers import node_mass_imbalance
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
-
-from simulator.case import Conditions, read_conditions
-from simulator.cautions import DEFERENCE, Caution, check_point
-from simulator.cli import main
-from simulator.errors import InputError, PartloadError, SolveError
-from simulator.model import build_model, load_model
-from simulator.solve import solve_point
-from simulator.steam import P_CRIT, get_backend
+from partload.cautions.checks import DEFERENCE, Caution, check_point
+from partload.cli.main import main
+from partload.errors import InputError, PartloadError, SolveError
+from partload.plant.case import Conditions, read_conditions
+from partload.plant.model import build_model, load_model
+from partload.solve.point import solve_point
+from partload.steam.if97 import P_CRIT, get_backend
 
 ROOT = Path(__file__).resolve().parent.parent
 MODEL_FILES = {"reheat": ROOT / "models/demo_reheat_unit.toml",
@@ -52,7 +51,7 @@ DEEP = int(os.environ.get("PARTLOAD_FUZZ_EXAMPLES", "0"))
 FUZZ = settings(max_examples=DEEP or 60, deadline=None, derandomize=not DEEP,
                 suppress_health_check=[HealthCheck.too_slow], database=None)
 SECONDS = 20.0  # wall-clock guard per example; a point takes milliseconds
-MAX_NEWTON = 50  # simulator.newton.newton's default max_iter, used by solve_point
+MAX_NEWTON = 50  # partload.solve.newton.newton's default max_iter, used by solve_point
 
 
 class Hang(BaseException):

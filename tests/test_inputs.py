@@ -15,11 +15,10 @@ import sys
 from pathlib import Path
 
 import pytest
-
-from simulator.case import load_case
-from simulator.cli import main
-from simulator.errors import InputError
-from simulator.model import load_model
+from partload.cli.main import main
+from partload.errors import InputError
+from partload.plant.case import load_case
+from partload.plant.model import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 REHEAT = ROOT / "models/demo_reheat_unit.toml"
@@ -282,7 +281,7 @@ def test_impossible_demand_is_one_plain_message(tmp_path, capsys):
 
 
 def _run(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "simulator.cli", *args], capture_output=True,
+    return subprocess.run([sys.executable, "-m", "partload.cli", *args], capture_output=True,
                           text=True, timeout=120, cwd=ROOT)
 
 

@@ -5,21 +5,20 @@ from __future__ import annotations
 import math
 
 import pytest
-from scipy.optimize import brentq
-
-from simulator.physics.efficiency import (
+from partload.physics.efficiency import (
     baumann_factor,
     constant,
     get_correction,
     make_table_correction,
     velocity_ratio,
 )
-from simulator.physics.ellipse import ellipse_flow, flow_constant
-from simulator.physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from simulator.physics.expansion import expansion_end
-from simulator.physics.generator import generator_output
-from simulator.physics.heater import design_ua, effectiveness_ttd, pump_enthalpy_rise
-from simulator.physics.pressure_drop import scaled_pressure_drop
+from partload.physics.ellipse import ellipse_flow, flow_constant
+from partload.physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
+from partload.physics.expansion import expansion_end
+from partload.physics.generator import generator_output
+from partload.physics.heater import design_ua, effectiveness_ttd, pump_enthalpy_rise
+from partload.physics.pressure_drop import scaled_pressure_drop
+from scipy.optimize import brentq
 
 
 def test_ellipse_law_round_trip_flow_and_pressure():

@@ -1,8 +1,8 @@
-"""Tests of simulator.plots: charts of study results as PNG files.
+"""Tests of partload.present.charts: charts of study results as PNG files.
 
 The charts are drawn for a small sweep of the demo reheat unit (invented
 data).  Each must be an 800 x 500 pixel image (8 x 5 in at 100 dpi, the size
-stated in simulator.plots) with something drawn on it.  The saturation line is
+stated in partload.present.charts) with something drawn on it.  The saturation line is
 checked against IAPWS-IF97 values of the steam tables (W. Wagner, H.-J.
 Kretzschmar, "International Steam Tables", 2nd ed., Springer 2008, table
 2.3): at the triple point s' = 0 and s'' = 9.1555 kJ/(kg K); the enthalpy
@@ -17,10 +17,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 from matplotlib.image import imread
-
-from simulator.cli import main
-from simulator.plots import CHARTS, DPI, FIGSIZE, plot_study, saturation_line
-from simulator.store import read_study
+from partload.cli.main import main
+from partload.present.charts import CHARTS, DPI, FIGSIZE, plot_study, saturation_line
+from partload.store.hdf5 import read_study
 
 ROOT = Path(__file__).resolve().parents[1]
 MODEL = ROOT / "models" / "demo_reheat_unit.toml"
@@ -87,7 +86,7 @@ def test_profile_charts_and_cli(results, tmp_path, capsys):
 
 
 def test_charts_draw_every_converged_point(results):
-    from simulator.plots import plot_bleed_flows, plot_node_pressures, plot_willans
+    from partload.present.charts import plot_bleed_flows, plot_node_pressures, plot_willans
 
     st = read_study(results[0])
     n_ok = int(st.ok.sum())
@@ -131,7 +130,7 @@ def test_saturation_line_against_steam_tables():
 
 
 def test_unknown_chart_and_too_many_files(results):
-    from simulator.errors import InputError
+    from partload.errors import InputError
 
     with pytest.raises(InputError, match="unknown chart"):
         plot_study([results[0]], charts=["pie"])

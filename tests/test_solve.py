@@ -7,11 +7,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 from helpers import node_mass_imbalance, turbine_energy_imbalance, variant
-
-from simulator.case import Conditions, load_case
-from simulator.errors import InfeasibleError
-from simulator.solve import PointEquations, solve_point
-from simulator.steam import get_backend
+from partload.errors import InfeasibleError
+from partload.plant.case import Conditions, load_case
+from partload.solve.point import PointEquations, solve_point
+from partload.steam.if97 import get_backend
 
 CASES = sorted((Path(__file__).resolve().parent.parent / "cases").glob("*.toml"))
 

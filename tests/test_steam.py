@@ -5,9 +5,8 @@ from __future__ import annotations
 import itertools
 
 import pytest
-
-from simulator.errors import InputError, PropertyRangeError
-from simulator.steam import get_backend
+from partload.errors import InputError, PropertyRangeError
+from partload.steam.if97 import get_backend
 
 BACKENDS = ["seuif97", "iapws"]
 

@@ -1,8 +1,8 @@
-"""Tests of simulator.store: the HDF5 layout, CSV export, and "nothing lost".
+"""Tests of partload.store.hdf5: the HDF5 layout, CSV export, and "nothing lost".
 
 Result files are read back with h5py alone.  Reference values are the demo
 reheat unit (invented data) solved point by point with
-:func:`simulator.solve.solve_point`; stored points reached by continuation
+:func:`partload.solve.point.solve_point`; stored points reached by continuation
 agree with those to ``rtol = 1e-8`` (see tests/test_study.py for the reason).
 Kill and resume tests run ``partload study`` in a real subprocess.
 """
@@ -22,14 +22,13 @@ from pathlib import Path
 import h5py
 import numpy as np
 import pytest
-
-from simulator import __version__
-from simulator.case import load_case
-from simulator.cli import main
-from simulator.errors import ResultFileError
-from simulator.solve import solve_point
-from simulator.store import FORMAT, StudyFile, export_csv, read_study
-from simulator.study import SolveSpec, plan_study, result_layout, run_study, solve_chunk
+from partload import __version__
+from partload.cli.main import main
+from partload.errors import ResultFileError
+from partload.plant.case import load_case
+from partload.solve.point import solve_point
+from partload.store.hdf5 import FORMAT, StudyFile, export_csv, read_study
+from partload.study.core import SolveSpec, plan_study, result_layout, run_study, solve_chunk
 
 ROOT = Path(__file__).resolve().parents[1]
 MODEL = ROOT / "models" / "demo_reheat_unit.toml"
@@ -319,7 +318,7 @@ def _children(pid: int) -> list[int]:
 
 
 def _start_and_stop(case: Path, out: Path, sig: int, workers: int):
-    cmd = [sys.executable, "-m", "simulator.cli", "study", str(case), "--workers", str(workers),
+    cmd = [sys.executable, "-m", "partload.cli", "study", str(case), "--workers", str(workers),
            "--output", str(out), "--quiet"]
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             cwd=out.parent)

@@ -1,7 +1,7 @@
-"""Tests of simulator.study: sweep and profile definitions, planning, running.
+"""Tests of partload.study.core: sweep and profile definitions, planning, running.
 
 Reference values are the demo reheat unit (models/demo_reheat_unit.toml,
-invented data) solved point by point with :func:`simulator.solve.solve_point`
+invented data) solved point by point with :func:`partload.solve.point.solve_point`
 from its design-scaled guess.  Newton stops at a largest normalised residual
 of 1e-10; a point reached by continuation differs from the cold solve by the
 residual times the conditioning of the system, measured at most 3e-10
@@ -17,11 +17,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
-from simulator.case import load_case
-from simulator.errors import InputError
-from simulator.solve import solve_point
-from simulator.study import (
+from partload.errors import InputError
+from partload.plant.case import load_case
+from partload.solve.point import solve_point
+from partload.study.core import (
     CHUNK_MAX,
     CHUNK_MIN,
     STATUS,
@@ -329,7 +328,7 @@ output_fraction = [0.5, 0.8, 1.2]
 
 
 def test_an_unexpected_exception_is_recorded_as_internal_error(tmp_path, monkeypatch):
-    import simulator.study as study
+    import partload.study.core as study
 
     case = load_case(write_case(tmp_path, "[sweep]\nthrottle_flow_fraction = [0.5, 0.6, 0.7]\n"))
     plan = plan_study(case)
@@ -383,8 +382,8 @@ def test_plain_progress_lines_show_rate_and_eta(capsys):
 def test_a_worker_that_dies_gives_a_clear_error(small_plan, monkeypatch):
     import os
 
-    import simulator.study as study
-    from simulator.errors import SolveError
+    import partload.study.core as study
+    from partload.errors import SolveError
 
     real = study.solve_point
     last = small_plan.conditions[-1]

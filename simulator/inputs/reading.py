@@ -12,8 +12,8 @@ import math
 import tomllib
 from pathlib import Path
 
-from .errors import InputError
-from .units import Where, format_like, parse
+from ..errors import InputError
+from ..units import Where, format_like, parse
 
 __all__ = ["load_toml", "Problems", "ProblemList", "TableReader"]
 

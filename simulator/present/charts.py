@@ -41,8 +41,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
-from .errors import InputError, ResultFileError
-from .store import StudyData, read_study, to_display
+from ..errors import InputError, ResultFileError
+from ..store.hdf5 import StudyData, read_study, to_display
 
 __all__ = ["CHARTS", "FIGSIZE", "DPI", "plot_study", "plot_willans", "plot_heat_rate",
            "plot_node_pressures", "plot_bleed_flows", "plot_expansion", "saturation_line"]
@@ -266,7 +266,7 @@ def saturation_line(steam=None, n: int = 120) -> tuple[np.ndarray, np.ndarray]:
     s, h : entropy [J/(kg K)] and enthalpy [J/kg] from the triple point up
         the liquid side to near the critical point and down the vapour side
     """
-    from .steam import P_CRIT, P_MIN, get_backend
+    from ..steam.if97 import P_CRIT, P_MIN, get_backend
 
     steam = steam or get_backend("seuif97")
     p = np.geomspace(P_MIN * 1.001, P_CRIT * 0.999, n)

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import math
 
-from .errors import InputError, PropertyRangeError
+from ..errors import InputError, PropertyRangeError
 
 __all__ = ["SteamTables", "get_backend", "BACKENDS", "P_MAX", "T_MIN", "T_MAX"]
 

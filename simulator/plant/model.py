@@ -25,7 +25,7 @@ from pathlib import Path
 
 import networkx as nx
 
-from .components import (
+from ..components.legacy import (
     Boiler,
     ControlValve,
     ExhaustEnd,
@@ -38,14 +38,14 @@ from .components import (
     StageGroup,
     ThrottleValve,
 )
-from .errors import InputError, PartloadError, TopologyError
-from .limits import Limits, default_limits, read_limits
-from .physics.efficiency import CORRECTIONS, make_table_correction
-from .physics.ellipse import flow_constant
-from .physics.heater import design_ua
-from .reading import Problems, TableReader, load_toml
-from .steam import P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
-from .units import Where, parse
+from ..errors import InputError, PartloadError, TopologyError
+from ..inputs.reading import Problems, TableReader, load_toml
+from ..physics.efficiency import CORRECTIONS, make_table_correction
+from ..physics.ellipse import flow_constant
+from ..physics.heater import design_ua
+from ..plant.limits import Limits, default_limits, read_limits
+from ..steam.if97 import P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
+from ..units import Where, parse
 
 __all__ = ["Model", "ThrottleDesign", "load_model", "build_model"]
 
@@ -781,7 +781,7 @@ def _calibrate_component(c, m, p_in, h_in, p_out, steam, wide_open_fraction, mod
 
 def _calibrate_heaters(model: Model, steam: SteamTables) -> None:
     """Evaluate the feedwater train at design; fix closure factors, duties and UA."""
-    from .cycle import design_feedwater_states
+    from ..solve.water import design_feedwater_states
 
     states = design_feedwater_states(model, steam)
     for item, message in states.pop("_problems"):

@@ -15,17 +15,17 @@ import os
 import sys
 import traceback
 
-from . import __version__
-from .errors import InputError, PartloadError, ResultFileError, SolveError
+from .. import __version__
+from ..errors import InputError, PartloadError, ResultFileError, SolveError
 
 __all__ = ["main"]
 
 
 def _cmd_check(args) -> int:
-    from .case import Conditions
-    from .model import load_model
-    from .report import format_model, format_point, point_to_dict
-    from .solve import solve_point
+    from ..plant.case import Conditions
+    from ..plant.model import load_model
+    from ..present.tables import format_model, format_point, point_to_dict
+    from ..solve.point import solve_point
 
     model = load_model(args.model)
     result = solve_point(model, Conditions(throttle_flow=model.throttle.flow), args.backend)
@@ -51,9 +51,9 @@ def _cmd_check(args) -> int:
 
 
 def _cmd_point(args) -> int:
-    from .case import load_case
-    from .report import format_point, point_to_dict
-    from .solve import solve_point
+    from ..plant.case import load_case
+    from ..present.tables import format_point, point_to_dict
+    from ..solve.point import solve_point
 
     case = load_case(args.case)
     if "sweep" in case.data or "profile" in case.data:
@@ -71,7 +71,7 @@ def _cmd_point(args) -> int:
 
 
 def _cautions(model, cond, result):
-    from .cautions import check_point
+    from ..cautions.checks import check_point
 
     return check_point(model, cond, result)
 
@@ -101,7 +101,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
     c.set_defaults(func=_cmd_point)
 
-    from . import study_cli
+    from . import study_commands as study_cli
 
     study_cli.add_commands(sub)
     return p

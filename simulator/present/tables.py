@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 
-from .solve import PointResult
+from ..solve.point import PointResult
 
 __all__ = ["point_to_dict", "format_point", "format_model", "DISPLAY_UNITS"]
 

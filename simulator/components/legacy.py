@@ -13,16 +13,16 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
-from .physics.ellipse import ellipse_flow
-from .physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from .physics.expansion import expansion_end
-from .physics.generator import generator_output
-from .physics.heater import (
+from ..physics.ellipse import ellipse_flow
+from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
+from ..physics.expansion import expansion_end
+from ..physics.generator import generator_output
+from ..physics.heater import (
     closed_heater_outlet_temperature,
     effectiveness_ttd,
     pump_enthalpy_rise,
 )
-from .physics.pressure_drop import scaled_pressure_drop
+from ..physics.pressure_drop import scaled_pressure_drop
 
 # [J/kg] above the largest saturated-vapour enthalpy of water (2803.3 kJ/kg, IAPWS-IF97)
 # an expansion end point is certainly dry

@@ -18,7 +18,7 @@ import sys
 import threading
 from pathlib import Path
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["add_commands", "run_study_command", "default_workers", "DEMO_CASE"]
 
@@ -74,9 +74,9 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     plans only the first points (a trial run).  ``beyond_limits`` solves points
     beyond valves wide open as what-ifs instead of recording them as failed.
     """
-    from .case import load_case
-    from .store import StudyFile, check_target
-    from .study import Progress, plan_study, result_layout, run_study
+    from ..plant.case import load_case
+    from ..store.hdf5 import StudyFile, check_target
+    from ..study.core import Progress, plan_study, result_layout, run_study
 
     out = out or sys.stdout
     case = load_case(case_path)
@@ -135,7 +135,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
               + (" --beyond-limits" if beyond_limits else ""), file=sys.stderr)
         return 130
     if plots:
-        from .plots import plot_study
+        from ..present.charts import plot_study
 
         files = plot_study([path])
         print("  plots: " + ", ".join(str(f) for f in files), file=out)
@@ -169,7 +169,7 @@ def _cmd_study(args) -> int:
 
 
 def _cmd_export(args) -> int:
-    from .store import export_csv
+    from ..store.hdf5 import export_csv
 
     files = export_csv(args.result, args.output, si=args.si)
     for f in files:
@@ -178,7 +178,7 @@ def _cmd_export(args) -> int:
 
 
 def _cmd_plot(args) -> int:
-    from .plots import plot_study
+    from ..present.charts import plot_study
 
     paths = [args.result] + ([args.other] if args.other else [])
     files = plot_study(paths, args.output, loads=args.loads)

@@ -29,13 +29,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .case import Conditions, override
-from .components import H_DRY, ControlValve, StageGroup, ThrottleValve
-from .cycle import FeedwaterMarch, HeaterState
-from .errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
-from .model import Model
-from .newton import newton
-from .steam import SteamTables, get_backend
+from ..components.legacy import H_DRY, ControlValve, StageGroup, ThrottleValve
+from ..errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
+from ..plant.case import Conditions, override
+from ..plant.model import Model
+from ..solve.newton import newton
+from ..solve.water import FeedwaterMarch, HeaterState
+from ..steam.if97 import SteamTables, get_backend
 
 __all__ = ["PointEquations", "PointResult", "solve_point", "UNITS"]
 

@@ -61,9 +61,9 @@ from __future__ import annotations
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 
-from .reading import TableReader
-from .steam import T_MAX, T_MIN
-from .units import Where, parse
+from ..inputs.reading import TableReader
+from ..steam.if97 import T_MAX, T_MIN
+from ..units import Where, parse
 
 __all__ = ["LimitSpec", "LIMITS", "Limits", "read_limits", "default_limits",
            "DEFAULT_SOURCE"]

@@ -41,12 +41,12 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from .case import Conditions
-from .errors import PartloadError, SolveError
-from .limits import Limits, default_limits
-from .model import Model
-from .solve import PointResult, _wide_open
-from .steam import SteamTables, get_backend
+from ..errors import PartloadError, SolveError
+from ..plant.case import Conditions
+from ..plant.limits import Limits, default_limits
+from ..plant.model import Model
+from ..solve.point import PointResult, _wide_open
+from ..steam.if97 import SteamTables, get_backend
 
 __all__ = ["Caution", "check_point", "CHECKS", "CAUTION_CODES", "DEFERENCE",
            "last_groups", "last_stage_state", "design_last_stage_volume_flow"]

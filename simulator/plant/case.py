@@ -18,11 +18,11 @@ import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .errors import InputError
-from .model import Model, load_model
-from .reading import Problems, TableReader, load_toml
-from .steam import BACKENDS, P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, get_backend
-from .units import Where
+from ..errors import InputError
+from ..inputs.reading import Problems, TableReader, load_toml
+from ..plant.model import Model, load_model
+from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, get_backend
+from ..units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
            "GOVERNING", "OPERATION_KEYS"]

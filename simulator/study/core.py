@@ -88,12 +88,12 @@ from pathlib import Path
 
 import numpy as np
 
-from .case import Case, Conditions, read_conditions
-from .errors import ConvergenceError, InputError, SolveError
-from .model import Model, build_model
-from .solve import PointResult, solve_point
-from .steam import P_MAX, P_MIN, T_MAX, T_MIN, get_backend
-from .units import Where, parse
+from ..errors import ConvergenceError, InputError, SolveError
+from ..plant.case import Case, Conditions, read_conditions
+from ..plant.model import Model, build_model
+from ..solve.point import PointResult, solve_point
+from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN, get_backend
+from ..units import Where, parse
 
 __all__ = [
     "AXES",
@@ -1186,11 +1186,11 @@ def _cut(text: str, n: int) -> bytes:
 def _cautions_available() -> tuple[bool, list[str]]:
     """Whether the operating-limit checks are installed, and their codes."""
     try:
-        from .cautions import check_point  # noqa: F401
+        from ..cautions.checks import check_point  # noqa: F401
     except ImportError:
         return False, []
     try:
-        from .cautions import CAUTION_CODES
+        from ..cautions.checks import CAUTION_CODES
     except ImportError:
         return True, []
     return True, [str(c) for c in CAUTION_CODES]
@@ -1206,10 +1206,10 @@ def result_layout(model: Model, backend: str = "seuif97") -> ResultLayout:
         r = solve_point(model, Conditions(throttle_flow=model.throttle.flow), backend)
         totals = list(r.totals)
     except SolveError:  # pragma: no cover - a calibrated model solves its design point
-        from .report import DISPLAY_UNITS
+        from ..present.tables import DISPLAY_UNITS
 
         totals = [k for k in DISPLAY_UNITS["totals"] if k != "heat_rate_btu"]
-    from .report import DISPLAY_UNITS
+    from ..present.tables import DISPLAY_UNITS
 
     units = [_SI_OF_DISPLAY.get(DISPLAY_UNITS["totals"].get(k, ""), "") for k in totals]
     ex = list(model.extractions.values())
@@ -1305,7 +1305,7 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
     check = None
     if layout.cautions:
         try:
-            from .cautions import check_point as check
+            from ..cautions.checks import check_point as check
         except ImportError:  # the worker lacks the module: leave count at -1
             check = None
     prev: PointResult | None = None
@@ -1602,7 +1602,7 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
 
 
 def _software_version() -> str:
-    from . import __version__
+    from .. import __version__
 
     return __version__
 
@@ -1621,7 +1621,7 @@ def _run_dask(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], address: str,
                          key="--scheduler") from None
     futures = []
     try:
-        from . import __version__
+        from .. import __version__
 
         versions = client.run(_software_version)
         other = {w: v for w, v in versions.items() if v != __version__}

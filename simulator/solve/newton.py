@@ -20,7 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import ConvergenceError, SolveError
+from ..errors import ConvergenceError, SolveError
 
 __all__ = ["NewtonResult", "newton", "fd_jacobian"]
 

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import networkx as nx
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["FeedwaterMarch", "HeaterState", "design_feedwater_states"]
 

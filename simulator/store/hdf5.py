@@ -133,11 +133,11 @@ from typing import TYPE_CHECKING
 import h5py
 import numpy as np
 
-from . import __version__
-from .errors import ResultFileError
+from .. import __version__
+from ..errors import ResultFileError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .study import ChunkResult, ResultLayout, StudyPlan
+    from ..study.core import ChunkResult, ResultLayout, StudyPlan
 
 __all__ = [
     "FORMAT",
