@@ -38,12 +38,10 @@ def node_mass_imbalance(model, r) -> dict[str, float]:
     """Inflow - outflow - bleeds at every node that is neither throttle nor exhaust [kg/s]."""
     inflow = defaultdict(float)
     outflow = defaultdict(float)
-    for i, _ in enumerate(r.group_names):
-        outflow[r.group_inlet[i]] += r.group_flow[i]
-        inflow[r.group_outlet[i]] += r.group_flow[i]
-    for i, _ in enumerate(r.path_names):
-        outflow[r.path_inlet[i]] += r.path_flow[i]
-        inflow[r.path_outlet[i]] += r.path_flow[i]
+    path = r.tables["steam_path"]  # every component between two nodes, whatever its kind
+    for i, _ in enumerate(path.names):
+        outflow[path.inlet[i]] += path.columns["flow"][i]
+        inflow[path.outlet[i]] += path.columns["flow"][i]
     for i, n in enumerate(r.extraction_nodes):
         outflow[n] += r.extraction_flow[i]
     skip = {model.source, *model.exhaust_nodes}
@@ -53,7 +51,8 @@ def node_mass_imbalance(model, r) -> dict[str, float]:
 def turbine_energy_imbalance(model, r) -> float:
     """Steam-path energy balance: in (throttle + reheat) - out (shaft + bleeds + exhaust) [W]."""
     i_src = r.node_names.index(model.source)
-    e_in = r.totals["throttle_flow"] * r.node_h[i_src] + float(r.path_heat.sum())
+    e_in = (r.totals["throttle_flow"] * r.node_h[i_src]
+            + float(r.tables["steam_path"].columns["heat"].sum()))
     e_bleed = float((r.extraction_flow * r.extraction_h).sum())
     e_exh = 0.0
     for n in model.exhaust_nodes:

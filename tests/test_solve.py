@@ -181,17 +181,19 @@ def test_control_valve_holds_process_pressure_then_opens_wide(industrial_model):
     low = solve_point(model, Conditions(throttle_flow=35.0, extraction_control=closed))
     assert low.node("process")["p"] == pytest.approx(p_set, rel=1e-12)
     assert not low.wide_open_valves
-    i = low.path_names.index("LP control valve")
+    row = low.table("control_valves")["LP control valve"]
+    assert row["wide_open"] == 0
     valve = model.control_valves[0]
     v_in = get_backend().v_ph(low.node("process")["p"], low.node("process")["h"])
-    assert low.path_pressure_drop[i] >= valve.wide_open_drop(low.path_flow[i], v_in)
+    assert row["pressure_drop"] >= valve.wide_open_drop(row["flow"], v_in)
     high = solve_point(model, Conditions(throttle_flow=49.0, extraction_control=closed))
     assert high.wide_open_valves == frozenset({"LP control valve"})
     assert high.node("process")["p"] > 1.05 * p_set
-    i = high.path_names.index("LP control valve")
+    row = high.table("control_valves")["LP control valve"]
+    assert row["wide_open"] == 1
     v_in = get_backend().v_ph(high.node("process")["p"], high.node("process")["h"])
-    assert high.path_pressure_drop[i] == pytest.approx(
-        valve.wide_open_drop(high.path_flow[i], v_in), rel=1e-8)
+    assert row["pressure_drop"] == pytest.approx(valve.wide_open_drop(row["flow"], v_in),
+                                                 rel=1e-8)
     # a warm start across the switch gives the same answer as a cold one
     warm = solve_point(model, Conditions(throttle_flow=49.0, extraction_control=closed),
                        neighbour=low)

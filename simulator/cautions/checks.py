@@ -45,7 +45,7 @@ from ..errors import PartloadError, SolveError
 from ..plant.case import Conditions
 from ..plant.limits import Limits, default_limits
 from ..plant.model import Model
-from ..solve.point import PointResult, _wide_open
+from ..solve.point import PointResult, wide_open_capacity
 from ..steam.if97 import SteamTables, get_backend
 
 __all__ = ["Caution", "check_point", "CHECKS", "CAUTION_CODES", "DEFERENCE",
@@ -224,7 +224,7 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         at = f"the highest allowed throttle pressure {p_max / 1e5:.2f} bar"
         why = f"this answer needs a throttle pressure of {p_T / 1e5:.2f} bar"
     try:
-        m_max = _wide_open(model, pt.cond, pt.steam, p_at)[0]
+        m_max = wide_open_capacity(model, pt.cond, pt.steam, p_at)[0]
         cap = f" ({m_max:.2f} kg/s)"
     except SolveError:
         m_max, cap = math.nan, ""
@@ -385,8 +385,8 @@ def _steam_temperature(pt: _Point) -> Caution | None:
     if T_T is not None and T_T - model.throttle.temperature > lim:
         hot.append((T_T - model.throttle.temperature, "throttle", T_T))
     if cond.reheat_temperature is not None:
-        for c in model.paths:
-            if c.is_reheater and cond.reheat_temperature - c.outlet_temperature > lim:
+        for c in model.reheaters:
+            if cond.reheat_temperature - c.outlet_temperature > lim:
                 hot.append((cond.reheat_temperature - c.outlet_temperature, c.name,
                             cond.reheat_temperature))
     if not hot:

@@ -156,7 +156,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
         problems.add(op.where.child("throttle_pressure").error(
             "a held throttle pressure needs governing = 'throttle'; with sliding pressure the "
             "throttle pressure is a result"))
-    if T_rh is not None and not any(p.is_reheater for p in model.paths):
+    if T_rh is not None and not model.reheaters:
         problems.add(op.where.child("reheat_temperature").error("the model has no reheater"))
 
     controls = []

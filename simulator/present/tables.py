@@ -222,12 +222,13 @@ def format_model(model) -> str:
                          "dh_s design", "Q_in design", "correction", "annulus"], rows,
                         ["", "", "", "kg/s", "%", "%", "cm^2", "kJ/kg", "m^3/s", "", ""]))
     lines.append("")
-    if model.paths:
+    if model.reheaters or model.pipes:
         lines.append(_table("Reheaters and pipes", ["name", "from", "to", "design drop",
                                                     "outlet T"],
                             [[c.name, c.inlet, c.outlet, c.dp_design / 1e5,
-                              (c.outlet_temperature - 273.15) if c.is_reheater else None]
-                             for c in model.paths], ["", "", "", "bar", "degC"]))
+                              getattr(c, "outlet_temperature", None)]
+                             for c in model.reheaters + model.pipes],
+                            ["", "", "", "bar", "degC"]))
         lines.append("")
     if model.extractions:
         lines.append(_table("Extractions", ["extraction", "node", "design flow", "control",

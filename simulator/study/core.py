@@ -746,7 +746,7 @@ def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
 def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, InputColumn]:
     """Resolved per-point inputs (design values where the case leaves them unset)."""
     n = len(conds)
-    reheat = [p.outlet_temperature for p in model.paths if p.is_reheater]
+    reheat = [p.outlet_temperature for p in model.reheaters]
     T_rh_design = reheat[0] if reheat and all(t == reheat[0] for t in reheat) else math.nan
     exh = [model.design_pressure[e] for e in model.exhaust_nodes]
     p_x_design = exh[0] if all(p == exh[0] for p in exh) else math.nan
@@ -1222,8 +1222,7 @@ def result_layout(model: Model, backend: str = "seuif97") -> ResultLayout:
         heater_closed=[h.kind == "closed" for h in model.heaters.values()],
         totals=totals, totals_units=units,
         valve=(model.valve.inlet, model.valve.outlet),
-        paths=[(p.name, p.inlet, p.outlet, "reheater" if p.is_reheater else "pipe")
-               for p in model.paths],
+        paths=[(p.name, p.inlet, p.outlet, p.table) for p in model.reheaters + model.pipes],
         design_throttle_flow=model.throttle.flow, generator_rating=model.generator.rating,
         cautions=cautions, caution_codes=codes)
 

@@ -1,0 +1,219 @@
+"""The component protocol: what every kind of plant component declares.
+
+A *kind* of plant component (a stage group, a reheater, a feedwater heater, ...)
+is one class in one module of this package.  It declares, in one place:
+
+=====================  =========================================================
+declaration            used by
+=====================  =========================================================
+``table``, ``read``    the model reader: the component's table in the model file,
+                       its keys, units, defaults and validation (messages name
+                       file, table and key)
+``calibrate``          plant calibration: fix its constants from the design heat
+                       balance
+``evaluate``           the march of one residual evaluation (steam-path kinds):
+                       flow, outlet enthalpy, power, and the law it owns
+``settings``           the case reader (``[<settings_table>.NAME]`` keys)
+``tunables``           constants measured plant data may fit later
+``columns``            the point result, the HDF5 layout, console tables, JSON,
+                       CSV (one dataset per column under ``/<results>/``)
+=====================  =========================================================
+
+A registry (:mod:`simulator.components.registry`) maps each model-file table
+to its kind.  Adding a kind is one physics module (its laws, with sources), one
+module here and one registry line.
+
+Steam-path kinds sit on an edge of the turbine graph between two nodes.  Each
+either *sets its flow* from the pressures by its own flow law (a stage group:
+Stodola's ellipse law), or *passes the net flow* arriving at its inlet node
+and owns the pressure-drop law there (valves, reheaters, pipes); the solver
+needs nothing else to know about it.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import ClassVar
+
+__all__ = ["Column", "Setting", "Tunable", "Component", "SteamPathComponent", "ReadContext",
+           "H_DRY"]
+
+# [J/kg] above the largest saturated-vapour enthalpy of water (2803.3 kJ/kg at about
+# 30 bar, IAPWS-IF97): an expansion end point above it is certainly dry
+H_DRY = 2.81e6
+
+
+@dataclass(frozen=True)
+class Column:
+    """One result a component gives at every solved point.
+
+    ``name`` is the dataset name (``/<results>/<name>`` in a result file) and the
+    key in JSON; ``unit`` its SI unit (``"-"`` dimensionless, ``""`` for text and
+    flags); ``dtype`` a numpy dtype string, or ``"text"``.
+    """
+
+    name: str
+    unit: str
+    description: str
+    dtype: str = "f8"
+    when_out: bool = True  # meaningful for a component out of service
+
+
+@dataclass(frozen=True)
+class Setting:
+    """A value a case file may set for one component, in ``[<settings_table>.NAME]``.
+
+    ``dimension`` is a :data:`simulator.units.DIMENSIONS` name, ``"choice"``
+    (one of ``choices``) or ``"flag"`` (true or false).
+    """
+
+    name: str
+    dimension: str
+    description: str
+    choices: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Tunable:
+    """A calibrated constant that measured plant data may fit.
+
+    ``attribute`` is the component attribute holding it, in ``unit``; ``lo``
+    and ``hi`` bound a fitted value.
+    """
+
+    name: str
+    attribute: str
+    unit: str
+    description: str
+    lo: float = -math.inf
+    hi: float = math.inf
+
+
+@dataclass
+class ReadContext:
+    """What a kind's reader needs besides its own table.
+
+    ``reader(data, table)`` makes a :class:`~simulator.inputs.reading.TableReader`
+    that adds its problems to the file's list; ``curves`` are the exhaust-loss
+    curves of ``[exhaust.loss_curves]``; ``steam`` the property backend.
+    """
+
+    file: str
+    reader: object
+    problems: object
+    curves: dict
+    steam: object
+    atmosphere: float | None = None
+    throttle_node: str | None = None
+    design_pressure: dict | None = None  # [Pa] of every node, once [nodes] is read
+
+
+class Component:
+    """Base of every kind: its declarations.
+
+    Class attributes
+    ----------------
+    table : the model-file table (``[[stage_group]]``: ``"stage_group"``)
+    many : ``True`` for a list of tables (``[[...]]``), ``False`` for one table
+    required : a single table the model file must have
+    title : the kind in words, for messages
+    results : result group name (``"stage_groups"``), ``None`` for no per-point results
+    columns, settings, tunables : see the module docstring
+    settings_table : the case file's table of per-component settings
+    """
+
+    table: ClassVar[str] = ""
+    many: ClassVar[bool] = True
+    required: ClassVar[bool] = False
+    title: ClassVar[str] = ""
+    results: ClassVar[str | None] = None
+    columns: ClassVar[tuple[Column, ...]] = ()
+    settings: ClassVar[tuple[Setting, ...]] = ()
+    settings_table: ClassVar[str | None] = None
+    tunables: ClassVar[tuple[Tunable, ...]] = ()
+
+    name: str
+
+    @property
+    def where(self) -> str:
+        """The component's table in words for messages: ``stage_group 'HP1'``."""
+        return f"{self.table} '{self.name}'" if self.many else self.table
+
+    @classmethod
+    def read_all(cls, top, ctx: ReadContext) -> list:
+        """Every component of this kind in the model file.
+
+        ``top`` is the reader of the whole file; problems go to the file's list.
+        """
+        out = []
+        if cls.many:
+            tables = [(f"{cls.table}[{i}]", item)
+                      for i, item in enumerate(top.table_list(cls.table))]
+        elif top.has(cls.table):
+            tables = [(cls.table, top.raw(cls.table))]
+        else:
+            tables = []
+            if cls.required:
+                ctx.problems.add(top.where.sub(cls.table).error("missing required table"))
+        for table, item in tables:
+            c = cls.read(ctx.reader(item, table), ctx)
+            if c is not None:
+                out.append(c)
+        return out
+
+    @classmethod
+    def read(cls, reader, ctx: ReadContext):
+        """One component from its table, or ``None`` when a required key is bad."""
+        raise NotImplementedError
+
+    def check_design(self, ctx: ReadContext) -> None:
+        """Checks of the read component against the design state of the file
+        (``ctx.design_pressure``); problems go to ``ctx.problems``."""
+
+    def point_row(self, point) -> tuple:
+        """Values of :attr:`columns` at a solved point (kinds off the steam path);
+        ``point`` is a :class:`simulator.solve.point.PointView`."""
+        return ()
+
+
+class SteamPathComponent(Component):
+    """A kind that joins two nodes of the steam path (an edge of the graph).
+
+    ``sets_flow`` is ``True`` for a kind with its own flow law (its flow follows
+    from the pressures at its ends, and its inlet node keeps a mass balance) and
+    ``False`` for a kind that passes the whole net flow of its inlet node (its
+    pressure-drop law is the residual there, and it must be the only component
+    leaving that node).
+    """
+
+    sets_flow: ClassVar[bool] = False
+    # the key of the model file naming this component's inlet / outlet node
+    inlet_key: ClassVar[str] = "from"
+    outlet_key: ClassVar[str] = "to"
+    calibration_key: ClassVar[str] = "to"  # key named when calibration fails here
+
+    inlet: str
+    outlet: str
+
+    def calibrate(self, m: float, p_in: float, h_in: float, p_out: float, steam,
+                  model) -> float:
+        """Fix the constants at design flow ``m`` [kg/s] between ``(p_in, h_in)``
+        [Pa, J/kg] and ``p_out`` [Pa]; return the outlet enthalpy [J/kg]."""
+        raise NotImplementedError
+
+    def evaluate(self, march, i: int, j: int, m_net: float):
+        """One step of the march from node index ``i`` to ``j``.
+
+        ``march`` gives ``steam``, the node pressures ``p`` and enthalpies ``h``
+        and the conditions of the point.  Kinds that set their flow return
+        ``(m, h_out, power, record)``; kinds that pass ``m_net`` return
+        ``(h_out, dp, record)`` with ``dp`` the drop [Pa] their law requires, or
+        ``None`` while they hold their inlet pressure.
+        """
+        raise NotImplementedError
+
+    def result_row(self, record, m: float, p_in: float, h_in: float, p_out: float,
+                   h_out: float) -> tuple:
+        """Values of :attr:`columns` at a solved point, from the march ``record``."""
+        return ()

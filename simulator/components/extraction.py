@@ -1,0 +1,68 @@
+"""Extraction: a bleed of steam from a node of the steam path.
+
+Its off-design flow is set by its ``control``: the design fraction of throttle
+flow, a fixed flow (process steam), closed, or whatever its feedwater heater
+condenses (an unknown of the solver, with the heater's energy balance).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import ClassVar
+
+from ..units import Where
+from .base import Column, Component, ReadContext, Setting
+
+__all__ = ["Extraction", "EXTRACTION_CONTROLS"]
+
+EXTRACTION_CONTROLS = ("fraction", "flow", "closed", "heater")
+
+
+@dataclass
+class Extraction(Component):
+    """A bleed at ``node`` with its design flow [kg/s].
+
+    ``control``: ``"fraction"`` (the design fraction of throttle flow),
+    ``"flow"`` (a fixed flow), ``"closed"`` or ``"heater"``; ``heater`` the
+    name of the heater it feeds, if any.
+    """
+
+    table: ClassVar[str] = "extraction"
+    title: ClassVar[str] = "extraction"
+    results: ClassVar[str] = "extractions"
+    settings_table: ClassVar[str] = "extractions"
+    settings: ClassVar[tuple[Setting, ...]] = (
+        Setting("control", "choice", "how the bleed flow is set", EXTRACTION_CONTROLS),
+        Setting("flow", "mass_flow", "bleed flow held (control = 'flow')"),
+        Setting("fraction", "fraction", "bleed flow over throttle flow (control = 'fraction')"),
+    )
+    columns: ClassVar[tuple[Column, ...]] = (
+        Column("flow", "kg/s", "bleed flow"),
+        Column("pressure", "Pa", "pressure at the bleed point"),
+        Column("enthalpy", "J/kg", "enthalpy of the bleed steam"),
+        Column("control", "", "how the bleed flow is set: heater, closed, flow or fraction",
+               "text"),
+    )
+
+    name: str
+    node: str
+    design_flow: float
+    control: str = "fraction"
+    heater: str | None = None
+
+    @classmethod
+    def read(cls, er, ctx: ReadContext):
+        name = er.string("name")
+        if name:
+            er.where = Where(ctx.file, f"extraction '{name}'", None)
+        node = er.string("node")
+        flow = er.quantity("design_flow", "mass_flow", lo=0.0)
+        control = er.string("control", default=None, choices=EXTRACTION_CONTROLS)
+        er.finish()
+        if None in (name, node, flow):
+            return None
+        return cls(name, node, flow, control or "")
+
+    def point_row(self, point) -> tuple:
+        flow, control = point.bleeds[self.name]
+        return (flow, point.pressure(self.node), point.enthalpy(self.node), control)

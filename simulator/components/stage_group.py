@@ -1,0 +1,247 @@
+"""Stage group: a group of turbine stages between two nodes.
+
+Flow by Stodola's ellipse law (:mod:`simulator.physics.ellipse`), expansion with
+an efficiency corrected for flow (:mod:`simulator.physics.efficiency`) and
+moisture (Baumann), and for a group that exhausts to a condenser the exhaust
+loss and used-energy end point (:mod:`simulator.physics.exhaust`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import ClassVar
+
+from ..errors import InputError
+from ..physics.efficiency import CORRECTIONS, make_table_correction
+from ..physics.ellipse import ellipse_flow, flow_constant
+from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
+from ..physics.expansion import expansion_end
+from .base import H_DRY, Column, ReadContext, SteamPathComponent, Tunable
+from .reading import edge_names, ratio_list
+
+__all__ = ["StageGroup", "ExhaustEnd"]
+
+
+@dataclass
+class ExhaustEnd:
+    """Last-stage annulus of an exhaust group and its exhaust-loss curve.
+
+    area [m^2]; curve_velocity [m/s] increasing; curve_loss [J/kg dry flow].
+    """
+
+    area: float
+    curve_velocity: list[float]
+    curve_loss: list[float]
+    curve_name: str = ""
+
+
+@dataclass
+class StageGroup(SteamPathComponent):
+    """A group of stages between two nodes, calibrated at design.
+
+    Attributes
+    ----------
+    K : ellipse-law flow constant [m^2]
+    eta_dry_design : dry isentropic efficiency at design [-] (the stated design
+        efficiency divided by Baumann's factor at the design moisture)
+    eta_design : stated design efficiency [-]
+    dh_s_design : design isentropic drop [J/kg]
+    q_design : design inlet volume flow [m^3/s]
+    alpha : Baumann factor [-]
+    correction : ``f(q_ratio, dh_ratio) -> eta/eta_design``
+    design_flow : stated design flow [kg/s] where a node splits into parallel groups
+    exhaust : the last-stage annulus if the group exhausts to a condenser
+    """
+
+    table: ClassVar[str] = "stage_group"
+    title: ClassVar[str] = "stage group"
+    results: ClassVar[str] = "stage_groups"
+    sets_flow: ClassVar[bool] = True
+    calibration_key: ClassVar[str] = "efficiency"
+    columns: ClassVar[tuple[Column, ...]] = (
+        Column("flow", "kg/s", "steam flow through the group"),
+        Column("efficiency", "-", "effective isentropic efficiency"),
+        Column("isentropic_drop", "J/kg", "isentropic enthalpy drop"),
+        Column("power", "W", "power of the group"),
+        Column("annulus_velocity", "m/s", "last-stage annulus velocity (0: group without "
+               "exhaust)"),
+        Column("exhaust_loss", "J/kg", "exhaust loss (0: group without exhaust)"),
+        Column("outlet_moisture", "-", "moisture at the outlet"),
+    )
+    tunables: ClassVar[tuple[Tunable, ...]] = (
+        Tunable("efficiency", "eta_dry_design", "-", "dry isentropic efficiency at design "
+                "flow", 0.0, 1.0),
+        Tunable("flow_constant", "K", "m^2", "ellipse-law flow constant", 0.0),
+    )
+
+    name: str
+    inlet: str
+    outlet: str
+    eta_design: float
+    correction_name: str
+    correction: Callable[[float, float], float]
+    alpha: float = 1.0
+    K: float = 0.0
+    eta_dry_design: float = 0.0
+    dh_s_design: float = 0.0
+    q_design: float = 0.0
+    design_flow: float | None = None
+    exhaust: ExhaustEnd | None = None
+
+    @classmethod
+    def read(cls, gr, ctx: ReadContext):
+        gname, g_from, g_to = edge_names(gr, cls.table)
+        eta = gr.number("efficiency", lo=0.0, hi=1.0, lo_open=True)
+        # The exhaust-loss curve already carries the last stage's losses at low
+        # volume flow, so an exhaust group defaults to a constant efficiency.
+        is_exhaust = gr.has("annulus_area") or gr.has("loss_curve")
+        cname = gr.string("efficiency_correction",
+                          default="constant" if is_exhaust else "velocity_ratio",
+                          choices=sorted(CORRECTIONS) + ["table"])
+        corr = CORRECTIONS.get(cname or "constant", CORRECTIONS["constant"])
+        if cname == "table":
+            tr = ctx.reader(gr.raw("correction_table"), f"{gr.where.table}.correction_table")
+            corr = _correction_table(tr, eta) or corr
+        alpha = gr.number("moisture_factor", default=1.0, lo=0.0, hi=3.0)
+        dflow = gr.quantity("design_flow", "mass_flow", default=None, positive=True)
+        exhaust = None
+        if is_exhaust:
+            area = gr.quantity("annulus_area", "area", positive=True)
+            curve = gr.string("loss_curve", choices=list(ctx.curves) or None)
+            if area and curve in ctx.curves:
+                exhaust = ExhaustEnd(area, ctx.curves[curve][0], ctx.curves[curve][1], curve)
+        gr.finish(also_valid=("annulus_area", "loss_curve", "correction_table"))
+        if None in (gname, g_from, g_to, eta):
+            return None
+        return cls(gname, g_from, g_to, eta, cname or "constant", corr,
+                   alpha if alpha is not None else 1.0, design_flow=dflow, exhaust=exhaust)
+
+    def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
+        v_in = steam.v_ph(p_in, h_in)
+        s_in = steam.s_ph(p_in, h_in)
+        self.K = flow_constant(m, p_in, p_out, v_in)
+        self.dh_s_design = h_in - steam.h_ps(p_out, s_in)
+        self.q_design = m * v_in
+        h_elep = h_in - self.eta_design * self.dh_s_design
+        h_vap = steam.h_vap_sat(p_out)
+        h_liq = steam.h_liq_sat(p_out)
+        y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+        y_in = (1.0 - steam.x_ph(p_in, h_in)) if self.alpha else 0.0
+        factor = 1.0 - self.alpha * 0.5 * (y_in + y_out)
+        if factor <= 0.05:
+            raise InputError("Baumann's factor leaves no efficiency; check moisture_factor",
+                             file=model.file, table=self.where, key="moisture_factor")
+        self.eta_dry_design = self.eta_design / factor
+        return self.expand(steam, p_in, h_in, p_out)[1]
+
+    def expand(self, steam, p_in: float, h_in: float, p_out: float, y_in: float | None = None):
+        """Flow and end state of the group for inlet ``(p_in, h_in)`` and ``p_out``.
+
+        Parameters
+        ----------
+        steam : property backend
+        p_in : inlet pressure [Pa]
+        h_in : inlet enthalpy [J/kg]
+        p_out : outlet pressure [Pa]
+        y_in : inlet moisture [-] if the caller knows it (saves a property call)
+
+        Returns
+        -------
+        tuple
+            ``(m_dot, h_used, h_elep, eta, dh_s, y_out, velocity, loss, h_vap, h_liq)``:
+            flow [kg/s], used-energy end point [J/kg] (equal to the ELEP for a
+            group without exhaust), expansion-line end point [J/kg], effective
+            efficiency [-], isentropic drop [J/kg], outlet moisture [-],
+            annulus velocity [m/s] and exhaust loss [J/kg] (zero without
+            exhaust), saturated vapour and liquid enthalpy at ``p_out`` [J/kg]
+            (the liquid value is NaN when the end point is far from saturation
+            and it was not needed).
+        """
+        v_in, s_in = steam.vs_ph(p_in, h_in)
+        m = ellipse_flow(p_in, p_out, v_in, self.K)
+        dh_s = h_in - steam.h_ps(p_out, s_in)
+        ratio = self.correction(m * v_in / self.q_design, dh_s / self.dh_s_design)
+        eta_dry = self.eta_dry_design * ratio
+        alpha = self.alpha
+        if y_in is None:
+            y_in = 1.0 - steam.x_ph(p_in, h_in) if alpha else 0.0
+        h_dry_end = h_in - eta_dry * dh_s
+        if h_dry_end > H_DRY:  # above every saturated vapour: a dry end, no lookups
+            h_vap = h_liq = math.nan
+            h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
+            y_out = 0.0
+        else:
+            h_vap = steam.h_vap_sat(p_out)
+            if h_dry_end < h_vap + 1e5:
+                h_liq = steam.h_liq_sat(p_out)
+                h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, alpha)
+            else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
+                h_liq = math.nan
+                h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
+            y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+        eta = (h_in - h_elep) / dh_s if dh_s else eta_dry
+        if self.exhaust is None:
+            return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0, h_vap, h_liq
+        ex = self.exhaust
+        vel = annulus_velocity(abs(m), steam.v_ph(p_out, h_elep), ex.area)
+        loss = exhaust_loss(vel, ex.curve_velocity, ex.curve_loss)
+        h_used = used_energy_end_point(h_elep, loss, y_out)
+        return m, h_used, h_elep, eta, dh_s, y_out, vel, loss, h_vap, h_liq
+
+    def evaluate(self, march, i, j, m_net):
+        """Flow by the ellipse law; the inlet moisture from the saturation state the
+        march already knows at node ``i`` where it can (no property call)."""
+        steam = march.steam
+        pi = march.p[i]
+        hi = march.h[i]
+        if self.alpha and hi < H_DRY:
+            hv, hl = march.hv, march.hl
+            hvi = hv[i]
+            if hvi != hvi:  # node state not known from upstream
+                y_in = 1.0 - steam.x_ph(pi, hi)
+            elif hi >= hvi:
+                y_in = 0.0
+            else:
+                hli = hl[i]
+                if hli != hli:
+                    hli = hl[i] = steam.h_liq_sat(pi)
+                y_in = (hvi - hi) / (hvi - hli)
+        else:
+            y_in = 0.0
+        r = self.expand(steam, pi, hi, march.p[j], y_in)
+        march.hv[j] = r[8]
+        if r[9] == r[9]:
+            march.hl[j] = r[9]
+        m = r[0]
+        return m, r[1], m * (hi - r[1]), r
+
+    def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
+        r = record
+        return (r[0], r[3], r[4], r[0] * (h_in - r[1]), r[6], r[7], r[5])
+
+
+def _correction_table(tr, eta: float | None):
+    """Read a stage group's ``correction_table``; ``None`` when it is wrong."""
+    qs = ratio_list(tr, "volume_flow_ratio")
+    es = ratio_list(tr, "efficiency_ratio")
+    tr.finish()
+    if qs is None or es is None:
+        return None
+    if len(qs) != len(es):
+        tr.problems.add(tr.where.child("efficiency_ratio").error(
+            f"{len(es)} efficiency ratios for {len(qs)} volume-flow ratios; give one each"))
+        return None
+    if any(b <= a for a, b in zip(qs, qs[1:])):
+        tr.problems.add(tr.where.child("volume_flow_ratio").error("values must increase"))
+        return None
+    if eta is not None and eta * max(es) > 1.0:
+        tr.problems.add(tr.where.child("efficiency_ratio").error(
+            f"the largest ratio {max(es):g} times the design efficiency {eta:g} exceeds 1"))
+        return None
+    try:
+        return make_table_correction(qs, es)
+    except (ValueError, TypeError) as exc:
+        tr.problems.add(tr.where.error(str(exc)))
+        return None
