@@ -1,4 +1,4 @@
-"""Tests of partload.store.hdf5: the HDF5 layout, CSV export, and "nothing lost".
+"""Tests of partload.store: the HDF5 layout, CSV export, and "nothing lost".
 
 Result files are read back with h5py alone.  Reference values are the demo
 reheat unit (invented data) solved point by point with
@@ -27,7 +27,7 @@ from partload.cli.main import main
 from partload.errors import ResultFileError
 from partload.plant.case import load_case
 from partload.solve.point import solve_point
-from partload.store.hdf5 import FORMAT, StudyFile, export_csv, read_study
+from partload.store import FORMAT, StudyFile, export_csv, read_study
 from partload.study.core import SolveSpec, plan_study, result_layout, run_study, solve_chunk
 
 ROOT = Path(__file__).resolve().parents[1]
