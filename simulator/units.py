@@ -11,6 +11,10 @@ those SI numbers and refuses anything of the wrong dimension with an
 Gauge pressures (``barg``, ``psig``, ``kPag``) are accepted only when the file
 states its local atmospheric pressure; absolute units (``bar``, ``bara``,
 ``psia``, ``kPa``, ``MPa``, ``inHg``, ``mmHg``) always are.
+
+On the way out, :data:`DISPLAY` is the one table of display units: the SI unit
+of a stored or computed value and the engineer's unit it is shown in, with
+:func:`to_display_unit` to convert.
 """
 
 from __future__ import annotations
@@ -20,9 +24,11 @@ import math
 import re
 from dataclasses import dataclass
 
+import numpy as np
+
 from .errors import InputError
 
-__all__ = ["Where", "parse", "format_like", "DIMENSIONS"]
+__all__ = ["Where", "parse", "format_like", "DIMENSIONS", "DISPLAY", "to_display_unit"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 _GAUGE = {"barg": "bar", "psig": "psia", "kpag": "kPa", "mpag": "MPa"}
@@ -224,3 +230,45 @@ def format_like(si: float, dimension: str, value) -> str:
             pass
     return f"{si:.4g} {si_unit}"
 
+
+
+# SI unit -> (display unit, factor, offset): display = SI * factor + offset.
+# Units not listed (kg/s, m/s, m^2, "-") are shown as they are.
+DISPLAY = {
+    "Pa": ("bar", 1e-5, 0.0),
+    "K": ("degC", 1.0, -273.15),
+    "J/kg": ("kJ/kg", 1e-3, 0.0),
+    "J/(kg K)": ("kJ/(kg K)", 1e-3, 0.0),
+    "W": ("MW", 1e-6, 0.0),
+    "J/J": ("kJ/kWh", 3600.0, 0.0),
+    "kg/J": ("kg/kWh", 3.6e6, 0.0),
+}
+
+
+def to_display_unit(values, si_unit: str) -> tuple[np.ndarray, str]:
+    """Convert SI values to the display unit of :data:`DISPLAY`.
+
+    Pressure to bar, temperature to degC, specific enthalpy to kJ/kg, entropy
+    to kJ/(kg K), power to MW, heat rate (J/J) to kJ/kWh, steam rate (kg/J)
+    to kg/kWh.  A temperature in K is taken as a temperature, not a
+    difference: keep differences (TTD, DCA) out of this function.
+
+    Parameters
+    ----------
+    values
+        Number or array in the SI unit ``si_unit`` [si_unit].
+    si_unit
+        The SI unit of ``values``, as in :data:`DISPLAY` [-].
+
+    Returns
+    -------
+    values, unit : tuple
+        The converted float array [display unit] and the display unit; the
+        values as a float array and ``si_unit`` unchanged when
+        ``si_unit`` is not in :data:`DISPLAY`.
+    """
+    v = np.asarray(values, dtype=float)
+    if si_unit in DISPLAY:
+        unit, factor, offset = DISPLAY[si_unit]
+        return v * factor + offset, unit
+    return v, si_unit

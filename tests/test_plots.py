@@ -19,7 +19,7 @@ import pytest
 from matplotlib.image import imread
 from partload.cli.main import main
 from partload.present.charts import CHARTS, DPI, FIGSIZE, plot_study, saturation_line
-from partload.store.hdf5 import read_study
+from partload.store import read_study
 
 ROOT = Path(__file__).resolve().parents[1]
 MODEL = ROOT / "models" / "demo_reheat_unit.toml"

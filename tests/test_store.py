@@ -1,4 +1,4 @@
-"""Tests of partload.store.hdf5: the HDF5 layout, CSV export, and "nothing lost".
+"""Tests of partload.store: the HDF5 layout, CSV export, and "nothing lost".
 
 Result files are read back with h5py alone.  Reference values are the demo
 reheat unit (invented data) solved point by point with
@@ -27,7 +27,7 @@ from partload.cli.main import main
 from partload.errors import ResultFileError
 from partload.plant.case import load_case
 from partload.solve.point import solve_point
-from partload.store.hdf5 import FORMAT, StudyFile, export_csv, read_study
+from partload.store import FORMAT, StudyFile, export_csv, read_study
 from partload.study.core import SolveSpec, plan_study, result_layout, run_study, solve_chunk
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -435,6 +435,51 @@ def test_reading_checks_the_format(tmp_path):
     with pytest.raises(ResultFileError, match="no such file"):
         read_study(tmp_path / "missing.h5")
     os.remove(path)
+
+
+def test_result_format_versions(sweep_file, tmp_path, capsys):
+    """Version 1 files read; a newer or missing ``format_version`` is refused with
+    the file, the version found and the versions read (this partload reads 1)."""
+    case, out = sweep_file
+    copy = tmp_path / "versions.h5"
+    shutil.copy(out, copy)
+    assert read_study(copy).attrs["format_version"] == 1
+    with h5py.File(copy, "r+") as f:
+        f.attrs["format_version"] = 2
+    before = copy.read_bytes()
+    with pytest.raises(ResultFileError) as info:
+        read_study(copy)
+    text = str(info.value)
+    assert str(copy) in text and "version 2" in text and "newer" in text
+    assert "reads result format version 1" in text
+    assert run_cli("export", copy) == 3
+    assert "version 2" in capsys.readouterr().err
+    assert run_cli("study", case, "--workers", "1", "--output", copy, "-q", "--resume") == 3
+    assert "version 2" in capsys.readouterr().err
+    assert copy.read_bytes() == before
+    with h5py.File(copy, "r+") as f:
+        del f.attrs["format_version"]
+    with pytest.raises(ResultFileError) as info:
+        read_study(copy)
+    text = str(info.value)
+    assert str(copy) in text and "no root attribute 'format_version'" in text
+    assert "reads result format version 1" in text
+    with h5py.File(copy, "r+") as f:  # the same file marked version 1 again reads as before
+        f.attrs["format_version"] = 1
+    assert read_study(copy).done.all()
+
+
+def test_importing_the_store_leaves_the_solver_alone():
+    """The store is reached without loading the solver or the study runner."""
+    code = ("import sys, partload.store\n"
+            "print(' '.join(m for m in sys.modules if m.startswith('partload')))")
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    loaded = run.stdout.split()
+    assert "partload.store.writer" in loaded
+    heavy = [m for m in loaded if m.split(".")[:2] in (["partload", "solve"],
+                                                        ["partload", "study"])]
+    assert heavy == []
 
 
 def test_resume_needs_the_same_limit(tmp_path, capsys):

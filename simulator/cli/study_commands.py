@@ -75,7 +75,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     beyond valves wide open as what-ifs instead of recording them as failed.
     """
     from ..plant.case import load_case
-    from ..store.hdf5 import StudyFile, check_target
+    from ..store import StudyFile, check_target
     from ..study.core import Progress, plan_study, result_layout, run_study
 
     out = out or sys.stdout
@@ -169,7 +169,7 @@ def _cmd_study(args) -> int:
 
 
 def _cmd_export(args) -> int:
-    from ..store.hdf5 import export_csv
+    from ..store import export_csv
 
     files = export_csv(args.result, args.output, si=args.si)
     for f in files:

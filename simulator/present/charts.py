@@ -42,7 +42,8 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from ..errors import InputError, ResultFileError
-from ..store.hdf5 import StudyData, read_study, to_display
+from ..store import StudyData, read_study, to_display
+from ..units import to_display_unit
 
 __all__ = ["CHARTS", "FIGSIZE", "DPI", "plot_study", "plot_willans", "plot_heat_rate",
            "plot_node_pressures", "plot_bleed_flows", "plot_expansion", "saturation_line"]
@@ -331,12 +332,12 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
             segments.append((thr, after, ":"))
         for a, b in zip(top.get("path_inlet", []), top.get("path_outlet", [])):
             segments.append((a, b, ":"))
-        S = st.data["nodes/entropy"] / 1e3
-        H = st.data["nodes/enthalpy"] / 1e3
+        S = to_display_unit(st.data["nodes/entropy"], "J/(kg K)")[0]  # kJ/(kg K)
+        H = to_display_unit(st.data["nodes/enthalpy"], "J/kg")[0]  # kJ/kg
         for i in _pick_points(st, loads):
             c = f"C{colour % 10}"
             colour += 1
-            P = st.total("generator_output")[i] / 1e6
+            P = float(to_display_unit(st.total("generator_output")[i], "W")[0])  # MW
             m = st.total("throttle_flow")[i]
             name = f"{P:.0f} MW, {m:.0f} kg/s"
             if len(studies) > 1:
@@ -351,8 +352,8 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
             ok = np.isfinite(S[i]) & np.isfinite(H[i])
             s_lo, s_hi = min(s_lo, S[i, ok].min()), max(s_hi, S[i, ok].max())
             h_lo, h_hi = min(h_lo, H[i, ok].min()), max(h_hi, H[i, ok].max())
-    ax.plot(s_sat / 1e3, h_sat / 1e3, color="0.35", linewidth=1.0,
-            label="saturation line")
+    ax.plot(to_display_unit(s_sat, "J/(kg K)")[0], to_display_unit(h_sat, "J/kg")[0],
+            color="0.35", linewidth=1.0, label="saturation line")
     if math.isfinite(s_lo):
         ds, dh = max(s_hi - s_lo, 0.2), max(h_hi - h_lo, 200.0)
         ax.set_xlim(s_lo - 0.15 * ds, s_hi + 0.15 * ds)

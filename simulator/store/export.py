@@ -1,0 +1,146 @@
+"""Study results in the engineer's units: display conversion and CSV export.
+
+:func:`to_display` converts a stored dataset to the units of tables, CSV and
+charts, using the one table of display units, :data:`partload.units.DISPLAY`,
+plus the few datasets shown otherwise (efficiencies and moisture in %,
+temperature differences in K).  :func:`export_csv` writes a result file as
+CSV files for spreadsheets.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import ResultFileError
+from ..units import to_display_unit
+from .reader import read_study
+
+__all__ = ["to_display", "export_csv"]
+
+# datasets whose kelvin are differences, and dimensionless ones shown in percent
+_DIFFERENCES = ("heaters/ttd", "heaters/dca")
+_PERCENT = ("stage_groups/efficiency", "stage_groups/outlet_moisture", "totals/exhaust_moisture")
+_KEEP = ("totals/energy_imbalance",)
+
+
+def to_display(values, unit: str, path: str = "") -> tuple[np.ndarray, str]:
+    """Convert SI values to the engineer's units used in tables, CSV and plots.
+
+    Pressure in bar, temperature in degC (differences stay in K), enthalpy in
+    kJ/kg, power in MW, heat rate in kJ/kWh, steam rate in kg/kWh,
+    efficiencies and moisture in %.
+
+    Parameters
+    ----------
+    values : array in SI units [unit]
+    unit : its SI unit, the dataset's ``unit`` attribute [-]
+    path : the dataset path, for the exceptions above [-]
+
+    Returns
+    -------
+    values, unit : converted array and its unit
+    """
+    v = np.asarray(values, dtype=float)
+    if path in _KEEP or path in _DIFFERENCES:
+        return v, unit
+    if path in _PERCENT:
+        return v * 100.0, "%"
+    return to_display_unit(v, unit)
+
+
+def _fmt(col: np.ndarray) -> list[str]:
+    col = np.asarray(col)
+    if col.dtype.kind in "fc":
+        out = np.char.mod("%.12g", col.astype(float)).tolist()
+        return ["" if not math.isfinite(x) else s for s, x in zip(out, col.tolist())]
+    if col.dtype.kind in "iub":
+        return [str(int(x)) for x in col.tolist()]
+    return [str(x) for x in col.tolist()]
+
+
+def export_csv(path: str | Path, out_dir: str | Path | None = None, si: bool = False) -> list[Path]:
+    """Write a study result as CSV files for spreadsheets.
+
+    Files ``<stem>_points.csv`` (inputs, solver record, totals, cautions),
+    ``<stem>_nodes.csv``, ``<stem>_stage_groups.csv``, ``<stem>_extractions.csv``
+    and ``<stem>_heaters.csv``; one row per point, in the order of the file.
+    Headers give the unit in brackets, e.g. ``generator_output [MW]`` or
+    ``pressure crossover [bar]``; ``input`` columns hold what was asked.
+    Values are in display units (see :func:`to_display`), or SI with ``si``.
+    Points not solved yet, and results of failed points, are empty cells.
+    Existing CSV files of the same names are replaced (they are derived data).
+
+    Parameters
+    ----------
+    path : the study result file [-]
+    out_dir : folder for the CSV files (default: that of the result file) [-]
+    si : write SI values instead of display units [-]
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    st = read_study(path)
+    out_dir = Path(out_dir) if out_dir is not None else st.path.parent
+    out_dir.mkdir(parents=True, exist_ok=True)
+    stem = st.path.stem
+    n = st.n_points
+
+    def conv(key, values):
+        unit = st.units.get(key, "")
+        if si or np.asarray(values).dtype.kind not in "fiu" or not unit:
+            return np.asarray(values), unit
+        return to_display(values, unit, key)
+
+    def head(name, unit):
+        return f"{name} [{unit}]" if unit else name
+
+    base_cols = [("point", np.arange(n)), ("label", np.array(st.labels, dtype=object)),
+                 ("series", st.series)]
+    files = []
+    # points: inputs, solver, totals, cautions
+    cols = list(base_cols) + [("done", st.done.astype(np.int8))]
+    for key in ("solver/status", "solver/converged", "solver/iterations",
+                "solver/evaluations", "solver/residual", "solver/error", "solver/message"):
+        cols.append((key.split("/")[1], st.data[key]))
+    for name, values in st.inputs.items():
+        v, u = conv(f"inputs/{name}", values)
+        cols.append((head(f"input {name}", u), v))
+    for key in [k for k in st.data if k.startswith("totals/")]:
+        v, u = conv(key, st.data[key])
+        cols.append((head(key.split("/")[1], u), v))
+    if st.cautions is not None:
+        cols.append(("cautions", st.data["cautions/count"]))
+        cols.append(("caution codes", st.data["cautions/codes"]))
+        cols.append(("caution messages", np.array([m.replace("\n", " | ") for m in
+                                                   st.data["cautions/messages"]], dtype=object)))
+    files.append(_write_csv(out_dir / f"{stem}_points.csv", cols))
+    for group in ("nodes", "stage_groups", "extractions", "heaters"):
+        items = st.names.get(group, [])
+        cols = list(base_cols)
+        for key in [k for k in st.data if k.startswith(group + "/")]:
+            arr = st.data[key]
+            if arr.ndim != 2:
+                continue
+            v, u = conv(key, arr)
+            for j, item in enumerate(items):
+                cols.append((head(f"{key.split('/')[1]} {item}", u), v[:, j]))
+        files.append(_write_csv(out_dir / f"{stem}_{group}.csv", cols))
+    return files
+
+
+def _write_csv(path: Path, cols: list[tuple[str, np.ndarray]]) -> Path:
+    texts = [_fmt(c) for _, c in cols]
+    try:
+        with open(path, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow([name for name, _ in cols])
+            w.writerows(zip(*texts))
+    except OSError as exc:
+        raise ResultFileError(f"cannot write {path}: {exc}") from None
+    return path

@@ -1,0 +1,261 @@
+"""The HDF5 layout of study result files, and the checks that a file is one.
+
+Result files (HDF5)
+===================
+
+A study writes one HDF5 file (``results/<case file name>.h5`` by default).  Every
+number in it is in **SI units**, and every numeric dataset says its unit in
+its ``unit`` attribute (``"-"`` for dimensionless, ``"J/J"`` for a heat rate:
+multiply by 3600 for kJ/kWh) and what it is in its ``description``
+attribute.  Text is UTF-8 (read it with ``dataset.asstr()[...]``).  Points are
+numbered ``0 .. n-1``: one *series* after the other (one series per
+combination of the swept values other than the load), the load increasing
+inside a series of a sweep; a profile keeps its file order.
+
+Root attributes
+    ``format`` = ``"partload-study"``, ``format_version`` (1), ``software``
+    (``"partload"``), ``software_version``, ``created`` (UTC, ISO 8601),
+    ``property_backend``, ``units`` (a reminder that all is SI),
+    ``model_name``, ``model_file``, ``model_sha256``, ``case_name``,
+    ``case_description``, ``case_file``, ``case_sha256``, ``profile_file``
+    and ``profile_sha256`` (profile studies), ``throttle_node`` and
+    ``valve_outlet_node`` (the throttle valves' nodes),
+    ``design_throttle_flow`` [kg/s], ``generator_rating`` [W],
+    ``check_limits`` (1: points beyond valves wide open fail; 0: solved as
+    what-ifs, ``--beyond-limits``), ``study_kind`` (``sweep``, ``profile`` or
+    ``profile+sweep``), ``n_points``, ``limit`` (``--limit N`` of a trial run
+    of the first N points; -1: the whole plan), ``n_chunks``, ``chunk_size``,
+    ``axes`` (the inputs varied), ``continuation_axis``.
+``/model_file``, ``/case_file``, ``/profile_file``
+    The full text of the model file, the case file and the profile CSV
+    (scalar string datasets), so a result can be reproduced.
+``/points/``
+    ``done`` (n, uint8): 1 once the point is finished (solved or failed);
+    ``label`` (n, text): the point's inputs in words; ``series`` (n, int32)
+    with ``series_labels`` (one text per series); ``chunk`` (n, int32): the
+    chunk the point was solved in (a chunk's points are solved by increasing
+    load, the first from the design-scaled guess, every other from the point
+    solved before it).
+``/inputs/<name>`` (n)
+    What was asked at each point: ``throttle_flow`` [kg/s] or ``output`` [W]
+    (the other is NaN), ``governing``, ``throttle_pressure`` [Pa] (NaN under
+    sliding pressure), ``throttle_temperature`` [K], ``reheat_temperature``
+    [K], ``exhaust_pressure`` [Pa] (design values where the case leaves them
+    unset), ``heaters_out_of_service``, ``extractions_closed`` and
+    ``extraction_setpoints`` (text), and each swept or profile input that is
+    not among these (``throttle_flow_fraction`` [-], ``output_fraction`` [-],
+    ``heater_out``, ``extraction_closed``, ``extraction_flow.NAME`` [kg/s];
+    for profiles ``profile_line`` and ``time``).
+``/solver/`` (n)
+    ``status`` (int8: -1 not solved yet, 0 converged, 1 failed, 2 internal
+    error), ``converged`` (uint8), ``iterations``, ``evaluations`` (int32, -1
+    not known), ``residual`` [-] (largest normalised residual), ``error`` (the
+    error class of a failed point: ``ConvergenceError``, ``InfeasibleError``,
+    ``PropertyRangeError``), ``message`` (why it failed; cut to 256 bytes).
+``/nodes/``
+    ``names`` (nodes, text) and, each (n, nodes): ``pressure`` [Pa],
+    ``temperature`` [K], ``enthalpy`` [J/kg], ``entropy`` [J/(kg K)],
+    ``quality`` [-] (steam quality; moisture = 1 - quality).
+``/stage_groups/``
+    ``names``, ``inlet``, ``outlet`` (groups, text: node names) and, each
+    (n, groups): ``flow`` [kg/s], ``efficiency`` [-], ``isentropic_drop``
+    [J/kg], ``power`` [W], ``annulus_velocity`` [m/s], ``exhaust_loss``
+    [J/kg], ``outlet_moisture`` [-].
+``/extractions/``
+    ``names``, ``nodes`` (extractions, text) and, each (n, extractions):
+    ``flow`` [kg/s], ``pressure`` [Pa], ``enthalpy`` [J/kg], ``control``
+    (text: heater, closed, flow or fraction).
+``/heaters/``
+    ``names`` (heaters, text) and, each (n, heaters): ``in_service`` (uint8),
+    ``bleed`` [kg/s], ``shell_pressure`` [Pa], ``saturation_temperature``,
+    ``feedwater_in_temperature``, ``feedwater_out_temperature``,
+    ``drain_temperature`` [K], ``feedwater_in_enthalpy``,
+    ``feedwater_out_enthalpy``, ``drain_enthalpy``, ``bleed_enthalpy``
+    [J/kg], ``feedwater_flow``, ``drain_flow`` [kg/s], ``duty``,
+    ``steam_release`` [W], ``ttd``, ``dca`` [K] (NaN where a value has no
+    meaning: most values of a heater out of service; ttd and dca of a
+    deaerator).
+``/paths/``
+    ``names``, ``inlet``, ``outlet``, ``kind`` (text): the reheaters and
+    pipes between nodes (no per-point data; their end states are node states).
+``/totals/<name>`` (n)
+    ``throttle_flow`` [kg/s], ``throttle_pressure`` [Pa],
+    ``generator_output`` [W], ``shaft_power`` [W], ``heat_rate`` [J/J],
+    ``steam_rate`` [kg/J], ``final_feedwater_temperature`` [K],
+    ``heat_added`` [W], ``condenser_duty`` [W], ... (every total of a point
+    result; each dataset has its unit and description).
+``/cautions/`` (present when the operating-limit checks are installed)
+    ``names`` (codes, text: every caution code) and, per point, ``count`` (n,
+    int16; -1 not checked), ``codes`` (n, text: the codes that fired,
+    separated by spaces), ``flags`` (n, codes, uint8: 1 where that code
+    fired), ``messages`` (n, text: one caution a line, cut to 1024 bytes).
+
+Points that are not finished hold NaN (numbers), -1 (counts) or empty text.
+A failed point holds NaN results and its reason in ``/solver/message``.
+
+Reading with h5py alone::
+
+    import h5py
+    with h5py.File("results/reheat_load_sweep.h5", "r") as f:
+        ok = f["solver/status"][:] == 0
+        flow = f["totals/throttle_flow"][ok]                 # kg/s
+        output = f["totals/generator_output"][ok] / 1e6       # MW
+        nodes = list(f["nodes/names"].asstr()[:])
+        p_crossover = f["nodes/pressure"][ok, nodes.index("crossover")] / 1e5  # bar
+
+Safety
+    Every dataset is created at its full size when the file is created (the
+    plan is known), fully allocated, and the file is moved into place only
+    when complete.  Finishing points then only writes numbers into the space
+    already allocated: the HDF5 structure never changes again, so a study
+    killed at any moment (Ctrl-C, SIGTERM, SIGKILL) leaves a valid file.  A
+    chunk's results are written and flushed before its ``done`` flags are set
+    and flushed, so every point marked done is complete.  ``--resume``
+    re-solves what is not done after checking that the model, case and
+    profile are unchanged.  Flushing hands the data to the operating system,
+    which keeps it when the process is killed; a power cut may still lose the
+    last chunks written.  A study holds the file locked for writing; the
+    finished points of a running study can be read with
+    ``h5py.File(path, "r", locking=False)``, safe here because the layout never
+    changes.  The file is not compressed (``h5repack`` can compress a copy).
+
+Checks
+    :func:`check_format` says whether an open file is a partload result this
+    software reads (format name, format version, core datasets);
+    :func:`open_hdf5` opens a path as HDF5 or says why not (missing, not
+    HDF5, damaged, locked by a running study); :func:`in_use` tells whether a
+    study holds the file for writing.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from ..errors import ResultFileError
+
+__all__ = [
+    "FORMAT",
+    "FORMAT_VERSION",
+    "READABLE_VERSIONS",
+    "TEXT",
+    "is_hdf5",
+    "open_hdf5",
+    "in_use",
+    "format_name",
+    "check_format",
+    "attr_value",
+]
+
+FORMAT = "partload-study"
+FORMAT_VERSION = 1  # the version this software writes
+READABLE_VERSIONS = (1,)  # the versions this software reads
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+TEXT = h5py.string_dtype("utf-8")  # variable-length UTF-8 text
+
+
+def is_hdf5(path: Path) -> bool:
+    """Whether the file at ``path`` [-] starts with the HDF5 signature."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(8)
+    except OSError:
+        return False
+    return head == HDF5_SIGNATURE
+
+
+def open_hdf5(path: Path, mode: str) -> h5py.File:
+    """Open ``path`` as HDF5 or raise a :class:`ResultFileError` saying why not.
+
+    Parameters
+    ----------
+    path : the file [-]
+    mode : h5py mode, ``"r"`` (no lock: the layout never changes, so the
+        finished points of a running study can be read) or ``"r+"`` [-]
+    """
+    if not path.exists():
+        raise ResultFileError(f"{path}: no such file")
+    if not is_hdf5(path):
+        raise ResultFileError(f"{path} is not an HDF5 file, so not a partload result "
+                              f"(another program's file, or damaged)")
+    try:
+        if mode == "r":
+            # the layout never changes after creation, so reading needs no lock: the
+            # finished points of a running study can be read
+            return h5py.File(path, "r", locking=False)
+        return h5py.File(path, mode)
+    except OSError as exc:
+        text = str(exc)
+        if "unable to lock file" in text.lower():
+            raise ResultFileError(f"{path} is in use by another process (a study still "
+                                  f"running?): {text}") from None
+        raise ResultFileError(f"{path} cannot be read as HDF5; it is damaged ({text})") from None
+
+
+def in_use(path: Path) -> bool:
+    """Whether another process holds the file at ``path`` [-] open for writing (its HDF5 lock)."""
+    try:
+        h5py.File(path, "r").close()  # a locking open: refused while a writer holds it
+    except OSError as exc:
+        return "unable to lock file" in str(exc).lower()
+    return False
+
+
+def format_name(f: h5py.File):
+    """The root attribute ``format`` of an open file as text (``None`` when missing)."""
+    fmt = f.attrs.get("format")
+    return fmt.decode() if isinstance(fmt, bytes) else fmt
+
+
+def _versions() -> str:
+    return ", ".join(str(v) for v in READABLE_VERSIONS)
+
+
+def check_format(f: h5py.File, path: Path) -> None:
+    """Refuse an open HDF5 file that is not a partload result this software reads.
+
+    Parameters
+    ----------
+    f : the open file
+    path : its path, for the messages [-]
+
+    Raises
+    ------
+    ResultFileError
+        When the root attribute ``format`` is not :data:`FORMAT`; when
+        ``format_version`` is missing or not in :data:`READABLE_VERSIONS`
+        (the message names the file, the version found and the versions
+        read); when a core dataset is missing (damaged).
+    """
+    fmt = format_name(f)
+    if fmt != FORMAT:
+        raise ResultFileError(f"{path} is an HDF5 file from another program, not a partload "
+                              f"study result (its root attribute 'format' is {fmt!r}, "
+                              f"expected {FORMAT!r})")
+    if "format_version" not in f.attrs:
+        raise ResultFileError(f"{path} is marked as a partload result but has no root "
+                              f"attribute 'format_version'; this partload reads result format "
+                              f"version {_versions()}")
+    found = attr_value(f.attrs["format_version"])
+    if not (isinstance(found, int) and found in READABLE_VERSIONS):
+        newer = (", newer than this partload knows (a newer partload wrote it)"
+                 if isinstance(found, int) and found > max(READABLE_VERSIONS) else "")
+        raise ResultFileError(f"{path} has result format version {found!r}{newer}; this "
+                              f"partload reads result format version {_versions()}")
+    for name in ("points/done", "solver/status", "model_file", "case_file"):
+        if name not in f:
+            raise ResultFileError(f"{path} is a partload result but lacks {name!r}; it is "
+                                  f"damaged")
+
+
+def attr_value(v):
+    """An HDF5 attribute as plain Python: text as str, numpy scalars as numbers."""
+    if isinstance(v, bytes):
+        return v.decode()
+    if isinstance(v, np.ndarray) and v.dtype.kind in "OS":
+        return [x.decode() if isinstance(x, bytes) else str(x) for x in v]
+    if isinstance(v, np.generic):
+        return v.item()
+    return v

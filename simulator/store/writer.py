@@ -1,0 +1,391 @@
+"""Writing study result files: create a file whole, resume it, store finished chunks.
+
+:func:`check_target` decides what to do with the result path of a study
+(create, resume or replace) and refuses to overwrite anything that is not an
+earlier partload result.  :class:`StudyFile` builds the whole layout (see
+:mod:`partload.store.format`) in ``<path>.creating``, moves it into place
+when complete, and then only writes numbers into space already allocated:
+each chunk's results, flushed, then its ``done`` flags, flushed.  On
+``--resume`` it checks that the model, case, profile, property backend,
+software version and plan are the ones the file was made with.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import h5py
+import numpy as np
+
+from .. import __version__
+from ..errors import ResultFileError
+from .format import (
+    FORMAT,
+    FORMAT_VERSION,
+    TEXT,
+    check_format,
+    format_name,
+    in_use,
+    is_hdf5,
+    open_hdf5,
+)
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..study.core import ChunkResult, ResultLayout, StudyPlan
+
+__all__ = ["StudyFile", "check_target"]
+
+
+def check_target(path: str | Path, *, resume: bool = False, force: bool = False) -> str:
+    """Decide what to do with the result path of a study.
+
+    Returns
+    -------
+    str
+        ``"create"`` (no file yet), ``"resume"`` (continue the file) or
+        ``"replace"`` (``force``: replace an earlier partload result).
+
+    Raises
+    ------
+    ResultFileError
+        When the file exists and neither ``resume`` nor ``force`` is given;
+        when it is not a partload result (never replaced, even with
+        ``force``); when ``resume`` is asked of a damaged file.
+    """
+    path = Path(path)
+    if not path.exists():
+        return "create"
+    if path.is_dir():
+        raise ResultFileError(f"{path} is a folder; give a file name ending in .h5")
+    if not is_hdf5(path):
+        raise ResultFileError(f"{path} exists and is not an HDF5 file; partload will not "
+                              f"overwrite it, even with --force (move or delete it, or choose "
+                              f"another --output)")
+    if force and in_use(path):  # checked before this process opens it (HDF5 shares handles)
+        raise ResultFileError(f"{path} is in use by another process (a study still "
+                              f"running?); partload will not replace it while it is being "
+                              f"written")
+    try:
+        f = open_hdf5(path, "r")
+    except ResultFileError:
+        if force:  # a damaged file of ours (killed while being created): replace it
+            return "replace"
+        raise
+    with f:
+        if format_name(f) != FORMAT:
+            raise ResultFileError(f"{path} is an HDF5 file from another program (no "
+                                  f"'format = {FORMAT}' attribute); partload will not "
+                                  f"overwrite it, even with --force")
+        if force:
+            return "replace"
+        if resume:
+            return "resume"
+        done = int(np.sum(f["points/done"][:])) if "points/done" in f else 0
+        n = int(f.attrs.get("n_points", 0))
+        case = f.attrs.get("case_name", "?")
+        raise ResultFileError(f"{path} already exists (study of case {case!r}, {done} of {n} "
+                              f"points done); use --resume to continue it, --force to replace "
+                              f"it, or --output to write elsewhere")
+
+
+def _utc_now() -> str:
+    return _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
+
+
+def _dcpl() -> h5py.h5p.PropDCID:
+    dcpl = h5py.h5p.create(h5py.h5p.DATASET_CREATE)
+    dcpl.set_alloc_time(h5py.h5d.ALLOC_TIME_EARLY)  # all space now, none later
+    return dcpl
+
+
+def _preallocated(group: h5py.Group, name: str, shape: tuple, dtype, fill) -> h5py.Dataset:
+    if isinstance(dtype, str) and dtype.startswith("S"):
+        dt = h5py.string_dtype("utf-8", int(dtype[1:]))
+        fill = np.array(fill, dtype=dt)
+    else:
+        dt = np.dtype(dtype)
+    return group.create_dataset(name, shape=shape, dtype=dt, fillvalue=fill, dcpl=_dcpl(),
+                                track_times=False)
+
+
+def _text_array(group: h5py.Group, name: str, values) -> h5py.Dataset:
+    return group.create_dataset(name, data=np.array(list(values), dtype=object), dtype=TEXT,
+                                track_times=False)
+
+
+def _same(a, b) -> bool:
+    a = np.asarray(a)
+    b = np.asarray(b)
+    if a.shape != b.shape:
+        return False
+    if a.dtype.kind == "f" and b.dtype.kind == "f":
+        return bool(np.array_equal(a, b, equal_nan=True))
+    return bool(np.array_equal(a, b))
+
+
+class StudyFile:
+    """A study result file open for writing.
+
+    Use :meth:`create` for a new study and :meth:`resume` to continue one;
+    then :meth:`write` each finished chunk and :meth:`close`.
+    """
+
+    def __init__(self, path: Path, f: h5py.File, layout: ResultLayout):
+        self.path = path
+        self.f = f
+        self.layout = layout
+        self._ds = {fl.path: f[fl.path] for fl in layout.fields()}
+        self._done = f["points/done"]
+
+    # ---------------------------------------------------------------- create
+    @classmethod
+    def create(cls, path: str | Path, plan: StudyPlan, layout: ResultLayout,
+               check_limits: bool = True) -> StudyFile:
+        """Write the file's whole structure, then move it to ``path``.
+
+        The structure is built in ``<path>.creating`` and renamed into place
+        when complete, so ``path`` (or the earlier result it replaces) is never
+        half-made.
+        """
+        path = Path(path)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp = path.with_name(path.name + ".creating")
+        if tmp.exists():
+            tmp.unlink()
+        try:
+            with h5py.File(tmp, "w", track_order=True) as f:
+                _write_structure(f, plan, layout)
+                f.attrs["check_limits"] = int(check_limits)
+                f.flush()
+            os.replace(tmp, path)
+        except OSError as exc:
+            raise ResultFileError(f"cannot create {path}: {exc}") from None
+        return cls(path, open_hdf5(path, "r+"), layout)
+
+    # ---------------------------------------------------------------- resume
+    @classmethod
+    def resume(cls, path: str | Path, plan: StudyPlan, layout: ResultLayout,
+               check_limits: bool = True) -> StudyFile:
+        """Open an earlier result of the same study to finish it.
+
+        Raises
+        ------
+        ResultFileError
+            When the file is not ours or damaged, or when the model, case,
+            profile, property backend, software version or plan differ from
+            those the file was made with.
+        """
+        path = Path(path)
+        f = open_hdf5(path, "r+")
+        try:
+            check_format(f, path)
+            _check_same_study(f, path, plan)
+            if int(f.attrs.get("check_limits", 1)) != int(check_limits):
+                was = "with" if int(f.attrs.get("check_limits", 1)) else "without"
+                raise ResultFileError(f"cannot resume {path}: it was solved {was} the limit "
+                                      f"check (--beyond-limits); resume it the same way")
+            layout.cautions = "cautions" in f
+            if layout.cautions:
+                layout.caution_codes = (list(f["cautions/names"].asstr()[:])
+                                        if "cautions/names" in f else [])
+            missing = [fl.path for fl in layout.fields() if fl.path not in f]
+            if missing:
+                raise ResultFileError(f"{path} lacks {missing[0]!r}; it was written with "
+                                      f"another layout and cannot be resumed")
+            return cls(path, f, layout)
+        except BaseException:
+            f.close()
+            raise
+
+    # ----------------------------------------------------------------- write
+    @property
+    def done(self) -> np.ndarray:
+        """Finished flag of every point (bool)."""
+        return self._done[:].astype(bool)
+
+    def done_chunks(self, plan: StudyPlan) -> set[int]:
+        """Indices of the chunks of ``plan`` whose points are all done."""
+        d = self.done
+        return {c.index for c in plan.chunks if d[c.start:c.stop].all()}
+
+    def write(self, res: ChunkResult) -> None:
+        """Store a finished chunk: results first, flushed, then its done flags, flushed."""
+        a, b = res.start, res.stop
+        try:
+            for name, arr in res.arrays.items():
+                ds = self._ds[name]
+                if ds.dtype.kind == "S":
+                    arr = arr.astype(ds.dtype)  # numpy bytes to HDF5 UTF-8 text
+                ds[a:b] = arr
+            self.f.flush()
+            self._done[a:b] = 1
+            self.f.flush()
+        except OSError as exc:
+            raise ResultFileError(f"cannot write to {self.path} ({exc}); the points marked "
+                                  f"done so far are safe, continue with --resume") from None
+
+    def close(self) -> None:
+        if self.f.id.valid:
+            self.f.flush()
+            self.f.close()
+
+    def __enter__(self) -> StudyFile:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+def _write_structure(f: h5py.File, plan: StudyPlan, layout: ResultLayout) -> None:
+    case = plan.case
+    model = case.model
+    n = plan.n_points
+    a = f.attrs
+    a["format"] = FORMAT
+    a["format_version"] = FORMAT_VERSION
+    a["software"] = "partload"
+    a["software_version"] = __version__
+    a["created"] = _utc_now()
+    a["property_backend"] = plan.backend
+    a["units"] = "SI; every numeric dataset states its unit in its 'unit' attribute"
+    a["model_name"] = model.name
+    # as the case file names it (relative to the case), not this machine's path
+    try:
+        a["model_file"] = os.path.relpath(model.file, Path(case.file).resolve().parent)
+    except ValueError:  # another drive
+        a["model_file"] = Path(model.file).name
+    a["model_sha256"] = model.sha256
+    a["case_name"] = case.name
+    a["case_description"] = case.description
+    a["case_file"] = str(case.file)
+    a["case_sha256"] = case.sha256
+    if plan.profile is not None:
+        a["profile_file"] = plan.profile.file
+        a["profile_sha256"] = plan.profile.sha256
+    a["throttle_node"] = layout.valve[0]
+    a["valve_outlet_node"] = layout.valve[1]
+    a["design_throttle_flow"] = layout.design_throttle_flow
+    a["generator_rating"] = layout.generator_rating
+    a["study_kind"] = plan.kind
+    a["n_points"] = n
+    a["limit"] = plan.limit if plan.limit is not None else -1
+    a["n_chunks"] = len(plan.chunks)
+    a["chunk_size"] = max((c.size for c in plan.chunks), default=0)
+    a["axes"] = np.array(plan.axes, dtype=object).astype(TEXT) if plan.axes else ""
+    a["continuation_axis"] = plan.continuation
+    f.create_dataset("model_file", data=model.text, dtype=TEXT, track_times=False)
+    f.create_dataset("case_file", data=case.text, dtype=TEXT, track_times=False)
+    if plan.profile is not None:
+        f.create_dataset("profile_file", data=plan.profile.text, dtype=TEXT, track_times=False)
+    pts = f.create_group("points", track_order=True)
+    d = _preallocated(pts, "done", (n,), "u1", 0)
+    d.attrs["description"] = "1 once the point is finished (solved or failed)"
+    _text_array(pts, "label", plan.labels).attrs["description"] = "the point's inputs in words"
+    ds = pts.create_dataset("series", data=plan.series.astype(np.int32), track_times=False)
+    ds.attrs["description"] = "series of the point (index into series_labels)"
+    _text_array(pts, "series_labels", plan.series_labels).attrs["description"] = (
+        "values of the fixed axes of each series")
+    ds = pts.create_dataset("chunk", data=plan.chunk_of_point, track_times=False)
+    ds.attrs["description"] = ("chunk the point was solved in; a chunk's points are solved by "
+                               "increasing load, the first from the design-scaled guess, every "
+                               "other from the point solved before it")
+    inp = f.create_group("inputs", track_order=True)
+    inp.attrs["axes"] = a["axes"]
+    inp.attrs["continuation_axis"] = plan.continuation
+    for name, col in plan.inputs.items():
+        if isinstance(col.values, np.ndarray):
+            ds = inp.create_dataset(name, data=col.values, track_times=False)
+            ds.attrs["unit"] = col.unit
+        else:
+            ds = _text_array(inp, name, col.values)
+        ds.attrs["description"] = col.description
+    groups = {
+        "nodes": {"names": layout.nodes},
+        "stage_groups": {"names": layout.groups, "inlet": layout.group_inlet,
+                         "outlet": layout.group_outlet},
+        "extractions": {"names": layout.extractions, "nodes": layout.extraction_nodes},
+        "heaters": {"names": layout.heaters},
+        **({"cautions": {"names": layout.caution_codes}} if layout.cautions else {}),
+        "paths": {"names": [p[0] for p in layout.paths], "inlet": [p[1] for p in layout.paths],
+                  "outlet": [p[2] for p in layout.paths], "kind": [p[3] for p in layout.paths]},
+    }
+    for gname, texts in groups.items():
+        g = f.create_group(gname, track_order=True)
+        for tname, values in texts.items():
+            _text_array(g, tname, values)
+    for fl in layout.fields():
+        gname, dname = fl.path.split("/")
+        g = f[gname] if gname in f else f.create_group(gname, track_order=True)
+        shape = (n, fl.width) if fl.width else (n,)
+        ds = _preallocated(g, dname, shape, fl.dtype, fl.fill)
+        if fl.unit:
+            ds.attrs["unit"] = fl.unit
+        ds.attrs["description"] = fl.description
+
+    def dimensionless(name, obj):  # every numeric dataset states a unit
+        if isinstance(obj, h5py.Dataset) and obj.dtype.kind in "iuf" and "unit" not in obj.attrs:
+            obj.attrs["unit"] = "-"
+
+    f.visititems(dimensionless)
+
+
+def _check_same_study(f: h5py.File, path: Path, plan: StudyPlan) -> None:
+    a = f.attrs
+    model = plan.case.model
+
+    def attr(k):
+        v = a.get(k, "")
+        return v.decode() if isinstance(v, bytes) else str(v)
+
+    fix = (f"Start afresh with --force (the {int(np.sum(f['points/done'][:]))} points stored "
+           f"are then lost) or write elsewhere with --output.")
+    if attr("model_sha256") != model.sha256:
+        raise ResultFileError(
+            f"cannot resume {path}: the model has changed since this study was started. The "
+            f"file was made with model {attr('model_name')!r} ({attr('model_file')}, sha256 "
+            f"{attr('model_sha256')[:12]}...), but {model.file} now has sha256 "
+            f"{model.sha256[:12]}...; resuming would mix results of two models. {fix}")
+    if attr("case_sha256") != plan.case.sha256:
+        raise ResultFileError(
+            f"cannot resume {path}: the case file {plan.case.file} has changed since this "
+            f"study was started (sha256 {attr('case_sha256')[:12]}... in the file, "
+            f"{plan.case.sha256[:12]}... now). {fix}")
+    if plan.profile is not None and attr("profile_sha256") != plan.profile.sha256:
+        raise ResultFileError(
+            f"cannot resume {path}: the profile {plan.profile.file} has changed since this "
+            f"study was started. {fix}")
+    if attr("property_backend") != plan.backend:
+        raise ResultFileError(
+            f"cannot resume {path}: it was solved with property backend "
+            f"{attr('property_backend')!r}, this run uses {plan.backend!r}. {fix}")
+    if attr("software_version") != __version__:
+        raise ResultFileError(
+            f"cannot resume {path}: it was written by partload {attr('software_version')}, "
+            f"this is {__version__}; results of two versions are not mixed. {fix}")
+    stored_limit = int(a.get("limit", -1))
+    limit = plan.limit if plan.limit is not None else -1
+    if stored_limit != limit:
+        was = (f"a trial run of the first {stored_limit} points (--limit {stored_limit})"
+               if stored_limit > 0 else "the whole plan")
+        now = f"--limit {limit}" if limit > 0 else "no --limit"
+        raise ResultFileError(f"cannot resume {path}: it holds {was}, and this run has {now}; "
+                              f"resume with the same --limit. {fix}")
+    same = (int(a.get("n_points", -1)) == plan.n_points
+            and _same(f["points/chunk"][:], plan.chunk_of_point))
+    if same:
+        for name, col in plan.inputs.items():
+            if name not in f["inputs"]:
+                same = False
+                break
+            stored = f["inputs"][name]
+            stored = (stored[:] if isinstance(col.values, np.ndarray)
+                      else list(stored.asstr()[:]))
+            if not _same(stored, col.values):
+                same = False
+                break
+    if not same:
+        raise ResultFileError(f"cannot resume {path}: the points planned now differ from those "
+                              f"stored (same files, another planning rule?). {fix}")
