@@ -179,7 +179,7 @@ def test_exhaust_temperature_with_a_low_limit():
 
 
 def test_valves_wide_open_at_held_pressure(reheat_model):
-    cond = Conditions(throttle_flow=290.0, governing="throttle", throttle_pressure=166e5)
+    cond = Conditions(throttle_flow=290.0, pressure_mode="fixed", throttle_pressure=166e5)
     with pytest.raises(InfeasibleError):
         solve_point(reheat_model, cond)
     _, found = solved(reheat_model, cond, check_limits=False)
@@ -203,7 +203,7 @@ def test_valves_wide_open_sliding_above_highest_pressure(reheat_model):
 
 
 def test_valves_quiet_within_capacity(reheat_model):
-    cond = Conditions(throttle_flow=275.0, governing="throttle", throttle_pressure=166e5)
+    cond = Conditions(throttle_flow=275.0, pressure_mode="fixed", throttle_pressure=166e5)
     _, found = solved(reheat_model, cond, check_limits=False)
     assert "valves_wide_open" not in codes(found)
 

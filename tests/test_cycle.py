@@ -126,13 +126,13 @@ def test_heat_rate_worse_at_half_load(reheat_model):
     assert 7500.0 < full.totals["heat_rate"] * 3600.0 < 8500.0
 
 
-@pytest.mark.parametrize("governing", ["sliding", "throttle"])
-def test_output_demand_matches_flow_case(reheat_model, governing):
+@pytest.mark.parametrize("mode", ["sliding", "fixed"])
+def test_output_demand_matches_flow_case(reheat_model, mode):
     demand = 0.6 * reheat_model.generator.rating
-    d = solve_point(reheat_model, Conditions(output=demand, governing=governing))
+    d = solve_point(reheat_model, Conditions(output=demand, pressure_mode=mode))
     assert d.totals["generator_output"] == pytest.approx(demand, rel=1e-6)
     f = solve_point(reheat_model, Conditions(throttle_flow=d.totals["throttle_flow"],
-                                             governing=governing))
+                                             pressure_mode=mode))
     np.testing.assert_allclose(f.node_p, d.node_p, rtol=1e-8)
     np.testing.assert_allclose([h.bleed for h in f.heaters], [h.bleed for h in d.heaters],
                                rtol=1e-7)

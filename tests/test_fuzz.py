@@ -238,7 +238,7 @@ def request_data(draw):
     elif load == "output":
         op[load] = draw(quantity(0.1, 2.0 * model.generator.rating / 1e6, "MW"))
     if draw(st.booleans()):
-        op["governing"] = "throttle"
+        op["pressure_mode"] = "fixed"
         if draw(st.booleans()):
             op["throttle_pressure"] = draw(quantity(1.0, 200.0, "bar"))
     if draw(st.booleans()):

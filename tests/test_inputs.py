@@ -176,7 +176,7 @@ CASE_CASES = [
      "operation", "output", "give only one of"),
     ("held-pressure-sliding", REHEAT,
      '[operation]\nthrottle_flow = "200 kg/s"\nthrottle_pressure = "160 bar"\n',
-     "operation", "throttle_pressure", "needs governing = 'throttle'"),
+     "operation", "throttle_pressure", "needs pressure_mode = 'fixed'"),
     ("held-pressure-above-max", REHEAT,
      '[operation]\nthrottle_flow = "200 kg/s"\ngoverning = "throttle"\n'
      'throttle_pressure = "200 bar"\n',
@@ -307,3 +307,23 @@ def test_process_prints_no_traceback_for_a_broken_case(tmp_path):
     assert proc.returncode == 2 and proc.stdout == ""
     assert "Traceback" not in proc.stderr
     assert "[operation] governing: 'slidin' is not one of" in proc.stderr
+
+
+def test_former_governing_key_still_reads_and_says_how_to_write_it(tmp_path):
+    # 'governing' was one key for two things; it now maps onto pressure_mode with a note
+    old = tmp_path / "old.toml"
+    old.write_text(f'model = "{REHEAT.as_posix()}"\n[operation]\nthrottle_flow_fraction = 0.7\n'
+                   'governing = "throttle"\nthrottle_pressure = "150 bar"\n')
+    new = tmp_path / "new.toml"
+    new.write_text(f'model = "{REHEAT.as_posix()}"\n[operation]\nthrottle_flow_fraction = 0.7\n'
+                   'pressure_mode = "fixed"\nthrottle_pressure = "150 bar"\n')
+    a, b = load_case(old), load_case(new)
+    assert a.conditions == b.conditions
+    assert a.conditions.pressure_mode == "fixed" and a.conditions.valve_mode == "throttle"
+    assert len(a.notes) == 1 and "pressure_mode = 'fixed'" in a.notes[0]
+    assert b.notes == []
+    both = tmp_path / "both.toml"
+    both.write_text(f'model = "{REHEAT.as_posix()}"\n[operation]\n'
+                    'governing = "throttle"\npressure_mode = "fixed"\n')
+    with pytest.raises(InputError, match="pressure_mode only"):
+        load_case(both)

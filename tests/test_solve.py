@@ -81,7 +81,7 @@ def test_willans_line_is_straight_with_throttle_governing():
     flows, outputs = [], []
     for f in np.linspace(0.5, 1.0, 6):
         r = solve_point(model, Conditions(throttle_flow=f * model.throttle.flow,
-                                          governing="throttle"))
+                                          pressure_mode="fixed"))
         flows.append(r.totals["throttle_flow"])
         outputs.append(r.totals["generator_output"])
     coef = np.polyfit(outputs, flows, 1)
@@ -118,14 +118,14 @@ def test_process_extraction_closed_raises_output(industrial_model):
 def test_flow_above_valves_wide_open_is_refused_with_the_maximum(reheat_model):
     with pytest.raises(InfeasibleError, match=r"maximum throttle flow \d+\.\d+ kg/s"):
         solve_point(reheat_model, Conditions(throttle_flow=1.1 * reheat_model.throttle.flow,
-                                             governing="throttle"))
+                                             pressure_mode="fixed"))
     with pytest.raises(InfeasibleError, match=r"highest allowed 175.00 bar"):
         solve_point(reheat_model, Conditions(throttle_flow=1.2 * reheat_model.throttle.flow))
 
 
 def test_throttle_governing_takes_the_drop_in_the_valves(reheat_model):
     r = solve_point(reheat_model, Conditions(throttle_flow=0.6 * reheat_model.throttle.flow,
-                                             governing="throttle"))
+                                             pressure_mode="fixed"))
     assert r.totals["throttle_pressure"] == pytest.approx(reheat_model.throttle.pressure)
     # the first-stage inlet pressure follows the flow, the valves take the rest
     # ellipse law: at 60 % flow the first-stage pressure is near 60 % of design (a few

@@ -150,7 +150,7 @@ throttle_flow_fraction = {from = 0.5, to = 1.0, step = 0.2}
     ("[sweep]\nheater_out = ['none', 'HP9']\n", "heater_out", "did you mean 'HP8'"),
     ("[sweep]\nheater_out = ['deaerator']\n", "heater_out", "deaerator"),
     ("[sweep]\nthrottle_pressure = ['150 bar']\n", "throttle_pressure",
-     "needs governing = 'throttle'"),
+     "needs pressure_mode = 'fixed'"),
     ("[sweep]\nthrottle_flow_fraction = [0.5, 2.5]\n", "throttle_flow_fraction", "2.5"),
     ("[sweep]\nextraction_flow = {E8 = ['1 kg/s']}\n", "E8", "feeds heater 'HP8'"),
     ("[sweep]\n", None, "empty"),

@@ -56,6 +56,8 @@ def _cmd_point(args) -> int:
     from ..solve.point import solve_point
 
     case = load_case(args.case)
+    for note in case.notes:
+        print(f"partload: note: {note}", file=sys.stderr)
     if "sweep" in case.data or "profile" in case.data:
         print(f"partload: note: {args.case} also defines a study ([sweep] or [profile]); "
               f"'point' solves its base point only, 'partload study' runs the study",

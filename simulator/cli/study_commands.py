@@ -80,6 +80,8 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
 
     out = out or sys.stdout
     case = load_case(case_path)
+    for note in case.notes:
+        print(f"partload: note: {note}", file=sys.stderr)
     plan = plan_study(case, backend)
     if limit is not None:
         plan = plan.head(limit)

@@ -64,14 +64,27 @@ class Column:
 class Setting:
     """A value a case file may set for one component, in ``[<settings_table>.NAME]``.
 
-    ``dimension`` is a :data:`simulator.units.DIMENSIONS` name, ``"choice"``
-    (one of ``choices``) or ``"flag"`` (true or false).
+    ``dimension`` is a :data:`simulator.units.DIMENSIONS` name (a quantity with
+    its unit, between ``lo`` and ``hi`` in SI), ``"number"`` (a plain number),
+    ``"choice"`` (one of ``choices``) or ``"flag"`` (true or false).
     """
 
     name: str
     dimension: str
     description: str
     choices: tuple[str, ...] = ()
+    lo: float | None = None
+    hi: float | None = None
+
+    def read(self, reader):
+        """The value in ``reader``'s table, or ``None`` when absent or wrong."""
+        if self.dimension == "choice":
+            return reader.string(self.name, default=None, choices=self.choices)
+        if self.dimension == "flag":
+            return reader.boolean(self.name, default=None)
+        if self.dimension == "number":
+            return reader.number(self.name, default=None, lo=self.lo, hi=self.hi)
+        return reader.quantity(self.name, self.dimension, default=None, lo=self.lo, hi=self.hi)
 
 
 @dataclass(frozen=True)
@@ -170,6 +183,11 @@ class Component:
     def check_design(self, ctx: ReadContext) -> None:
         """Checks of the read component against the design state of the file
         (``ctx.design_pressure``); problems go to ``ctx.problems``."""
+
+    def apply_settings(self, values: dict, where, target) -> None:
+        """Put a case's settings of this component (``values``: setting name -> SI
+        value, absent ones left out) into ``target`` (a
+        :class:`simulator.plant.case.SettingsTarget`); problems name ``where``."""
 
     def point_row(self, point) -> tuple:
         """Values of :attr:`columns` at a solved point (kinds off the steam path);

@@ -16,6 +16,7 @@ from typing import ClassVar
 
 from ..errors import InputError
 from ..physics.pressure_drop import scaled_pressure_drop
+from ..steam.if97 import P_MAX, P_MIN
 from .base import Column, ReadContext, Setting, SteamPathComponent
 from .reading import edge_names
 
@@ -36,7 +37,7 @@ class ControlValve(SteamPathComponent):
     results: ClassVar[str] = "control_valves"
     settings_table: ClassVar[str] = "control_valves"
     settings: ClassVar[tuple[Setting, ...]] = (
-        Setting("pressure", "pressure", "inlet pressure the valve holds"),
+        Setting("pressure", "pressure", "inlet pressure the valve holds", lo=P_MIN, hi=P_MAX),
     )
     columns: ClassVar[tuple[Column, ...]] = (
         Column("flow", "kg/s", "steam flow through the valve"),
@@ -87,3 +88,7 @@ class ControlValve(SteamPathComponent):
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         return (m, p_in - p_out, 1 if record else 0)
+
+    def apply_settings(self, values, where, target) -> None:
+        if values.get("pressure") is not None:
+            target.held_pressures.append((self.name, values["pressure"]))

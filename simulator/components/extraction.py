@@ -33,8 +33,9 @@ class Extraction(Component):
     settings_table: ClassVar[str] = "extractions"
     settings: ClassVar[tuple[Setting, ...]] = (
         Setting("control", "choice", "how the bleed flow is set", EXTRACTION_CONTROLS),
-        Setting("flow", "mass_flow", "bleed flow held (control = 'flow')"),
-        Setting("fraction", "fraction", "bleed flow over throttle flow (control = 'fraction')"),
+        Setting("flow", "mass_flow", "bleed flow held (control = 'flow')", lo=0.0),
+        Setting("fraction", "number", "bleed flow over throttle flow (control = 'fraction')",
+                lo=0.0, hi=1.0),
     )
     columns: ClassVar[tuple[Column, ...]] = (
         Column("flow", "kg/s", "bleed flow"),
@@ -66,3 +67,31 @@ class Extraction(Component):
     def point_row(self, point) -> tuple:
         flow, control = point.bleeds[self.name]
         return (flow, point.pressure(self.node), point.enthalpy(self.node), control)
+
+    def apply_settings(self, values, where, target) -> None:
+        control = values.get("control")
+        for key in ("flow", "fraction"):
+            if key in values and control != key:
+                target.problems.add(where.child(key).error(
+                    f"applies with control = {key!r} only"))
+        if control is None:
+            if "control" not in values:
+                target.problems.add(where.child("control").error("missing required key"))
+            return
+        if control == "heater" and not self.heater:
+            target.problems.add(where.child("control").error("this extraction feeds no heater"))
+        elif control in ("flow", "fraction") and self.heater:
+            target.problems.add(where.child("control").error(
+                f"this extraction feeds heater {self.heater!r}, which sets its flow; close it "
+                f"or take the heater out of service instead"))
+        elif control == "closed" and self.heater:
+            target.heaters_out.add(self.heater)
+        elif control in ("flow", "fraction"):
+            value = values.get(control)
+            if value is None:
+                if control not in values:
+                    target.problems.add(where.child(control).error("missing required key"))
+                return
+            target.extraction_control.append((self.name, (control, float(value))))
+        else:
+            target.extraction_control.append((self.name, (control, 0.0)))

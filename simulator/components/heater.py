@@ -152,3 +152,7 @@ class Heater(Component):
 
     def point_row(self, point) -> tuple:
         return self.state_row(point.heaters[self.name])
+
+    def apply_settings(self, values, where, target) -> None:
+        if values.get("in_service") is False:
+            target.heaters_out.add(self.name)

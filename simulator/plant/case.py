@@ -18,6 +18,7 @@ import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from ..components import KINDS
 from ..errors import InputError
 from ..inputs.reading import Problems, TableReader, load_toml
 from ..plant.model import Model, load_model
@@ -25,12 +26,19 @@ from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, get_backe
 from ..units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
-           "GOVERNING", "OPERATION_KEYS"]
+           "VALVE_MODES", "PRESSURE_MODES", "OPERATION_KEYS"]
 
-GOVERNING = ("sliding", "throttle")
+# how the throttle valves pass the steam: "throttle" (all of it through one set of
+# valves that open together)
+VALVE_MODES = ("throttle",)
+# how the throttle pressure behaves: "sliding" (a result; the valves wide open) or
+# "fixed" (held at the case's throttle_pressure; the valves take the difference)
+PRESSURE_MODES = ("sliding", "fixed")
+# the former single key, still read: governing = "sliding" | "throttle"
+_GOVERNING = {"sliding": "sliding", "throttle": "fixed"}
 OPERATION_KEYS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction",
-                  "governing", "throttle_pressure", "throttle_temperature",
-                  "reheat_temperature", "exhaust_pressure")
+                  "valve_mode", "pressure_mode", "governing", "throttle_pressure",
+                  "throttle_temperature", "reheat_temperature", "exhaust_pressure")
 
 
 @dataclass(frozen=True)
@@ -38,16 +46,19 @@ class Conditions:
     """One operating point, SI units.
 
     Exactly one of ``throttle_flow`` [kg/s] and ``output`` [W] is set.
-    ``governing`` is ``"sliding"`` (throttle pressure follows the load, valves
-    wide open) or ``"throttle"`` (throttle pressure held at
-    ``throttle_pressure`` [Pa], the valves throttle).
+    ``valve_mode`` says how the throttle valves pass the steam (``"throttle"``:
+    all of it through one set of valves); ``pressure_mode`` how the throttle
+    pressure behaves: ``"sliding"`` (it follows the load, the valves wide open)
+    or ``"fixed"`` (held at ``throttle_pressure`` [Pa], the design pressure when
+    ``None``; the valves throttle).
     ``extraction_control`` maps an extraction name to ``(control, value)``:
     ``("closed", 0)``, ``("flow", kg/s)`` or ``("fraction", of throttle flow)``.
     """
 
     throttle_flow: float | None = None
     output: float | None = None
-    governing: str = "sliding"
+    valve_mode: str = "throttle"
+    pressure_mode: str = "sliding"
     throttle_pressure: float | None = None
     throttle_temperature: float | None = None
     reheat_temperature: float | None = None
@@ -56,6 +67,12 @@ class Conditions:
     heaters_out: frozenset = frozenset()
     label: str = ""
     held_pressures: tuple = ()  # (control valve name, held inlet pressure [Pa])
+
+    @property
+    def governing(self) -> str:
+        """The mode in the trade's words: ``"sliding"`` pressure or ``"throttle"``
+        governing (a fixed throttle pressure with throttling valves)."""
+        return "throttle" if self.pressure_mode == "fixed" else "sliding"
 
     def controls(self) -> dict:
         return dict(self.extraction_control)
@@ -74,6 +91,7 @@ class Case:
     conditions: Conditions
     backend: str = "seuif97"
     data: dict = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)  # advice on keys written the former way
 
 
 def load_case(path: str | Path, model: Model | None = None) -> Case:
@@ -90,8 +108,8 @@ def load_case(path: str | Path, model: Model | None = None) -> Case:
     name = top.string("name", default=path.stem)
     description = top.string("description", default="")
     backend = top.string("backend", default="seuif97", choices=sorted(BACKENDS))
-    top.finish(also_valid=("operation", "extractions", "heaters", "control_valves", "sweep",
-                           "profile"))
+    top.finish(also_valid=("operation", "sweep", "profile")
+               + tuple(k.settings_table for k in KINDS.values() if k.settings_table))
     problems.raise_if_any()
     if model is None:
         model_path = (path.parent / model_ref).resolve()
@@ -99,13 +117,18 @@ def load_case(path: str | Path, model: Model | None = None) -> Case:
             raise InputError(f"model file {model_ref!r} not found (looked at {model_path})",
                              file=str(path), key="model")
         model = load_model(model_path)
-    cond = read_conditions(data, model, str(path))
+    notes: list[str] = []
+    cond = read_conditions(data, model, str(path), notes)
     return Case(name, description, str(path), text, hashlib.sha256(text.encode()).hexdigest(),
-                model, cond, backend, data)
+                model, cond, backend, data, notes)
 
 
-def read_conditions(data: dict, model: Model, file: str = "<case>") -> Conditions:
-    """Resolve the ``[operation]``, ``[extractions]`` and ``[heaters]`` tables."""
+def read_conditions(data: dict, model: Model, file: str = "<case>",
+                    notes: list[str] | None = None) -> Conditions:
+    """Resolve the ``[operation]`` table and the components' settings tables.
+
+    ``notes`` collects advice on keys written the former way.
+    """
     problems = Problems()
     op = TableReader(data.get("operation", {}), Where(file, "operation"), problems,
                      atmosphere=model.atmosphere)
@@ -130,7 +153,20 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
         m_T = m_d
     for k in flows[1:]:
         op.raw(k)
-    governing = op.string("governing", default="sliding", choices=GOVERNING)
+    valve_mode = op.string("valve_mode", default="throttle", choices=VALVE_MODES)
+    pressure_mode = op.string("pressure_mode", default="sliding", choices=PRESSURE_MODES)
+    if "governing" in op.data:
+        old = op.string("governing", choices=tuple(_GOVERNING))
+        if "pressure_mode" in op.data:
+            problems.add(op.where.child("governing").error(
+                "give pressure_mode only; governing is its former name"))
+        elif old is not None:
+            pressure_mode = _GOVERNING[old]
+            if notes is not None:
+                notes.append(f"{file}: [operation] governing = {old!r} is written "
+                             f"pressure_mode = {pressure_mode!r} now (valve_mode = 'throttle' "
+                             f"is the default)")
+    fixed = pressure_mode == "fixed"
     if1997 = "the validity range of IAPWS-IF97"
     p_T = op.quantity("throttle_pressure", "pressure", default=None, lo=P_MIN,
                       hi=model.throttle.max_pressure,
@@ -143,7 +179,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
     p_x = op.quantity("exhaust_pressure", "pressure", default=None, lo=P_MIN, hi=P_MAX,
                       reason=if1997 + ", which ends at the triple point")
     op.finish(also_valid=OPERATION_KEYS)
-    if governing == "throttle" and T_T is not None and (p_T is not None or "throttle_pressure"
+    if fixed and T_T is not None and (p_T is not None or "throttle_pressure"
                                                           not in op.data):
         p_held = p_T if p_T is not None else model.throttle.pressure
         T_sat = 647.096 if p_held >= P_CRIT else get_backend().T_sat(p_held)
@@ -152,61 +188,50 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
                 f"{T_T - 273.15:.1f} degC is not above the saturation temperature "
                 f"{T_sat - 273.15:.1f} degC at the held throttle pressure {p_held / 1e5:.5g} bar: "
                 f"the turbine would receive water, not steam"))
-    if p_T is not None and governing == "sliding":
+    if p_T is not None and pressure_mode == "sliding":
         problems.add(op.where.child("throttle_pressure").error(
-            "a held throttle pressure needs governing = 'throttle'; with sliding pressure the "
-            "throttle pressure is a result"))
+            "a held throttle pressure needs pressure_mode = 'fixed'; with sliding pressure "
+            "the throttle pressure is a result"))
     if T_rh is not None and not model.reheaters:
         problems.add(op.where.child("reheat_temperature").error("the model has no reheater"))
 
-    controls = []
-    out_set = set()
-    for ename, w, edat in _named_tables(data, "extractions", model.extractions, "extraction",
-                                        file, problems):
-        er = TableReader(edat, w, problems)
-        control = er.string("control", choices=("closed", "flow", "fraction", "heater"))
-        value = 0.0
-        if control == "flow":
-            value = er.quantity("flow", "mass_flow", lo=0.0)
-        elif control == "fraction":
-            value = er.number("fraction", lo=0.0, hi=1.0)
-        er.finish()
-        e = model.extractions[ename]
-        if control == "heater" and not e.heater:
-            problems.add(w.child("control").error("this extraction feeds no heater"))
-        elif control in ("flow", "fraction") and e.heater:
-            problems.add(w.child("control").error(
-                f"this extraction feeds heater {e.heater!r}, which sets its flow; close it "
-                f"or take the heater out of service instead"))
-        elif control == "closed" and e.heater:
-            out_set.add(e.heater)
-        elif control is not None and value is not None:
-            controls.append((ename, (control, float(value))))
-    for hname, w, hdat in _named_tables(data, "heaters", model.heaters, "heater", file,
-                                        problems):
-        hr = TableReader(hdat, w, problems)
-        ins = hr.boolean("in_service", default=True)
-        hr.finish()
-        if ins is False:
-            out_set.add(hname)
-    for hname in out_set:
+    target = SettingsTarget(problems)
+    for kind in KINDS.values():
+        if not kind.settings_table:
+            continue
+        known = {c.name: c for c in model.of_kind(kind)}
+        for cname, w, table in _named_tables(data, kind.settings_table, known, kind.title,
+                                             file, problems):
+            reader = TableReader(table, w, problems, atmosphere=model.atmosphere)
+            values = {st.name: st.read(reader) for st in kind.settings if st.name in reader.data}
+            reader.finish(also_valid=[st.name for st in kind.settings])
+            known[cname].apply_settings(values, w, target)
+    controls = target.extraction_control
+    for hname in target.heaters_out:  # out of service, or its extraction closed
         e = model.extractions[model.heaters[hname].extraction]
         controls.append((e.name, ("closed", 0.0)))
         if model.heaters[hname].kind == "deaerator":
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))
-    held = []
-    valves = {c.name: c for c in model.control_valves}
-    for vname, w, vdat in _named_tables(data, "control_valves", valves, "control valve", file,
-                                        problems):
-        vr = TableReader(vdat, w, problems, atmosphere=model.atmosphere)
-        p_held = vr.quantity("pressure", "pressure", lo=P_MIN, hi=P_MAX)
-        vr.finish()
-        if p_held is not None:
-            held.append((vname, p_held))
     problems.raise_if_any()
-    return Conditions(m_T, out, governing, p_T, T_T, T_rh, p_x, tuple(sorted(controls)),
-                      frozenset(out_set), held_pressures=tuple(sorted(held)))
+    return Conditions(m_T, out, valve_mode=valve_mode, pressure_mode=pressure_mode,
+                      throttle_pressure=p_T, throttle_temperature=T_T, reheat_temperature=T_rh,
+                      exhaust_pressure=p_x, extraction_control=tuple(sorted(controls)),
+                      heaters_out=frozenset(target.heaters_out),
+                      held_pressures=tuple(sorted(target.held_pressures)))
+
+
+@dataclass
+class SettingsTarget:
+    """What the components' case settings change (see
+    :meth:`simulator.components.Component.apply_settings`): extraction controls
+    ``(name, (control, value))``, heaters out of service, pressures held by
+    control valves ``(name, pressure [Pa])``; problems found on the way."""
+
+    problems: Problems
+    extraction_control: list = field(default_factory=list)
+    heaters_out: set = field(default_factory=set)
+    held_pressures: list = field(default_factory=list)
 
 
 def _named_tables(data: dict, key: str, known, what: str, file: str, problems: Problems):

@@ -71,7 +71,7 @@ class PointEquations:
         self.N = N
         self.src = idx[model.source]
         self.exhaust_idx = [idx[n] for n in model.exhaust_nodes]
-        self.throttle_fixed = cond.governing == "throttle" or mode == "wide_open"
+        self.throttle_fixed = cond.pressure_mode == "fixed" or mode == "wide_open"
         # control valves that throttle hold their inlet pressure
         self.holding = [(idx[c.inlet], c) for c in model.control_valves
                         if c.name not in self.wide_open]
@@ -340,8 +340,8 @@ class PointEquations:
 def equations_for(model: Model, cond: Conditions, steam: SteamTables,
                   mode: str = "point", wide_open: frozenset = frozenset()) -> PointEquations:
     """The compiled equations for ``cond``, reused across points of the same structure."""
-    key = (cond.governing, mode, cond.output is not None, cond.extraction_control,
-           cond.heaters_out, steam.name, frozenset(wide_open))
+    key = (cond.valve_mode, cond.pressure_mode, mode, cond.output is not None,
+           cond.extraction_control, cond.heaters_out, steam.name, frozenset(wide_open))
     key = key + (threading.get_ident(),)  # one compiled copy per thread: it holds state
     cache = model.__dict__.setdefault("_equations", {})
     eq = cache.get(key)

@@ -45,7 +45,7 @@ TOL = 1e-10
 def wide_open_capacity(model: Model, cond: Conditions, steam: SteamTables,
                        p_throttle: float) -> tuple[float, float]:
     """Throttle flow [kg/s] and output [W] with the valves wide open at ``p_throttle`` [Pa]."""
-    c2 = override(cond, governing="throttle", throttle_pressure=p_throttle, output=None,
+    c2 = override(cond, pressure_mode="fixed", throttle_pressure=p_throttle, output=None,
                   throttle_flow=model.throttle.flow)
     eq = equations_for(model, c2, steam, mode="wide_open")
     x0 = eq.guess()
@@ -170,7 +170,7 @@ def _asked(cond: Conditions, eq: PointEquations) -> str:
         what = f"a throttle flow of {cond.throttle_flow:.2f} kg/s"
     else:
         what = "this point"
-    if cond.governing == "throttle":
+    if cond.pressure_mode == "fixed":
         what += f" at a held throttle pressure of {eq.p_fix[eq.src] / 1e5:.2f} bar"
     return what
 
@@ -227,7 +227,7 @@ def _check_feasible(model, cond, steam, eq, st):
     after = eq.idx[model.valve.outlet]
     asked = (f"an output of {cond.output / 1e6:.2f} MW" if cond.output is not None
              else f"a throttle flow of {st['m_T']:.2f} kg/s")
-    if cond.governing == "throttle":
+    if cond.pressure_mode == "fixed":
         available = p_T - p[after]
         # valves-wide-open drop to 1e-5 of throttle pressure: the design point itself
         # sits on that limit, and its exact value moves by pascals with the back pressure
