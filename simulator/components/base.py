@@ -50,7 +50,9 @@ class Column:
 
     ``name`` is the dataset name (``/<results>/<name>`` in a result file) and the
     key in JSON; ``unit`` its SI unit (``"-"`` dimensionless, ``""`` for text and
-    flags); ``dtype`` a numpy dtype string, or ``"text"``.
+    flags); ``dtype`` a numpy dtype string, or ``"text"``; ``display`` how it is
+    shown where not in the display unit of its SI unit
+    (:data:`simulator.units.DISPLAY`).
     """
 
     name: str
@@ -58,6 +60,11 @@ class Column:
     description: str
     dtype: str = "f8"
     when_out: bool = True  # meaningful for a component out of service
+    display: str | None = None  # "%" for a fraction shown in per cent; "K" for a
+    # temperature difference kept in K; None: the display unit of the SI unit
+    label: str = ""  # short heading of console tables (default: the name)
+    console: bool = True  # shown in console tables
+    words: tuple[str, str] = ("no", "yes")  # a flag's 0 and 1 in console tables
 
 
 @dataclass(frozen=True)

@@ -62,13 +62,15 @@ class StageGroup(SteamPathComponent):
     calibration_key: ClassVar[str] = "efficiency"
     columns: ClassVar[tuple[Column, ...]] = (
         Column("flow", "kg/s", "steam flow through the group"),
-        Column("efficiency", "-", "effective isentropic efficiency"),
-        Column("isentropic_drop", "J/kg", "isentropic enthalpy drop"),
+        Column("efficiency", "-", "effective isentropic efficiency", display="%"),
+        Column("isentropic_drop", "J/kg", "isentropic enthalpy drop", label="dh_s"),
         Column("power", "W", "power of the group"),
         Column("annulus_velocity", "m/s", "last-stage annulus velocity (0: group without "
-               "exhaust)"),
-        Column("exhaust_loss", "J/kg", "exhaust loss (0: group without exhaust)"),
-        Column("outlet_moisture", "-", "moisture at the outlet"),
+               "exhaust)", label="V_annulus"),
+        Column("exhaust_loss", "J/kg", "exhaust loss (0: group without exhaust)",
+               label="exh. loss"),
+        Column("outlet_moisture", "-", "moisture at the outlet", display="%",
+               label="moisture out"),
     )
     tunables: ClassVar[tuple[Tunable, ...]] = (
         Tunable("efficiency", "eta_dry_design", "-", "dry isentropic efficiency at design "

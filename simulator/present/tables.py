@@ -1,49 +1,40 @@
 """Readable tables and JSON of point results and calibrated models.
 
-Conversion from SI to the engineer's display units happens here and only
-here: pressures in bar, temperatures in degC, enthalpy in kJ/kg, entropy in
-kJ/(kg K), flows in kg/s, power in MW, heat rate in kJ/kWh and Btu/kWh.
+Conversion from SI to the engineer's display units happens here and in the
+store's export only, through the one table :data:`simulator.units.DISPLAY`:
+pressures in bar, temperatures in degC (differences in K), enthalpy in kJ/kg,
+entropy in kJ/(kg K), power in MW, heat rate in kJ/kWh (and Btu/kWh),
+fractions in per cent.  The tables and JSON of a point are generated from the
+columns its result declares (:mod:`simulator.solve.result`), so a new kind's
+results appear here without further code.
 """
 
 from __future__ import annotations
 
 import math
 
-from ..solve.point import PointResult
+import numpy as np
 
-__all__ = ["point_to_dict", "format_point", "format_model", "DISPLAY_UNITS"]
+from ..solve.result import TOTALS, PointResult
+from ..units import to_display_unit
+
+__all__ = ["point_to_dict", "format_point", "format_model", "shown"]
 
 BTU_PER_KJ = 1.0 / 1.05505585262  # International Table Btu
+_TOTALS = {c.name: c for c in TOTALS}
+# result groups kept out of console tables: the generic steam-path view repeats
+# the flows of the kinds' own tables
+_NOT_SHOWN = ("steam_path",)
 
-DISPLAY_UNITS = {
-    "nodes": {"pressure": "bar", "temperature": "degC", "enthalpy": "kJ/kg",
-              "entropy": "kJ/(kg K)", "moisture": "%"},
-    "stage_groups": {"flow": "kg/s", "efficiency": "%", "isentropic_drop": "kJ/kg",
-                     "power": "MW", "annulus_velocity": "m/s", "exhaust_loss": "kJ/kg",
-                     "outlet_moisture": "%"},
-    "extractions": {"flow": "kg/s", "pressure": "bar", "enthalpy": "kJ/kg"},
-    "heaters": {"bleed": "kg/s", "shell_pressure": "bar", "feedwater_in": "degC",
-                "feedwater_out": "degC", "drain_out": "degC", "ttd": "K", "dca": "K",
-                "duty": "MW", "feedwater_flow": "kg/s", "drain_flow": "kg/s"},
-    "totals": {
-        "throttle_flow": "kg/s", "throttle_pressure": "bar", "throttle_temperature": "degC",
-        "valve_pressure_drop": "bar", "shaft_power": "MW", "generator_output": "MW",
-        "generator_and_mechanical_losses": "MW", "steam_rate": "kg/kWh",
-        "exhaust_loss_power": "MW", "exhaust_moisture": "%", "exhaust_flow": "kg/s",
-        "reheat_heat": "MW", "heat_added": "MW", "heat_rate": "kJ/kWh",
-        "heat_rate_btu": "Btu/kWh", "heat_rate_power": "kJ/kWh",
-        "final_feedwater_temperature": "degC",
-        "pump_power": "MW", "makeup_flow": "kg/s", "condenser_duty": "MW",
-        "heater_heat_loss": "MW", "process_steam_energy": "MW", "energy_imbalance": "W",
-    },
-}
 
-_TOTAL_CONVERT = {
-    "bar": lambda v: v / 1e5, "degC": lambda v: v - 273.15, "MW": lambda v: v / 1e6,
-    "kg/s": lambda v: v, "%": lambda v: v * 100.0, "kg/kWh": lambda v: v * 3.6e6,
-    "kJ/kWh": lambda v: v * 3600.0, "Btu/kWh": lambda v: v * 3600.0 * BTU_PER_KJ,
-    "W": lambda v: v,
-}
+def shown(values, column) -> tuple[np.ndarray, str]:
+    """Values of a declared column in its display unit, and that unit."""
+    v = np.asarray(values, dtype=float)
+    if column.display == "%":
+        return v * 100.0, "%"
+    if column.display is not None:
+        return v, column.display
+    return to_display_unit(v, column.unit)
 
 
 def _f(v) -> float | None:
@@ -51,62 +42,58 @@ def _f(v) -> float | None:
     return None if math.isnan(v) else v
 
 
+def _value(v, column):
+    """One JSON value of a declared column."""
+    if column.dtype == "text":
+        return v
+    if column.dtype == "u1":
+        return bool(v)
+    return _f(shown(v, column)[0])
+
+
 def point_to_dict(r: PointResult, case_name: str = "", cautions=()) -> dict:
     """A JSON-ready dict of a point in display units, with the units stated."""
-    nodes = [{"name": n, "pressure": _f(r.node_p[i] / 1e5),
-              "temperature": _f(r.node_T[i] - 273.15), "enthalpy": _f(r.node_h[i] / 1e3),
-              "entropy": _f(r.node_s[i] / 1e3), "moisture": _f((1 - r.node_x[i]) * 100)}
-             for i, n in enumerate(r.node_names)]
-    groups = [{"name": n, "from": r.group_inlet[i], "to": r.group_outlet[i],
-               "flow": _f(r.group_flow[i]), "efficiency": _f(r.group_eta[i] * 100),
-               "isentropic_drop": _f(r.group_dh_s[i] / 1e3), "power": _f(r.group_power[i] / 1e6),
-               "annulus_velocity": _f(r.group_velocity[i]),
-               "exhaust_loss": _f(r.group_exhaust_loss[i] / 1e3),
-               "outlet_moisture": _f(r.group_moisture_out[i] * 100)}
-              for i, n in enumerate(r.group_names)]
-    bleeds = [{"name": n, "node": r.extraction_nodes[i], "control": r.extraction_control[i],
-               "flow": _f(r.extraction_flow[i]), "pressure": _f(r.extraction_p[i] / 1e5),
-               "enthalpy": _f(r.extraction_h[i] / 1e3)}
-              for i, n in enumerate(r.extraction_names)]
-    heaters = []
-    for hs in r.heaters:
-        closed = hs.in_service and hs.kind == "closed"
-        heaters.append({"name": hs.name, "type": hs.kind, "in_service": hs.in_service,
-                        "bleed": _f(hs.bleed),
-                        "shell_pressure": _f(hs.shell_pressure / 1e5) if hs.in_service else None,
-                        "feedwater_in": _f(hs.T_in - 273.15) if hs.in_service else None,
-                        "feedwater_out": _f(hs.T_out - 273.15) if hs.in_service else None,
-                        "drain_out": _f(hs.T_drain - 273.15) if hs.in_service else None,
-                        "ttd": _f(hs.ttd) if closed else None,
-                        "dca": _f(hs.dca) if closed else None, "duty": _f(hs.duty / 1e6),
-                        "feedwater_flow": _f(hs.m_water), "drain_flow": _f(hs.drain_out)})
-    totals = {}
-    for k, v in r.totals.items():
-        unit = DISPLAY_UNITS["totals"].get(k)
-        if unit is None:
-            continue
-        if k in ("makeup_flow", "process_steam_energy") and abs(v) < 1e-6 * abs(
-                r.totals["throttle_flow"]):
-            v = 0.0  # a balance that closes to round-off is shown as zero
-        totals[k] = _f(_TOTAL_CONVERT[unit](v))
-        if k == "heat_rate":
-            totals["heat_rate_btu"] = _f(_TOTAL_CONVERT["Btu/kWh"](v))
-    return {
+    out = {
         "converged": bool(r.converged),
         "model": r.model_name,
         "case": case_name,
-        "governing": r.governing,
+        "valve_mode": r.valve_mode,
+        "pressure_mode": r.pressure_mode,
         "property_backend": r.backend,
         "solver": {"iterations": r.iterations, "largest_residual": r.residual,
                    "residual_evaluations": r.evaluations, "message": r.message},
-        "units": DISPLAY_UNITS,
-        "nodes": nodes,
-        "stage_groups": groups,
-        "extractions": bleeds,
-        "heaters": heaters,
-        "totals": totals,
-        "cautions": [c.to_dict() if hasattr(c, "to_dict") else c for c in cautions],
+        "units": {},
     }
+    for group, table in r.tables.items():
+        rows = []
+        for i, name in enumerate(table.names):
+            row = {"name": name}
+            if table.inlet is not None:
+                row["from"], row["to"] = table.inlet[i], table.outlet[i]
+            if table.node is not None:
+                row["node"] = table.node[i]
+            for col in table.declared:
+                row[col.name] = _value(table.columns[col.name][i], col)
+            rows.append(row)
+        out[group] = rows
+        out["units"][group] = {c.name: shown(0.0, c)[1] for c in table.declared
+                               if c.dtype not in ("text", "u1")}
+    totals = {}
+    units = {}
+    for k, v in r.totals.items():
+        col = _TOTALS[k]
+        if k in ("makeup_flow", "process_steam_energy") and abs(v) < 1e-6 * abs(
+                r.totals["throttle_flow"]):
+            v = 0.0  # a balance that closes to round-off is shown as zero
+        value, units[k] = shown(v, col)
+        totals[k] = _f(value)
+        if k == "heat_rate":
+            totals["heat_rate_btu"] = _f(v * 3600.0 * BTU_PER_KJ)
+            units["heat_rate_btu"] = "Btu/kWh"
+    out["totals"] = totals
+    out["units"]["totals"] = units
+    out["cautions"] = [c.to_dict() if hasattr(c, "to_dict") else c for c in cautions]
+    return out
 
 
 def _num(v) -> str:
@@ -142,47 +129,36 @@ def format_point(r: PointResult, case_name: str = "", cautions=()) -> str:
     out = [f"partload: {d['model']}" + (f" / case {case_name}" if case_name else ""),
            f"converged in {r.iterations} Newton iterations ({r.evaluations} residual "
            f"evaluations), largest residual {r.residual:.2e}; properties: {r.backend}; "
-           f"governing: {r.governing}", ""]
-    u = DISPLAY_UNITS["nodes"]
-    out.append(_table("Nodes", ["node", "p", "T", "h", "s", "moisture"],
-                      [[n["name"], n["pressure"], n["temperature"], n["enthalpy"], n["entropy"],
-                        n["moisture"]] for n in d["nodes"]],
-                      ["", u["pressure"], u["temperature"], u["enthalpy"], u["entropy"],
-                       u["moisture"]]))
-    out.append("")
-    u = DISPLAY_UNITS["stage_groups"]
-    out.append(_table("Stage groups", ["group", "from", "to", "flow", "efficiency", "dh_s",
-                                       "power", "V_annulus", "exh. loss"],
-                      [[g["name"], g["from"], g["to"], g["flow"], g["efficiency"],
-                        g["isentropic_drop"], g["power"],
-                        g["annulus_velocity"] or None, g["exhaust_loss"] or None]
-                       for g in d["stage_groups"]],
-                      ["", "", "", u["flow"], u["efficiency"], u["isentropic_drop"], u["power"],
-                       u["annulus_velocity"], u["exhaust_loss"]]))
-    out.append("")
-    if d["extractions"]:
-        u = DISPLAY_UNITS["extractions"]
-        out.append(_table("Extractions (bleeds)", ["extraction", "node", "control", "flow", "p",
-                                                   "h"],
-                          [[b["name"], b["node"], b["control"], b["flow"], b["pressure"],
-                            b["enthalpy"]] for b in d["extractions"]],
-                          ["", "", "", u["flow"], u["pressure"], u["enthalpy"]]))
-        out.append("")
-    if d["heaters"]:
-        u = DISPLAY_UNITS["heaters"]
-        out.append(_table("Feedwater heaters", ["heater", "in service", "bleed", "p shell",
-                                                "T fw in", "T fw out", "T drain", "TTD", "DCA",
-                                                "duty"],
-                          [[h["name"], "yes" if h["in_service"] else "OUT", h["bleed"],
-                            h["shell_pressure"], h["feedwater_in"], h["feedwater_out"],
-                            h["drain_out"], h["ttd"] if h["in_service"] else None,
-                            h["dca"] if h["in_service"] else None, h["duty"]]
-                           for h in d["heaters"]],
-                          ["", "", u["bleed"], u["shell_pressure"], u["feedwater_in"],
-                           u["feedwater_out"], u["drain_out"], u["ttd"], u["dca"], u["duty"]]))
+           f"valves: {r.valve_mode}; throttle pressure: {r.pressure_mode}", ""]
+    for group, table in r.tables.items():
+        if group in _NOT_SHOWN or not table.names:
+            continue
+        cols = [c for c in table.declared if c.console]
+        headers = [group.rstrip("s").replace("_", " ")]
+        units = [""]
+        if table.inlet is not None:
+            headers += ["from", "to"]
+            units += ["", ""]
+        if table.node is not None:
+            headers.append("node")
+            units.append("")
+        headers += [c.label or c.name.replace("_", " ") for c in cols]
+        units += [d["units"][group].get(c.name, "") for c in cols]
+        rows = []
+        for row in d[group]:
+            cells = [row["name"]]
+            if table.inlet is not None:
+                cells += [row["from"], row["to"]]
+            if table.node is not None:
+                cells.append(row["node"])
+            for c in cols:
+                v = row[c.name]
+                cells.append(c.words[int(v)] if c.dtype == "u1" else v)
+            rows.append(cells)
+        out.append(_table(group.replace("_", " ").capitalize(), headers, rows, units))
         out.append("")
     t = d["totals"]
-    tu = DISPLAY_UNITS["totals"]
+    tu = d["units"]["totals"]
     rows = [[k.replace("_", " "), v, tu.get(k, "")] for k, v in t.items()]
     width = max(len(r[0]) for r in rows)
     out.append("Totals")

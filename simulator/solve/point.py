@@ -300,7 +300,8 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
     return PointResult(
         converged=True, iterations=nr.iterations, residual=nr.residual,
         evaluations=nr.evaluations, message="converged", model_name=model.name,
-        governing=cond.governing, backend=steam.name, tables=tables, totals=totals,
+        valve_mode=cond.valve_mode, pressure_mode=cond.pressure_mode, backend=steam.name,
+        tables=tables, totals=totals,
         heaters=list(heater_states.values()), x=nr.x, jacobian=nr.jacobian)
 
 

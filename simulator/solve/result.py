@@ -25,7 +25,7 @@ NODE_COLUMNS = (
     Column("enthalpy", "J/kg", "specific enthalpy at each node"),
     Column("entropy", "J/(kg K)", "specific entropy at each node"),
     Column("quality", "-", "steam quality at each node (1 dry or superheated; moisture = "
-           "1 - quality)"),
+           "1 - quality)", display="%"),
 )
 
 # every steam-path component, whatever its kind: for balances and diagrams
@@ -46,7 +46,7 @@ TOTALS = (
     Column("generator_and_mechanical_losses", "W", "generator and mechanical losses"),
     Column("steam_rate", "kg/J", "throttle flow over generator output"),
     Column("exhaust_loss_power", "W", "exhaust loss"),
-    Column("exhaust_moisture", "-", "largest exhaust moisture"),
+    Column("exhaust_moisture", "-", "largest exhaust moisture", display="%"),
     Column("exhaust_flow", "kg/s", "steam flow to the exhaust"),
     Column("reheat_heat", "W", "heat added in the reheater"),
     Column("final_feedwater_temperature", "K", "final feedwater temperature"),
@@ -59,7 +59,8 @@ TOTALS = (
     Column("process_steam_energy", "W", "energy leaving with process steam, less makeup"),
     Column("heat_rate_power", "J/J", "heat chargeable to power over generator output (J/J; "
            "x 3600 = kJ/kWh)"),
-    Column("energy_imbalance", "W", "cycle energy balance error (a check; near 0)"),
+    Column("energy_imbalance", "W", "cycle energy balance error (a check; near 0)",
+           display="W"),
 )
 
 # SI units of every quantity in a PointResult, by quantity
@@ -128,7 +129,8 @@ class PointResult:
     evaluations: int
     message: str
     model_name: str
-    governing: str
+    valve_mode: str
+    pressure_mode: str
     backend: str
     tables: dict[str, ResultTable]
     totals: dict[str, float]
@@ -140,6 +142,11 @@ class PointResult:
     x_curvature: np.ndarray = field(repr=False, default=None)
     slope_from: float = math.nan  # flow ratio of the point the slope was taken from
     wide_open_valves: frozenset = frozenset()
+
+    @property
+    def governing(self) -> str:
+        """``"sliding"`` pressure or ``"throttle"`` governing (fixed pressure)."""
+        return "throttle" if self.pressure_mode == "fixed" else "sliding"
 
     def table(self, group: str) -> dict[str, dict]:
         """The rows of one result group as ``{name: {column: value}}``."""

@@ -1197,21 +1197,12 @@ def _cautions_available() -> tuple[bool, list[str]]:
 
 
 def result_layout(model: Model, backend: str = "seuif97") -> ResultLayout:
-    """The result layout of ``model``: node, group, bleed, heater and total names.
+    """The result layout of ``model``: node, group, bleed, heater and total names;
+    the totals are those every point declares (:data:`~simulator.solve.result.TOTALS`)."""
+    from ..solve.result import TOTALS
 
-    The list of totals is taken from a solve of the design point (cheap: it
-    converges at once), so that every total the solver reports is stored.
-    """
-    try:
-        r = solve_point(model, Conditions(throttle_flow=model.throttle.flow), backend)
-        totals = list(r.totals)
-    except SolveError:  # pragma: no cover - a calibrated model solves its design point
-        from ..present.tables import DISPLAY_UNITS
-
-        totals = [k for k in DISPLAY_UNITS["totals"] if k != "heat_rate_btu"]
-    from ..present.tables import DISPLAY_UNITS
-
-    units = [_SI_OF_DISPLAY.get(DISPLAY_UNITS["totals"].get(k, ""), "") for k in totals]
+    totals = [c.name for c in TOTALS]
+    units = [c.unit for c in TOTALS]
     ex = list(model.extractions.values())
     cautions, codes = _cautions_available()
     return ResultLayout(
