@@ -6,13 +6,26 @@ at other operating points.
 
 Quick use::
 
-    from simulator import load_model, Conditions, solve_point
-    model = load_model("models/demo_reheat_unit.toml")
-    result = solve_point(model, Conditions(throttle_flow=0.6 * model.throttle.flow))
-    print(result.totals["generator_output"])  # [W]
+    import partload
+    model = partload.load_model("models/demo_reheat_unit.toml")
+    r = partload.point(model, throttle_flow_fraction=0.6)
+    print(r.totals["generator_output"])  # [W]
 
-Everything inside is SI: Pa, K, J/kg, J/(kg K), m^3/kg, kg/s, W.
+    case = partload.load_case("cases/reheat_part_load.toml")
+    r = partload.point(case, exhaust_pressure=9e3)           # [Pa]
+    path, summary = partload.run_study("cases/reheat_load_sweep.toml", limit=10)
+    data = partload.open_result(path)                        # StudyData, SI
+
+The functions are in :mod:`partload.api`.  Everything inside is SI: Pa, K,
+J/kg, J/(kg K), m^3/kg, kg/s, W.
+
+Names are imported on first use, so ``import partload`` loads neither the
+solver nor h5py, matplotlib or Dask.
 """
+
+from __future__ import annotations
+
+import importlib
 
 __version__ = "0.1.0"
 
@@ -26,12 +39,38 @@ from .errors import (  # noqa: E402
     SolveError,
     TopologyError,
 )
-from .plant.case import Conditions, load_case  # noqa: E402
-from .plant.model import Model, load_model  # noqa: E402
-from .solve.point import PointResult, solve_point  # noqa: E402
+
+# public name -> module that holds it (imported on first access, PEP 562)
+_LAZY = {
+    "load_model": ".api",
+    "load_case": ".api",
+    "point": ".api",
+    "run_study": ".api",
+    "open_result": ".api",
+    "StudyOutcome": ".api",
+    "Conditions": ".plant.case",
+    "Case": ".plant.case",
+    "Model": ".plant.model",
+    "PointResult": ".solve.point",
+    "solve_point": ".solve.point",
+}
 
 __all__ = [
-    "__version__", "Conditions", "load_case", "load_model", "Model", "PointResult",
-    "solve_point", "PartloadError", "InputError", "TopologyError", "SolveError",
-    "ConvergenceError", "InfeasibleError", "PropertyRangeError", "ResultFileError",
+    "__version__", "load_model", "load_case", "point", "run_study", "open_result",
+    "StudyOutcome", "Conditions", "Case", "Model", "PointResult", "solve_point",
+    "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
+    "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]
+
+
+def __getattr__(name: str):
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(module, __name__), name)
+    globals()[name] = value  # later lookups skip this function
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))
