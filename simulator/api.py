@@ -42,9 +42,13 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
            "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS"]
 
-# The package-level names of the study and store machinery, imported in this one
-# place.  ``partload.study`` and ``partload.store`` do not export them yet, so they
-# come from the modules that hold them today.
+
+
+# The study and store machinery (plan_study, result_layout, run_study, Progress,
+# check_target, StudyFile, read_study) is reached only through these two functions
+# and the TYPE_CHECKING block above.  ``partload.study`` and ``partload.store`` do
+# not export those names at package level yet, so they come from the modules that
+# hold them today; once they do, import the packages here instead.
 def _study():
     from .study import core
 
