@@ -6,18 +6,28 @@ at other operating points.
 
 Quick use::
 
-    from simulator import load_model, Conditions, solve_point
-    model = load_model("models/demo_reheat_unit.toml")
-    result = solve_point(model, Conditions(throttle_flow=0.6 * model.throttle.flow))
-    print(result.totals["generator_output"])  # [W]
+    import partload
+    model = partload.load_model("models/demo_reheat_unit.toml")
+    r = partload.point(model, throttle_flow_fraction=0.6)
+    print(r.totals["generator_output"])  # [W]
 
-Everything inside is SI: Pa, K, J/kg, J/(kg K), m^3/kg, kg/s, W.
+    case = partload.load_case("cases/reheat_part_load.toml")
+    r = partload.point(case, exhaust_pressure=9e3)           # [Pa]
+    path, summary = partload.run_study("cases/reheat_load_sweep.toml", limit=10)
+    data = partload.open_result(path)                        # StudyData, SI
+
+The functions are in :mod:`partload.api`.  Everything inside is SI: Pa, K,
+J/kg, J/(kg K), m^3/kg, kg/s, W.
+
+Names are imported on first use, so ``import partload`` loads neither the
+solver nor h5py, matplotlib or Dask.
 """
 
-__version__ = "0.1.0"
+from __future__ import annotations
 
-import importlib  # noqa: E402
-from typing import TYPE_CHECKING  # noqa: E402
+import importlib
+
+__version__ = "0.1.0"
 
 from .errors import (  # noqa: E402
     ConvergenceError,
@@ -30,32 +40,37 @@ from .errors import (  # noqa: E402
     TopologyError,
 )
 
-if TYPE_CHECKING:  # pragma: no cover
-    from .plant.case import Conditions, load_case
-    from .plant.model import Model, load_model
-    from .solve.point import PointResult, solve_point
+# public name -> module that holds it (imported on first access, PEP 562)
+_LAZY = {
+    "load_model": ".api",
+    "load_case": ".api",
+    "point": ".api",
+    "run_study": ".api",
+    "open_result": ".api",
+    "StudyOutcome": ".api",
+    "Conditions": ".plant.case",
+    "Case": ".plant.case",
+    "Model": ".plant.model",
+    "PointResult": ".solve.point",
+    "solve_point": ".solve.point",
+}
 
-# imported on first use, so that a light subpackage (the result store) does not
-# load the model and the solver
-_LAZY = {"Conditions": ".plant.case", "load_case": ".plant.case", "Model": ".plant.model",
-         "load_model": ".plant.model", "PointResult": ".solve.point",
-         "solve_point": ".solve.point"}
+__all__ = [
+    "__version__", "load_model", "load_case", "point", "run_study", "open_result",
+    "StudyOutcome", "Conditions", "Case", "Model", "PointResult", "solve_point",
+    "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
+    "InfeasibleError", "PropertyRangeError", "ResultFileError",
+]
 
 
 def __getattr__(name: str):
-    if name in _LAZY:
-        value = getattr(importlib.import_module(_LAZY[name], __name__), name)
-        globals()[name] = value
-        return value
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(module, __name__), name)
+    globals()[name] = value  # later lookups skip this function
+    return value
 
 
-def __dir__():
+def __dir__() -> list[str]:
     return sorted(set(globals()) | set(_LAZY))
-
-
-__all__ = [
-    "__version__", "Conditions", "load_case", "load_model", "Model", "PointResult",
-    "solve_point", "PartloadError", "InputError", "TopologyError", "SolveError",
-    "ConvergenceError", "InfeasibleError", "PropertyRangeError", "ResultFileError",
-]

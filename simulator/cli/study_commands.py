@@ -12,25 +12,15 @@ file that is damaged, another program's, or in the way; 130 interrupted
 from __future__ import annotations
 
 import argparse
-import os
-import signal
 import sys
-import threading
 from pathlib import Path
 
+from ..api import default_workers, run_study_file
 from ..errors import InputError
 
 __all__ = ["add_commands", "run_study_command", "default_workers", "DEMO_CASE"]
 
 DEMO_CASE = "reheat_load_sweep.toml"
-
-
-def default_workers() -> int:
-    """Worker processes by default: the CPUs this process may use [-]."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return max(1, os.cpu_count() or 1)
 
 
 def _workers(text: str) -> int:
@@ -56,11 +46,6 @@ def _loads(text: str) -> list[float]:
     return vals
 
 
-def _on_sigterm(signum, frame):  # pragma: no cover - exercised by a subprocess test
-    """SIGTERM stops a study like Ctrl-C: finished chunks are kept."""
-    raise KeyboardInterrupt
-
-
 def run_study_command(case_path: str | Path, *, output: str | Path | None = None,
                       workers: int | None = None, scheduler: str | None = None,
                       resume: bool = False, force: bool = False, backend: str | None = None,
@@ -69,69 +54,42 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
                       beyond_limits: bool = False) -> int:
     """Plan, run and store a study; print its summary.  Returns the exit code.
 
-    ``auto_resume`` (the demo): continue an existing result of the same study,
-    which does nothing when it is complete, instead of refusing it.  ``limit``
-    plans only the first points (a trial run).  ``beyond_limits`` solves points
-    beyond valves wide open as what-ifs instead of recording them as failed.
+    The work is :func:`simulator.api.run_study_file`, shared with the Python API;
+    this adds the printing.  ``auto_resume`` (the demo): continue an existing
+    result of the same study, which does nothing when it is complete, instead of
+    refusing it.  ``limit`` plans only the first points (a trial run).
+    ``beyond_limits`` solves points beyond valves wide open as what-ifs instead
+    of recording them as failed.
     """
-    from ..plant.case import load_case
-    from ..store import StudyFile, check_target
-    from ..study.core import Progress, plan_study, result_layout, run_study
-
     out = out or sys.stdout
-    case = load_case(case_path)
-    for note in case.notes:
-        print(f"partload: note: {note}", file=sys.stderr)
-    plan = plan_study(case, backend)
-    if limit is not None:
-        plan = plan.head(limit)
-    path = Path(output) if output else Path("results") / f"{Path(case.file).stem}.h5"
-    if path.is_dir():
-        path = path / f"{Path(case.file).stem}.h5"
-    action = check_target(path, resume=resume or auto_resume, force=force)
-    layout = result_layout(case.model, plan.backend)
-    main_thread = threading.current_thread() is threading.main_thread()
-    old_handler = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None
-    try:
-        check = not beyond_limits
-        if action == "resume":
-            sf = StudyFile.resume(path, plan, layout, check_limits=check)
-        else:
-            sf = StudyFile.create(path, plan, layout, check_limits=check)
-        try:
-            skip = sf.done_chunks(plan) if action == "resume" else set()
-            n_done = sum(c.size for c in plan.chunks if c.index in skip)
-            axes = " x ".join(plan.axes)
-            trial = f" (the first {plan.limit}: --limit)" if plan.limit is not None else ""
-            print(f"partload study: case {case.name!r}, {plan.n_points} points{trial} "
-                  f"({axes}); model {case.model.name!r}; properties {plan.backend}"
-                  + ("; beyond-limit points solved as what-ifs" if beyond_limits else ""),
+
+    def heading(run) -> None:
+        plan, case, path = run.plan, run.case, run.path
+        for note in case.notes:
+            print(f"partload: note: {note}", file=sys.stderr)
+        axes = " x ".join(plan.axes)
+        trial = f" (the first {plan.limit}: --limit)" if plan.limit is not None else ""
+        print(f"partload study: case {case.name!r}, {plan.n_points} points{trial} "
+              f"({axes}); model {case.model.name!r}; properties {plan.backend}"
+              + ("; beyond-limit points solved as what-ifs" if beyond_limits else ""),
+              file=out)
+        if run.action == "resume":
+            print(f"  resuming {path}: {run.n_done_before} of {plan.n_points} points were done",
                   file=out)
-            if action == "resume":
-                print(f"  resuming {path}: {n_done} of {plan.n_points} points were done",
-                      file=out)
-            elif resume:
-                print(f"  nothing to resume: {path} does not exist yet; starting", file=out)
-            elif action == "replace":
-                print(f"  replacing the earlier result {path} (--force)", file=out)
-            n_workers = workers if workers is not None else default_workers()
-            progress = Progress(plan.n_points, initial=n_done, enabled=not quiet)
-            try:
-                summary = run_study(plan, sf.write, workers=n_workers, scheduler=scheduler,
-                                    skip=skip, layout=layout, progress=progress,
-                                    check_limits=check)
-            finally:
-                progress.close()
-            done_now = int(sf.done.sum())
-        finally:
-            sf.close()
-    finally:
-        if main_thread:
-            signal.signal(signal.SIGTERM, old_handler)
+        elif resume:
+            print(f"  nothing to resume: {path} does not exist yet; starting", file=out)
+        elif run.action == "replace":
+            print(f"  replacing the earlier result {path} (--force)", file=out)
+
+    run = run_study_file(case_path, output=output, workers=workers, scheduler=scheduler,
+                         resume=resume, force=force, backend=backend, limit=limit,
+                         beyond_limits=beyond_limits, auto_resume=auto_resume,
+                         progress=not quiet, on_start=heading)
+    summary, plan, path, done_now = run.summary, run.plan, run.path, run.n_done
     _print_summary(summary, plan, path, done_now, out)
     if summary.interrupted:
         print(f"partload: interrupted; {path} holds the {done_now} finished points of "
-              f"{plan.n_points}. Continue with: partload study {case.file} --resume"
+              f"{plan.n_points}. Continue with: partload study {run.case.file} --resume"
               + (f" --output {path}" if output else "")
               + (f" --limit {plan.limit}" if plan.limit is not None else "")
               + (" --beyond-limits" if beyond_limits else ""), file=sys.stderr)

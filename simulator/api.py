@@ -1,0 +1,450 @@
+"""The public Python API: load, solve, study and read back from scripts and notebooks.
+
+Everything here is reached from the package itself (``import partload``)::
+
+    import partload
+    model = partload.load_model("models/demo_reheat_unit.toml")
+    r = partload.point(model, throttle_flow=168.0, exhaust_pressure=8e3)   # kg/s, Pa
+    print(r.totals["generator_output"] / 1e6, "MW")
+
+    path, summary = partload.run_study("cases/reheat_load_sweep.toml", workers=2)
+    data = partload.open_result(path)
+
+Values are SI, as everywhere inside the library (Pa, K, J/kg, kg/s, W).
+
+:func:`run_study_file` is the one place where a study is planned, its result
+file created or resumed, solved and closed; the ``partload study`` and
+``partload demo`` commands call it too and only add their printing.
+
+Heavy modules (h5py, matplotlib, Dask's ``distributed``) are imported inside
+the functions that need them, so ``import partload`` stays fast.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import threading
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, NamedTuple
+
+from .errors import InputError
+
+if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
+    from .plant.case import Case, Conditions
+    from .plant.model import Model
+    from .solve.point import PointResult
+    from .store import StudyData
+    from .study.core import StudyPlan, StudySummary
+
+__all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
+           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS"]
+
+
+
+# The study and store machinery (plan_study, result_layout, run_study, Progress,
+# check_target, StudyFile, read_study) is reached only through these two functions
+# and the TYPE_CHECKING block above.  ``partload.study`` and ``partload.store`` do
+# not export those names at package level yet, so they come from the modules that
+# hold them today; once they do, import the packages here instead.
+def _study():
+    from .study import core
+
+    return core
+
+
+def _store():
+    from . import store
+
+    return store
+
+
+# ------------------------------------------------------------------ loading
+def load_model(path: str | Path) -> Model:
+    """Read, validate and calibrate a model file.
+
+    Parameters
+    ----------
+    path : the model file (TOML) [-]
+
+    Returns
+    -------
+    Model
+        Calibrated to the file's design heat balance (SI inside).
+
+    Raises
+    ------
+    InputError
+        A mistake in the file, naming file, table and key.
+    """
+    from .plant.model import load_model as _load_model
+
+    return _load_model(path)
+
+
+def load_case(path: str | Path) -> Case:
+    """Read a case file and the model it names (path relative to the case file).
+
+    Parameters
+    ----------
+    path : the case file (TOML) [-]
+
+    Returns
+    -------
+    Case
+        With ``.model`` (calibrated) and ``.conditions`` (SI).
+
+    Raises
+    ------
+    InputError
+        A mistake in the case or model file, naming file, table and key.
+    """
+    from .plant.case import load_case as _load_case
+
+    return _load_case(path)
+
+
+# ------------------------------------------------------------------ one point
+_LOADS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction")
+_SETTINGS = ("valve_mode", "pressure_mode", "throttle_pressure", "throttle_temperature",
+             "reheat_temperature", "exhaust_pressure")
+_MODES = ("valve_mode", "pressure_mode")
+#: keyword arguments of :func:`point`, with their units
+CONDITION_KEYS = {
+    "throttle_flow": "kg/s", "throttle_flow_fraction": "- (of design throttle flow)",
+    "output": "W", "output_fraction": "- (of the generator rating)",
+    "valve_mode": "'throttle'", "pressure_mode": "'sliding' or 'fixed'",
+    "throttle_pressure": "Pa (held, pressure_mode 'fixed')",
+    "throttle_temperature": "K", "reheat_temperature": "K", "exhaust_pressure": "Pa",
+    "heaters_out": "heater names", "check_limits": "bool", "backend": "'seuif97' or 'iapws'",
+}
+
+
+def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
+    """The model, the base conditions and the default backend of what was given."""
+    from .plant.case import Case, Conditions, load_case
+    from .plant.model import Model, load_model
+
+    if isinstance(model_or_case, (str, Path)):
+        from .inputs.reading import load_toml
+
+        data, _ = load_toml(model_or_case)
+        model_or_case = load_case(model_or_case) if "model" in data else load_model(
+            model_or_case)
+    if isinstance(model_or_case, Case):
+        return model_or_case.model, model_or_case.conditions, model_or_case.backend
+    if isinstance(model_or_case, Model):
+        return model_or_case, Conditions(throttle_flow=model_or_case.throttle.flow), "seuif97"
+    raise InputError(f"expected a model, a case, or the path of a model or case file; got "
+                     f"{type(model_or_case).__name__}", key="model_or_case")
+
+
+def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Conditions:
+    """``base`` with the keyword changes of :func:`point` applied (SI values)."""
+    from .plant.case import PRESSURE_MODES, VALVE_MODES, override
+
+    unknown = sorted(set(changes) - set(_LOADS) - set(_SETTINGS) - {"heaters_out"})
+    if unknown:
+        raise InputError(f"unknown condition {unknown[0]!r}; known: "
+                         + ", ".join(k for k in CONDITION_KEYS if k not in
+                                     ("check_limits", "backend")), key=unknown[0])
+    loads = [k for k in _LOADS if changes.get(k) is not None]
+    if len(loads) > 1:
+        raise InputError(f"give only one of {', '.join(loads)}: the load is set once",
+                         key=loads[1])
+    new: dict[str, Any] = {}
+    if loads:
+        key = loads[0]
+        value = float(changes[key])
+        if not value > 0.0:
+            raise InputError(f"the load must be positive, got {value!r}", key=key)
+        scale = {"throttle_flow_fraction": model.throttle.flow,
+                 "output_fraction": model.generator.rating}.get(key, 1.0)
+        if key.startswith("throttle_flow"):
+            new.update(throttle_flow=value * scale, output=None)
+        else:
+            new.update(output=value * scale, throttle_flow=None)
+    for key in _SETTINGS:
+        if key in changes:
+            value = changes[key]
+            new[key] = value if key in _MODES or value is None else float(value)
+    for key, allowed in (("valve_mode", VALVE_MODES), ("pressure_mode", PRESSURE_MODES)):
+        if new.get(key, getattr(base, key)) not in allowed:
+            raise InputError(f"{key} must be one of {', '.join(allowed)}, not {new[key]!r}",
+                             key=key)
+    mode = new.get("pressure_mode", base.pressure_mode)
+    if mode == "sliding" and new.get("throttle_pressure") is not None:
+        raise InputError("a held throttle pressure needs pressure_mode='fixed'; with sliding "
+                         "pressure the throttle pressure is a result", key="throttle_pressure")
+    if mode == "sliding" and "pressure_mode" in new:
+        new.setdefault("throttle_pressure", None)
+    if "heaters_out" in changes:
+        new.update(_heaters_out(model, base, changes["heaters_out"]))
+    return override(base, **new)
+
+
+def _heaters_out(model: Model, base: Conditions, names: Iterable[str] | str | None) -> dict:
+    """Conditions fields for exactly ``names`` out of service: as a case file's
+    ``[heaters.NAME] in_service = false``, each one's extraction is closed."""
+    if names is None:
+        names = ()
+    elif isinstance(names, str):
+        names = (names,)
+    out = frozenset(names)
+    for name in sorted(out):
+        if name not in model.heaters:
+            raise InputError(f"the model has no heater {name!r} (it has "
+                             f"{', '.join(model.heaters) or 'none'})", key="heaters_out")
+        if model.heaters[name].kind == "deaerator":
+            raise InputError(f"the deaerator {name!r} cannot be taken out of service",
+                             key="heaters_out")
+    bleeds_of = {model.heaters[h].extraction for h in base.heaters_out | out}
+    controls = [(e, c) for e, c in base.extraction_control if e not in bleeds_of]
+    controls += [(model.heaters[h].extraction, ("closed", 0.0)) for h in out]
+    return {"heaters_out": out, "extraction_control": tuple(sorted(controls))}
+
+
+def point(model_or_case, conditions: Conditions | None = None, *, backend: str | None = None,
+          check_limits: bool = True, **changes) -> PointResult:
+    """Solve one operating point (the ``partload point`` command for scripts).
+
+    Named ``point`` after that command: ``partload.solve`` is the solver's
+    subpackage and cannot also be a function.
+
+    Parameters
+    ----------
+    model_or_case : a :class:`Model`, a :class:`Case`, or the path of a model
+        or case file [-]; a model starts from its design point, a case from its
+        own conditions
+    conditions : operating conditions replacing those of the model or case
+        (a :class:`Conditions`, SI) [-]
+    backend : steam property backend, ``"seuif97"`` or ``"iapws"`` (default:
+        the case's, else ``"seuif97"``) [-]
+    check_limits : refuse a point beyond valves wide open or the highest
+        throttle pressure (``InfeasibleError``), as the command does [-]
+    **changes : conditions changed from the above, SI values:
+        ``throttle_flow`` [kg/s] or ``throttle_flow_fraction`` [-] or
+        ``output`` [W] or ``output_fraction`` [-] (one load replaces the other);
+        ``valve_mode`` (``"throttle"``) and ``pressure_mode`` (``"sliding"`` or
+        ``"fixed"``) [-]; ``throttle_pressure`` (held, pressure mode fixed) [Pa];
+        ``throttle_temperature`` [K]; ``reheat_temperature`` [K];
+        ``exhaust_pressure`` [Pa]; ``heaters_out`` (the heater names out of
+        service, replacing the case's; their extractions close) [-]
+
+    Returns
+    -------
+    PointResult
+        Node, stage-group, extraction and heater states and ``totals``, SI.
+
+    Raises
+    ------
+    InputError
+        An unknown or contradictory keyword, naming it.
+    ConvergenceError, InfeasibleError, PropertyRangeError
+        A point that cannot be solved, saying what was asked and why.
+    """
+    from .solve.point import solve_point
+
+    model, base, default_backend = _model_and_base(model_or_case)
+    if conditions is not None:
+        base = conditions
+    cond = _with_changes(model, base, changes) if changes else base
+    return solve_point(model, cond, backend or default_backend, check_limits=check_limits)
+
+
+# ------------------------------------------------------------------ studies
+def default_workers() -> int:
+    """Worker processes by default: the CPUs this process may use [-]."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+@dataclass
+class StudyRun:
+    """What :func:`run_study_file` planned and did.
+
+    Attributes
+    ----------
+    case : the case read [-]
+    plan : the plan (cut to ``limit``) [-]
+    path : the result file [-]
+    action : ``"create"``, ``"resume"`` or ``"replace"`` [-]
+    n_done_before : points already done in a resumed file [-]
+    n_done : points done in the file at the end [-]
+    summary : what this run solved (``None`` until it has run) [-]
+    """
+
+    case: Case
+    plan: StudyPlan
+    path: Path
+    action: str
+    n_done_before: int = 0
+    n_done: int = 0
+    summary: StudySummary | None = None
+
+
+def _on_sigterm(signum, frame):  # pragma: no cover - exercised by a subprocess test
+    """SIGTERM stops a study like Ctrl-C: finished chunks are kept."""
+    raise KeyboardInterrupt
+
+
+def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
+                   workers: int | None = None, scheduler: str | None = None,
+                   resume: bool = False, force: bool = False, backend: str | None = None,
+                   limit: int | None = None, beyond_limits: bool = False,
+                   auto_resume: bool = False, progress: bool = False,
+                   on_start: Callable[[StudyRun], None] | None = None) -> StudyRun:
+    """Plan a study from a case file, run it into its HDF5 result file, close it.
+
+    Parameters
+    ----------
+    case_path : case file with a ``[sweep]`` or ``[profile]`` table [-]
+    output : result file, or a folder for ``<case file name>.h5`` (default
+        ``results/<case file name>.h5``) [-]
+    workers : local worker processes; 1 solves in this process (default: the
+        CPUs available) [-]
+    scheduler : address of a running Dask scheduler; replaces ``workers`` [-]
+    resume : continue the existing result file (model, case and profile are
+        checked unchanged) [-]
+    force : replace an existing partload result [-]
+    backend : steam property backend (default: the case's) [-]
+    limit : plan only the first ``limit`` points (a trial run) [-]
+    beyond_limits : solve points beyond valves wide open as marked what-ifs
+        instead of recording them as failed [-]
+    auto_resume : continue an existing result of the same study, which does
+        nothing when it is complete, instead of refusing it [-]
+    progress : show a progress bar (tqdm on a terminal, lines otherwise) [-]
+    on_start : called with the :class:`StudyRun` once the file is ready and
+        before solving (the command prints its heading there) [-]
+
+    Returns
+    -------
+    StudyRun
+        Its ``summary.interrupted`` is set when Ctrl-C or SIGTERM stopped the
+        run; the file then holds every finished point (continue with
+        ``resume``).
+
+    Raises
+    ------
+    InputError
+        A mistake in the case, sweep or profile.
+    ResultFileError
+        A result file in the way, damaged, another program's, or from a
+        changed model or case on ``resume``.
+    """
+    from .plant.case import load_case as _load_case
+
+    study, store = _study(), _store()
+    case = _load_case(case_path)
+    plan = study.plan_study(case, backend)
+    if limit is not None:
+        plan = plan.head(limit)
+    stem = Path(case.file).stem
+    path = Path(output) if output else Path("results") / f"{stem}.h5"
+    if path.is_dir():
+        path = path / f"{stem}.h5"
+    action = store.check_target(path, resume=resume or auto_resume, force=force)
+    layout = study.result_layout(case.model, plan.backend)
+    run = StudyRun(case, plan, path, action)
+    main_thread = threading.current_thread() is threading.main_thread()
+    old_handler = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None
+    try:
+        check = not beyond_limits
+        if action == "resume":
+            sf = store.StudyFile.resume(path, plan, layout, check_limits=check)
+        else:
+            sf = store.StudyFile.create(path, plan, layout, check_limits=check)
+        try:
+            skip = sf.done_chunks(plan) if action == "resume" else set()
+            run.n_done_before = sum(c.size for c in plan.chunks if c.index in skip)
+            if on_start is not None:
+                on_start(run)
+            n_workers = workers if workers is not None else default_workers()
+            bar = study.Progress(plan.n_points, initial=run.n_done_before, enabled=progress)
+            try:
+                run.summary = study.run_study(plan, sf.write, workers=n_workers,
+                                              scheduler=scheduler, skip=skip, layout=layout,
+                                              progress=bar, check_limits=check)
+            finally:
+                bar.close()
+            run.n_done = int(sf.done.sum())
+        finally:
+            sf.close()
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGTERM, old_handler)
+    return run
+
+
+class StudyOutcome(NamedTuple):
+    """What :func:`run_study` returns: unpack as ``path, summary = ...``."""
+
+    path: Path
+    summary: StudySummary
+
+
+def run_study(case_path: str | Path, output: str | Path | None = None, *,
+              workers: int | None = None, resume: bool = False, force: bool = False,
+              limit: int | None = None, backend: str | None = None,
+              beyond_limits: bool = False, scheduler: str | None = None,
+              progress: bool = False) -> StudyOutcome:
+    """Run the study of a case file into an HDF5 result file (``partload study``).
+
+    Parameters
+    ----------
+    case_path : case file with a ``[sweep]`` or ``[profile]`` table [-]
+    output : result file, or a folder for ``<case file name>.h5`` (default
+        ``results/<case file name>.h5``, relative to the working folder) [-]
+    workers : local worker processes; 1 solves in this process (default: the
+        CPUs available) [-]
+    resume : continue an interrupted study in the existing file [-]
+    force : replace an existing partload result file [-]
+    limit : solve only the first ``limit`` points of the plan (a trial run) [-]
+    backend : steam property backend (default: the case's) [-]
+    beyond_limits : solve points beyond valves wide open as marked what-ifs [-]
+    scheduler : address of a running Dask scheduler; replaces ``workers`` [-]
+    progress : show a progress bar [-]
+
+    Returns
+    -------
+    StudyOutcome
+        ``(path, summary)``: the result file and a :class:`StudySummary`
+        (``n_points``, ``n_converged``, ``n_failed``, ``n_cautions``,
+        ``seconds``, ``failures``, ``interrupted``, ...).  An existing result
+        is never overwritten without ``force``.
+
+    Raises
+    ------
+    InputError, ResultFileError
+        As the command: a mistake in the case, or a result file in the way.
+    """
+    run = run_study_file(case_path, output=output, workers=workers, scheduler=scheduler,
+                         resume=resume, force=force, backend=backend, limit=limit,
+                         beyond_limits=beyond_limits, progress=progress)
+    return StudyOutcome(run.path, run.summary)
+
+
+def open_result(path: str | Path) -> StudyData:
+    """Read a study result file into memory, after checking it is one.
+
+    Parameters
+    ----------
+    path : the HDF5 result file [-]
+
+    Returns
+    -------
+    StudyData
+        ``labels``, ``status``, ``ok``, ``names``, ``data`` (every per-point
+        dataset by path, SI), ``units``, ``inputs``, ``total(name)``,
+        ``column(group, quantity, item)``.
+
+    Raises
+    ------
+    ResultFileError
+        The file is missing, not HDF5, damaged, or another program's.
+    """
+    return _store().read_study(path)
