@@ -1,4 +1,4 @@
-"""Tests of partload.study.core: sweep and profile definitions, planning, running.
+"""Tests of partload.study: sweep and profile definitions, planning, running.
 
 Reference values are the demo reheat unit (models/demo_reheat_unit.toml,
 invented data) solved point by point with :func:`partload.solve.point.solve_point`
@@ -20,7 +20,7 @@ import pytest
 from partload.errors import InputError
 from partload.plant.case import load_case
 from partload.solve.point import solve_point
-from partload.study.core import (
+from partload.study import (
     CHUNK_MAX,
     CHUNK_MIN,
     STATUS,
@@ -328,7 +328,7 @@ output_fraction = [0.5, 0.8, 1.2]
 
 
 def test_an_unexpected_exception_is_recorded_as_internal_error(tmp_path, monkeypatch):
-    import partload.study.core as study
+    import partload.study.run as study
 
     case = load_case(write_case(tmp_path, "[sweep]\nthrottle_flow_fraction = [0.5, 0.6, 0.7]\n"))
     plan = plan_study(case)
@@ -382,7 +382,7 @@ def test_plain_progress_lines_show_rate_and_eta(capsys):
 def test_a_worker_that_dies_gives_a_clear_error(small_plan, monkeypatch):
     import os
 
-    import partload.study.core as study
+    import partload.study.run as study
     from partload.errors import SolveError
 
     real = study.solve_point

@@ -76,7 +76,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     """
     from ..plant.case import load_case
     from ..store.hdf5 import StudyFile, check_target
-    from ..study.core import Progress, plan_study, result_layout, run_study
+    from ..study import Progress, plan_study, result_layout, run_study
 
     out = out or sys.stdout
     case = load_case(case_path)

@@ -137,7 +137,7 @@ from .. import __version__
 from ..errors import ResultFileError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from ..study.core import ChunkResult, ResultLayout, StudyPlan
+    from ..study import ChunkResult, ResultLayout, StudyPlan
 
 __all__ = [
     "FORMAT",
