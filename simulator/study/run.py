@@ -5,6 +5,7 @@ point to point, and the set-up of worker processes.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 import signal
@@ -16,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import SolveError
+from ..errors import ConvergenceError, SolveError
 from ..plant.case import Conditions
 from ..plant.model import Model, build_model
 from ..solve.point import PointResult, solve_point
@@ -26,6 +27,7 @@ from .plan import Chunk
 
 __all__ = [
     "ChunkResult",
+    "Continuation",
     "SolveSpec",
     "init_worker",
     "keep_model",
@@ -103,12 +105,94 @@ def solve_order(conditions: Sequence[Conditions]) -> list[int]:
     return sorted(range(len(conditions)), key=load)
 
 
+def _boundary(cond: Conditions) -> tuple:
+    """Everything of ``cond`` but the load: points that share it lie on one load line."""
+    return (cond.governing, cond.output is None, cond.throttle_pressure,
+            cond.throttle_temperature, cond.reheat_temperature, cond.exhaust_pressure,
+            cond.extraction_control, cond.heaters_out, cond.held_pressures)
+
+
+class Continuation:
+    """Solves points one after another, each starting from the last one solved.
+
+    Three starts are tried in turn, and the first that gives an answer wins:
+
+    1. the last solution scaled to this load by the ellipse law, plus the
+       secant (and quadratic) predictor along the load
+       (``solve_point(..., neighbour=last)``).  The predictor is offered only
+       when this point and the last two share everything but the load
+       (:func:`_boundary`): in a profile the condenser pressure changes from
+       hour to hour, and a slope taken over a tiny load step with another
+       condenser pressure extrapolates to pressures no machine has.
+       :func:`~simulator.solve.point.solve_point` itself drops a predicted
+       start that is not physical;
+    2. the last solution as it is, with its Jacobian;
+    3. the design-scaled start (skipped when 2 failed to converge: it has
+       then been tried already).
+
+    Any :class:`~simulator.errors.SolveError` moves on to the next start, so a
+    point fails only when the last start fails too (its error from start 2 is
+    raised); every answer is a converged solution to the solver's tolerance.
+
+    Parameters
+    ----------
+    model : calibrated model
+    steam : property backend
+    check_limits : refuse answers beyond valves wide open (see
+        :func:`~simulator.solve.point.solve_point`) [-]
+    """
+
+    def __init__(self, model: Model, steam, check_limits: bool = True):
+        self.model = model
+        self.steam = steam
+        self.check_limits = check_limits
+        self.last: PointResult | None = None
+        self.last_boundary: tuple | None = None
+        self.slope_ok = False  # the last solution's slope is along the load alone
+
+    def solve(self, cond: Conditions) -> PointResult:
+        """Solve ``cond`` from the last solution; remember the answer."""
+        last = self.last
+        boundary = _boundary(cond)
+        kw = {"check_limits": self.check_limits}
+        if last is None:
+            r = solve_point(self.model, cond, self.steam, **kw)
+            self._keep(r, boundary, False)
+            return r
+        same = boundary == self.last_boundary
+        neighbour = last if (same and self.slope_ok) else dataclasses.replace(
+            last, x_slope=None, x_curvature=None)
+        try:
+            r = solve_point(self.model, cond, self.steam, neighbour=neighbour, **kw)
+        except SolveError:
+            pass
+        else:
+            self._keep(r, boundary, same)
+            return r
+        try:
+            r = solve_point(self.model, cond, self.steam, guess=last.x,
+                            jacobian=last.jacobian, **kw)
+        except ConvergenceError:
+            raise
+        except SolveError as exc:
+            try:
+                r = solve_point(self.model, cond, self.steam, **kw)
+            except SolveError:
+                raise exc from None
+        self._keep(r, boundary, False)
+        return r
+
+    def _keep(self, r: PointResult, boundary: tuple, slope_ok: bool) -> None:
+        self.last, self.last_boundary, self.slope_ok = r, boundary, slope_ok
+
+
 def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions]) -> ChunkResult:
     """Solve the points of a chunk, each starting from the one solved before.
 
-    The points are solved in :func:`solve_order` and stored in plan order.  A
-    point that fails is recorded (status 1, or 2 for an unexpected exception)
-    and the next starts from the last point that converged.
+    The points are solved in :func:`solve_order` and stored in plan order, with
+    a :class:`Continuation`.  A point that fails is recorded (status 1, or 2
+    for an unexpected exception) and the next starts from the last point that
+    converged.
     """
     t0 = time.perf_counter()
     model = worker_model(spec)
@@ -121,14 +205,11 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
             from ..cautions.checks import check_point as check
         except ImportError:  # the worker lacks the module: leave count at -1
             check = None
-    prev: PointResult | None = None
+    chain = Continuation(model, steam, spec.check_limits)
     for i in solve_order(conditions):
         cond = conditions[i]
         try:
-            r = solve_point(model, cond, steam,
-                            guess=prev.x if prev is not None else None,
-                            jacobian=prev.jacobian if prev is not None else None,
-                            check_limits=spec.check_limits)
+            r = chain.solve(cond)
         except SolveError as exc:
             layout.fail(arrays, i, exc)
             continue
@@ -138,7 +219,6 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
         layout.fill(arrays, i, r)
         if check is not None:
             _record_cautions(arrays, i, check, model, cond, r, layout.caution_codes)
-        prev = r
     return ChunkResult(chunk.index, chunk.start, chunk.stop, arrays,
                        time.perf_counter() - t0)
 
