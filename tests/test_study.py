@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -545,3 +546,40 @@ def test_continuation_falls_back_on_any_solve_error(monkeypatch):
     assert starts == ["design", "neighbour", "last"]
     cold = solve_point(model, Conditions(throttle_flow=0.65 * m_d))
     np.testing.assert_allclose(r.node_p, cold.node_p, rtol=RTOL_START)
+
+
+# ---------------------------------------------------------------- column units
+@pytest.mark.parametrize("unit, dimension, a, b", [
+    ("kPa", "pressure", 1000.0, 0.0),            # hand calculation: 1 kPa = 1000 Pa
+    ("degC", "temperature", 1.0, 273.15),        # hand calculation: T/K = t/degC + 273.15
+    ("degF", "temperature", 5.0 / 9.0, 459.67 * 5.0 / 9.0),  # T/K = (t/degF + 459.67) 5/9
+    ("t/h", "mass_flow", 1000.0 / 3600.0, 0.0),  # hand calculation: 1 t/h = 1000 kg / 3600 s
+    ("%", "fraction", 0.01, 0.0),
+    ("", "fraction", 1.0, 0.0),
+])
+def test_column_unit_factors(unit, dimension, a, b):
+    from partload.units import Where, linear_factors
+
+    got = linear_factors(unit, dimension, Where("p.csv", "line 1", "x"))
+    assert got == pytest.approx((a, b), rel=1e-12, abs=1e-12)
+
+
+def test_profile_columns_in_other_units(tmp_path):
+    (tmp_path / "p.csv").write_text(
+        "time,output_fraction [%],throttle_temperature [degF]\nh0,60,1000\n", encoding="utf-8")
+    plan = plan_study(load_case(write_case(tmp_path, '[profile]\nfile = "p.csv"\n')))
+    # hand calculation: 60 % of the 350 MW rating; (1000 + 459.67) * 5/9 K
+    assert plan.conditions[0].output == pytest.approx(0.60 * 350e6, rel=1e-12)
+    assert plan.conditions[0].throttle_temperature == pytest.approx(1459.67 * 5 / 9, rel=1e-12)
+
+
+@pytest.mark.parametrize("header, text", [
+    ("output_fraction [kg/s]", "a fraction column takes no unit or [%], got [kg/s]"),
+    ("exhaust_pressure [kPag]", "which is not an absolute pressure unit"),
+    ("exhaust_pressure [MW]", "which is not an absolute pressure unit"),
+])
+def test_profile_column_with_a_wrong_unit(tmp_path, header, text):
+    (tmp_path / "p.csv").write_text(f"time,{header}\nh0,6\n", encoding="utf-8")
+    with pytest.raises(InputError, match=re.escape(text)) as err:
+        plan_study(load_case(write_case(tmp_path, '[profile]\nfile = "p.csv"\n')))
+    assert err.value.table == "line 1"

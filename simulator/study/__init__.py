@@ -54,11 +54,17 @@ Order and continuation
     the unit of work and of storage.  Inside a chunk the points are solved by
     increasing load (:func:`solve_order`; a sweep's chunk already is, a
     profile's is reordered): the first starts from the design-scaled guess and
-    every other from the solution of the one solved before it (``guess`` and
-    ``jacobian`` of :func:`~simulator.solve.solve_point`).
+    every other from the solution of the one solved before it, scaled by the
+    ellipse law with a secant predictor along the load, guarded and with
+    fallbacks (:class:`~simulator.study.run.Continuation`).
     The chunking depends only on the plan, never on the number of workers, so a
     study gives bit-for-bit the same numbers with one worker, several workers,
     a Dask cluster, or after an interrupted run is resumed.
+
+Modules: :mod:`.axes` (sweep axes), :mod:`.profile` (profile CSV files),
+:mod:`.plan` (the plan and its chunks), :mod:`.layout` (the result arrays),
+:mod:`.run` (solving a chunk), :mod:`.progress` (progress and summary),
+:mod:`.executors` (this process, local processes or Dask).
 
 A point that cannot be solved (:class:`~simulator.errors.SolveError`) is
 recorded with its reason and the study goes on; so is an unexpected exception

@@ -18,7 +18,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..plant.case import Case
-from ..units import Where, parse
+from ..units import Where, linear_factors
 from .axes import (
     Axis,
     AxisKind,
@@ -50,23 +50,18 @@ _HEADER = re.compile(r"^\s*([A-Za-z_][\w.]*)\s*(?:\[\s*(.*?)\s*\])?\s*$")
 def _linear_unit(kind: AxisKind, unit: str, w: Where) -> tuple[float, float]:
     """``(a, b)`` so that ``si = a * value + b`` for values written in ``unit``."""
     if kind.dimension == "fraction":
-        if unit in ("", "-"):
-            return 1.0, 0.0
-        if unit in ("%", "percent"):
-            return 0.01, 0.0
-        raise w.error(f"a fraction column takes no unit or [%], got [{unit}]")
-    if not unit:
+        if unit not in ("", "-", "%", "percent"):
+            raise w.error(f"a fraction column takes no unit or [%], got [{unit}]")
+    elif not unit:
         raise w.error(f"this column needs its unit in the header, for example "
                       f"'{w.key} [{_EXAMPLE_UNIT.get(kind.dimension, 'unit')}]'")
     try:
-        y1 = parse(f"1 {unit}", kind.dimension, w)
-        y2 = parse(f"2 {unit}", kind.dimension, w)
+        return linear_factors(unit, kind.dimension, w)
     except InputError:
         ex = _EXAMPLE_UNIT.get(kind.dimension, "unit")
         raise w.error(f"the column header '{w.key} [{unit}]' gives the unit [{unit}], which is "
                       f"not an absolute {kind.dimension.replace('_', ' ')} unit; write for "
                       f"example '{w.key} [{ex}]'") from None
-    return y2 - y1, 2.0 * y1 - y2
 
 
 _EXAMPLE_UNIT = {"mass_flow": "kg/s", "power": "MW", "pressure": "kPa", "temperature": "degC"}
