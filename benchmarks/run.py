@@ -50,7 +50,7 @@ from partload.plant.synthetic import synthetic_model_data  # noqa: E402
 from partload.solve.newton import fd_jacobian, newton  # noqa: E402
 from partload.solve.point import TOL, equations_for, solve_point  # noqa: E402
 from partload.steam.if97 import get_backend  # noqa: E402
-from partload.study.core import (  # noqa: E402
+from partload.study import (  # noqa: E402
     SolveSpec,
     plan_study,
     result_layout,

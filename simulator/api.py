@@ -37,7 +37,7 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
     from .plant.model import Model
     from .solve.point import PointResult
     from .store import StudyData
-    from .study.core import StudyPlan, StudySummary
+    from .study import StudyPlan, StudySummary
 
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
            "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS"]
@@ -50,9 +50,9 @@ __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "Stud
 # not export those names at package level yet, so they come from the modules that
 # hold them today; once they do, import the packages here instead.
 def _study():
-    from .study import core
+    from . import study
 
-    return core
+    return study
 
 
 def _store():

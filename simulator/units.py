@@ -28,7 +28,8 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["Where", "parse", "format_like", "DIMENSIONS", "DISPLAY", "to_display_unit"]
+__all__ = ["Where", "parse", "linear_factors", "format_like", "DIMENSIONS", "DISPLAY",
+           "to_display_unit"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 _GAUGE = {"barg": "bar", "psig": "psia", "kpag": "kPa", "mpag": "MPa"}
@@ -191,6 +192,33 @@ def parse(value, dimension: str, where: Where, atmosphere: float | None = None) 
     if dimension == "pressure_difference" and result < 0.0:
         raise where.error(f"{value!r} is negative; a pressure drop is zero or positive")
     return result
+
+
+def linear_factors(unit: str, dimension: str, where: Where) -> tuple[float, float]:
+    """The conversion of numbers written in ``unit``, e.g. the unit of a table column.
+
+    Parameters
+    ----------
+    unit
+        The unit as written, e.g. ``"kPa"``, ``"degC"`` or ``"%"`` (``""`` for a
+        bare fraction) [-].
+    dimension
+        One of :data:`DIMENSIONS` [-].
+    where
+        Location used in the error message [-].
+
+    Returns
+    -------
+    tuple[float, float]
+        ``(a, b)`` so that ``si = a * value + b`` [SI unit per ``unit``, SI unit];
+        ``b`` is nonzero only for temperatures with an offset (``degC``, ``degF``).
+        Both come from :func:`parse` of one and two of ``unit``, so a column
+        accepts exactly the units a single value does (gauge pressures excepted:
+        there is no atmosphere to add).
+    """
+    y1 = parse(f"1 {unit}".strip(), dimension, where)
+    y2 = parse(f"2 {unit}".strip(), dimension, where)
+    return y2 - y1, 2.0 * y1 - y2
 
 
 def format_like(si: float, dimension: str, value) -> str:

@@ -57,7 +57,7 @@ def flatten(r) -> dict[str, float]:
 
 def study_points(case):
     """``(index, conditions)`` of the recorded points of a case's study (empty if none)."""
-    from partload.study.core import plan_study
+    from partload.study import plan_study
 
     if "sweep" not in case.data and "profile" not in case.data:
         return []

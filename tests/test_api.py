@@ -32,7 +32,7 @@ from partload.plant.case import Conditions
 from partload.plant.case import load_case as lower_load_case
 from partload.solve.point import solve_point
 from partload.store import StudyData
-from partload.study.core import plan_study
+from partload.study import plan_study
 
 ROOT = Path(__file__).resolve().parents[1]
 MODEL = ROOT / "models" / "demo_reheat_unit.toml"
@@ -69,7 +69,7 @@ def assert_same_point(r, d):
 def test_import_is_light_and_names_load_on_first_use():
     code = ("import sys, partload\n"
             "heavy = [m for m in ('h5py', 'matplotlib', 'distributed', 'partload.solve.point',"
-            " 'partload.study.core', 'partload.store.reader') if m in sys.modules]\n"
+            " 'partload.study.run', 'partload.store.reader') if m in sys.modules]\n"
             "print(heavy)\n"
             "partload.open_result\n"
             "print('partload.api' in sys.modules, 'h5py' in sys.modules)\n")
@@ -176,7 +176,7 @@ def test_run_study_writes_the_file_the_command_writes(tmp_path, capsys):
     ours, theirs = _h5_arrays(api_path), _h5_arrays(tmp_path / "cli.h5")
     assert set(ours) == set(theirs) and "totals/generator_output" in ours
     for name, values in theirs.items():
-        # the same plan and chunks: bit for bit (simulator/study/core.py docstring)
+        # the same plan and chunks: bit for bit (simulator/study/ docstring)
         np.testing.assert_array_equal(ours[name], values, err_msg=name)
     assert summary.n_points == 6 and summary.n_converged == 6
     assert summary.n_failed == 0 and not summary.interrupted
@@ -189,7 +189,7 @@ def test_run_study_answers_match_points_solved_one_by_one(tmp_path, reheat_model
     path, summary = partload.run_study(SWEEP, tmp_path, workers=2, limit=16)
     assert path == tmp_path / "reheat_load_sweep.h5"  # a folder gets <case file name>.h5
     # 16 points: the 15 of the first series in chunks of 8 and 7, then the first
-    # point with HP8 out (chunk_size and _chunks in simulator/study/core.py)
+    # point with HP8 out (chunk_size and _chunks in simulator/study/)
     assert summary.workers == 2 and summary.n_converged == 16
     plan = plan_study(lower_load_case(SWEEP, model=reheat_model)).head(16)
     with h5py.File(path, "r") as f:

@@ -28,7 +28,7 @@ from partload.errors import ResultFileError
 from partload.plant.case import load_case
 from partload.solve.point import solve_point
 from partload.store import FORMAT, StudyFile, export_csv, read_study
-from partload.study.core import SolveSpec, plan_study, result_layout, run_study, solve_chunk
+from partload.study import SolveSpec, plan_study, result_layout, run_study, solve_chunk
 
 ROOT = Path(__file__).resolve().parents[1]
 MODEL = ROOT / "models" / "demo_reheat_unit.toml"

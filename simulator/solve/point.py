@@ -122,13 +122,7 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
     scaled = None
     if (neighbour is not None and neighbour.x is not None and len(neighbour.x) == eq.n
             and guess is None and neighbour.wide_open_valves == eq.wide_open):
-        scaled = eq.scaled_guess(neighbour.x, neighbour.flow_ratio)
-        guess = scaled
-        step = r - neighbour.flow_ratio
-        if neighbour.x_slope is not None and abs(step) < 0.15:
-            guess = scaled + neighbour.x_slope * step  # secant predictor along the load
-            if neighbour.x_curvature is not None:  # quadratic through three points
-                guess = guess + neighbour.x_curvature * step * (r - neighbour.slope_from)
+        scaled, guess = _continuation_start(eq, neighbour, r)
         jacobian = neighbour.jacobian if jacobian is None else jacobian
     usable = guess is not None and len(guess) == eq.n
     x0 = np.asarray(guess, float) if usable else eq.guess()
@@ -144,6 +138,68 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
                     broyden=broyden)
     F, st = eq.evaluate(nr.x, detail=True)
     return nr, st, F, scaled
+
+
+START_MARGIN = 1.5  # [-] a start above this times the highest throttle pressure is refused
+
+
+def _continuation_start(eq: PointEquations, neighbour: PointResult, r: float):
+    """Start of a point from a solved neighbour: ``(scaled, start)``.
+
+    ``scaled`` is the neighbour's solution scaled to this flow ratio ``r`` [-]
+    by the ellipse law (with the neighbour's own exhaust pressure taken out
+    when the model has one exhaust and its pressure changed); ``start`` adds
+    the secant (and quadratic) predictor along the load when the step is
+    sensible: shorter than 0.15 and at most four times the step the slope was
+    taken over.  A start that is not physical (:func:`_plausible_start`) is
+    dropped: the predicted one for ``scaled``, ``scaled`` for ``None`` (the
+    caller then starts from the design-scaled guess).
+    """
+    x_n = neighbour.x
+    if len(eq.exhaust_idx) == 1 and neighbour.node_p is not None:
+        exh = eq.exhaust_idx[0]
+        p_ex, p_ex_n = eq.p_fix[exh], neighbour.node_p[exh]
+        if p_ex != p_ex_n and math.isfinite(p_ex_n):
+            # same flow, other exhaust pressure: p^2 - p_ex^2 kept (ellipse law)
+            x_n = np.array(x_n, dtype=float)
+            p = np.exp(x_n[:eq.n_p])
+            x_n[:eq.n_p] = 0.5 * np.log(np.maximum(p * p - p_ex_n * p_ex_n + p_ex * p_ex,
+                                                   0.25 * p * p))
+    scaled = eq.scaled_guess(x_n, neighbour.flow_ratio)
+    start = scaled
+    step = r - neighbour.flow_ratio
+    base = neighbour.flow_ratio - neighbour.slope_from  # NaN without a slope
+    if neighbour.x_slope is not None and abs(step) < 0.15 and abs(step) <= 4.0 * abs(base):
+        start = scaled + neighbour.x_slope * step  # secant predictor along the load
+        if neighbour.x_curvature is not None:  # quadratic through three points
+            start = start + neighbour.x_curvature * step * (r - neighbour.slope_from)
+        if not _plausible_start(eq, start):
+            start = scaled
+    if not _plausible_start(eq, start):
+        start = None
+    return scaled, start
+
+
+def _plausible_start(eq: PointEquations, x: np.ndarray) -> bool:
+    """Whether unknowns ``x`` can start Newton: finite, pressures falling along
+    every component of the steam path, no pressure above :data:`START_MARGIN`
+    times the highest throttle pressure (or the flow ratio times it), no
+    negative bleed, a positive throttle flow."""
+    if not np.all(np.isfinite(x)):
+        return False
+    p = np.array(eq.p_fix, dtype=float)
+    p[eq.free] = np.exp(x[:eq.n_p])
+    th = eq.model.throttle
+    if np.max(p) > START_MARGIN * max(1.0, x[-1] if eq.flow_unknown else 0.0,
+                                      eq.flow_ratio()) * max(th.max_pressure, th.pressure):
+        return False
+    for i, outs in enumerate(eq.outs):
+        for c, j in outs:
+            if p[j] > p[i] or (c.sets_flow and p[j] == p[i]):
+                return False
+    if np.any(x[eq.n_p:eq.n_p + eq.n_h] < 0.0):
+        return False
+    return not (eq.flow_unknown and x[-1] <= 0.0)
 
 
 def _valves_to_switch(model, cond, eq, st) -> frozenset:

@@ -117,13 +117,14 @@ def read_study(path: str | Path) -> StudyData:
     path = Path(path)
     with open_result(path) as f:
         attrs = {k: attr_value(v) for k, v in f.attrs.items()}
-        names = {g: list(f[g]["names"].asstr()[:]) for g in
-                 ("nodes", "stage_groups", "extractions", "heaters") if g in f}
+        # every group of per-point results: the solver record, the totals, the
+        # cautions and one group per result group of the point (nodes, each kind)
+        result_groups = [g for g, obj in f.items() if isinstance(obj, h5py.Group)
+                         and g not in ("points", "inputs", "paths")]
+        names = {g: list(f[g]["names"].asstr()[:]) for g in result_groups
+                 if "names" in f[g] and g != "cautions"}
         data, units, desc = {}, {}, {}
-        for gname in ("solver", "nodes", "stage_groups", "extractions", "heaters", "totals",
-                      "cautions"):
-            if gname not in f:
-                continue
+        for gname in result_groups:
             for dname, ds in f[gname].items():
                 if dname in ("names", "inlet", "outlet", "nodes", "kind") and gname != "totals":
                     continue

@@ -34,7 +34,7 @@ from .format import (
 )
 
 if TYPE_CHECKING:  # pragma: no cover
-    from ..study.core import ChunkResult, ResultLayout, StudyPlan
+    from ..study import ChunkResult, ResultLayout, StudyPlan
 
 __all__ = ["StudyFile", "check_target"]
 
@@ -302,16 +302,13 @@ def _write_structure(f: h5py.File, plan: StudyPlan, layout: ResultLayout) -> Non
         else:
             ds = _text_array(inp, name, col.values)
         ds.attrs["description"] = col.description
-    groups = {
-        "nodes": {"names": layout.nodes},
-        "stage_groups": {"names": layout.groups, "inlet": layout.group_inlet,
-                         "outlet": layout.group_outlet},
-        "extractions": {"names": layout.extractions, "nodes": layout.extraction_nodes},
-        "heaters": {"names": layout.heaters},
-        **({"cautions": {"names": layout.caution_codes}} if layout.cautions else {}),
-        "paths": {"names": [p[0] for p in layout.paths], "inlet": [p[1] for p in layout.paths],
-                  "outlet": [p[2] for p in layout.paths], "kind": [p[3] for p in layout.paths]},
-    }
+    groups = {g.name: {"names": g.names, **g.texts} for g in layout.groups}
+    if layout.cautions:
+        groups["cautions"] = {"names": layout.caution_codes}
+    groups["paths"] = {"names": [p[0] for p in layout.paths],
+                       "inlet": [p[1] for p in layout.paths],
+                       "outlet": [p[2] for p in layout.paths],
+                       "kind": [p[3] for p in layout.paths]}
     for gname, texts in groups.items():
         g = f.create_group(gname, track_order=True)
         for tname, values in texts.items():

@@ -1,0 +1,319 @@
+"""Sweep axes: what a ``[sweep]`` key or a profile column may vary, and the
+reading of the ``[sweep]`` table into :class:`Axis` values (SI units).
+
+Every value is checked the way the case reader checks ``[operation]``
+(:func:`validate_value`), so a sweep accepts exactly what a case file would.
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import InputError
+from ..plant.case import Case, read_conditions
+from ..plant.model import Model
+from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN
+from ..units import Where, parse
+
+__all__ = [
+    "AXES",
+    "Axis",
+    "AxisKind",
+    "CONTINUATION_ORDER",
+    "MAX_POINTS",
+    "axis_kind",
+    "check_extraction_flow",
+    "check_range",
+    "read_sweep",
+    "switch_names",
+    "validate_value",
+]
+
+MAX_POINTS = 1_000_000  # a typo in a range should not plan a billion points
+
+
+@dataclass(frozen=True)
+class AxisKind:
+    """What a sweep axis or profile column sets.
+
+    Attributes
+    ----------
+    dimension : dimension for :func:`simulator.units.parse` (``None``: names)
+    unit : SI unit of the stored values (``"-"`` dimensionless, ``""`` names)
+    role : ``"load"``, ``"state"`` (another scalar input) or ``"switch"``
+        (heaters or extractions out of service)
+    lo, hi : allowed range in SI units (``None``: open)
+    lo_open : ``lo`` itself is not allowed
+    description : one line for the result file
+    """
+
+    dimension: str | None
+    unit: str
+    role: str
+    lo: float | None
+    hi: float | None
+    lo_open: bool
+    description: str
+
+
+AXES: dict[str, AxisKind] = {
+    "throttle_flow": AxisKind("mass_flow", "kg/s", "load", 0.0, None, True,
+                              "throttle steam flow"),
+    "throttle_flow_fraction": AxisKind("fraction", "-", "load", 0.0, 2.0, True,
+                                       "throttle flow over its design value"),
+    "output": AxisKind("power", "W", "load", 0.0, None, True,
+                       "generator output demanded"),
+    "output_fraction": AxisKind("fraction", "-", "load", 0.0, 2.0, True,
+                                "generator output demanded over the generator rating"),
+    "exhaust_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
+                                 "exhaust (condenser or back) pressure"),
+    "throttle_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
+                                  "throttle pressure held by throttle governing"),
+    "throttle_temperature": AxisKind("temperature", "K", "state", T_MIN, T_MAX, False,
+                                     "throttle steam temperature"),
+    "reheat_temperature": AxisKind("temperature", "K", "state", T_MIN, T_MAX, False,
+                                   "hot reheat temperature"),
+    "extraction_flow": AxisKind("mass_flow", "kg/s", "state", 0.0, None, False,
+                                "flow of an extraction held at a set flow"),
+    "heater_out": AxisKind(None, "", "switch", None, None, False,
+                           "heaters taken out of service in addition to the case's"),
+    "extraction_closed": AxisKind(None, "", "switch", None, None, False,
+                                  "extractions closed in addition to the case's"),
+}
+
+# preferred continuation axis, first found wins
+CONTINUATION_ORDER = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction",
+                 "exhaust_pressure", "throttle_pressure", "throttle_temperature",
+                 "reheat_temperature", "extraction_flow")
+_LOAD_KEYS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction")
+_RANGE_KEYS = ("from", "to", "points", "step")
+
+
+@dataclass
+class Axis:
+    """One sweep axis or profile column.
+
+    Attributes
+    ----------
+    key : axis name, ``"extraction_flow.NAME"`` for an extraction flow
+    kind : what it sets
+    values : SI floats, or sorted tuples of names for switches
+    texts : the values as the user wrote them (for point labels)
+    """
+
+    key: str
+    kind: AxisKind
+    values: list
+    texts: list[str]
+
+    @property
+    def base(self) -> str:
+        return self.key.split(".", 1)[0]
+
+
+def axis_kind(key: str, where: Where) -> AxisKind:
+    base = key.split(".", 1)[0]
+    if base not in AXES or (base == "extraction_flow") != ("." in key):
+        import difflib
+
+        valid = [k for k in AXES if k != "extraction_flow"] + ["extraction_flow.NAME"]
+        hint = difflib.get_close_matches(key, valid, n=1)
+        mean = f"; did you mean {hint[0]!r}?" if hint else ""
+        raise where.child(key).error(
+            f"not an input that can be varied{mean} (valid: {', '.join(valid)})")
+    return AXES[base]
+
+
+def check_range(kind: AxisKind, si: float, text, w: Where, hi: float | None = None) -> None:
+    """Range check of a profile value (sweep values go through the case reader)."""
+    hi = kind.hi if hi is None else hi
+    if (kind.lo is not None and (si < kind.lo or (kind.lo_open and si == kind.lo))) or (
+            hi is not None and si > hi):
+        lo_t = "" if kind.lo is None else (f"{'above' if kind.lo_open else 'at least'} "
+                                           f"{kind.lo:.6g} {kind.unit}")
+        hi_t = "" if hi is None else f"at most {hi:.6g} {kind.unit}"
+        raise w.error(f"{text!r} is out of range: it must be "
+                      f"{' and '.join(t for t in (lo_t, hi_t) if t)} (SI units)")
+
+
+def _scalar(kind: AxisKind, value, w: Where) -> float:
+    return parse(value, kind.dimension, w)
+
+
+def validate_value(case: Case, key: str, value, w: Where) -> None:
+    """Check one written value the way the case reader checks ``[operation]``.
+
+    The value is put into a copy of the case's tables (a load replaces the
+    case's load; an extraction flow sets that extraction to ``control =
+    'flow'``) and read with :func:`simulator.case.read_conditions`, so a sweep
+    accepts exactly what a case file would.
+    """
+    data = copy.deepcopy(case.data)
+    if key.startswith("extraction_flow."):
+        data.setdefault("extractions", {})[key.split(".", 1)[1]] = {"control": "flow",
+                                                                   "flow": value}
+    else:
+        op = data.setdefault("operation", {})
+        if key in _LOAD_KEYS:
+            for k in _LOAD_KEYS:
+                op.pop(k, None)
+        op[key] = value
+    try:
+        read_conditions(data, case.model, case.file)
+    except InputError as exc:
+        raise w.error(getattr(exc, "message", str(exc))) from None
+
+
+def switch_names(kind_key: str, value, w: Where, model: Model) -> tuple[str, ...]:
+    """A switch value: ``"none"``, a name, or a list of names."""
+    if isinstance(value, str):
+        items = [] if value.strip().lower() in ("none", "") else value.split()
+    elif isinstance(value, list) and all(isinstance(v, str) for v in value):
+        items = [v for v in value if v.lower() != "none"]
+    else:
+        raise w.error(f"expected 'none', a name or a list of names, got {value!r}")
+    known = model.heaters if kind_key == "heater_out" else model.extractions
+    what = "heater" if kind_key == "heater_out" else "extraction"
+    for name in items:
+        if name not in known:
+            import difflib
+
+            hint = difflib.get_close_matches(name, list(known), n=1)
+            raise w.error(f"the model has no {what} {name!r}"
+                          + (f"; did you mean {hint[0]!r}?" if hint else
+                             f"; valid: {', '.join(known)}"))
+    return tuple(sorted(set(items)))
+
+
+_NUM_UNIT = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+def _split_text(value) -> tuple[float, str] | None:
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, (int, float)):
+        return float(value), ""
+    if isinstance(value, str):
+        m = _NUM_UNIT.match(value)
+        if m:
+            return float(m.group(1)), m.group(2)
+    return None
+
+
+def _range(kind: AxisKind, spec: dict, w: Where, check) -> tuple[list[float], list[str]]:
+    """Values of ``{from, to, points}`` or ``{from, to, step}``."""
+    unknown = [k for k in spec if k not in _RANGE_KEYS]
+    if unknown:
+        raise w.error(f"unknown key {unknown[0]!r} in a range; a range is "
+                      f"{{from = A, to = B, points = N}} or {{from = A, to = B, step = S}}")
+    if "from" not in spec or "to" not in spec or ("points" in spec) == ("step" in spec):
+        raise w.error("a range needs 'from', 'to' and one of 'points' or 'step'")
+    a = _scalar(kind, spec["from"], w)
+    b = _scalar(kind, spec["to"], w)
+    check(spec["from"])
+    check(spec["to"])
+    if "points" in spec:
+        n = spec["points"]
+        if isinstance(n, bool) or not isinstance(n, int) or n < 2:
+            raise w.error(f"'points' must be a whole number of at least 2, got {n!r}")
+        if n > MAX_POINTS:
+            raise w.error(f"{n} points is more than the {MAX_POINTS} a study may have")
+        k_all = np.arange(n)
+        values = [float(v) for v in np.linspace(a, b, n)]
+        frac = k_all / (n - 1)
+    else:
+        dim = "temperature_difference" if kind.dimension == "temperature" else kind.dimension
+        step = parse(spec["step"], dim, w)
+        if not step > 0.0:
+            raise w.error(f"'step' must be positive, got {spec['step']!r}")
+        span = abs(b - a)
+        n_f = span / step
+        if n_f + 1 > MAX_POINTS:
+            raise w.error(f"this range has {int(n_f) + 1} points, more than the {MAX_POINTS} "
+                          f"a study may have")
+        n = int(math.floor(n_f + 1e-9)) + 1
+        sign = 1.0 if b >= a else -1.0
+        values = [a + sign * k * step for k in range(n)]
+        if abs(values[-1] - b) <= 1e-9 * max(abs(a), abs(b), step):
+            values[-1] = b  # land exactly on the end
+        frac = np.array([(v - a) / (b - a) if b != a else 0.0 for v in values])
+    # labels in the user's unit when 'from' and 'to' share it
+    fa, fb = _split_text(spec["from"]), _split_text(spec["to"])
+    if fa and fb and fa[1] == fb[1]:
+        texts = [f"{fa[0] + f * (fb[0] - fa[0]):.6g}" + (f" {fa[1]}" if fa[1] else "")
+                 for f in frac]
+    else:
+        texts = [f"{v:.6g} {kind.unit}" for v in values]
+    return values, texts
+
+
+def _read_axis(key: str, value, wk: Where, case: Case) -> Axis:
+    """One axis of ``[sweep]``; ``wk`` locates its value in the case file."""
+    kind = axis_kind(key, Where(wk.file, wk.table))
+
+    def check(v):
+        validate_value(case, key, v, wk)
+
+    if kind.role == "switch":
+        # a list holds alternatives: "none", a name, or a list of names out together
+        if isinstance(value, list) and not value:
+            raise wk.error("an empty list: give at least one value (or 'none')")
+        items = value if isinstance(value, list) else [value]
+        values = [switch_names(key, v, wk, case.model) for v in items]
+        texts = [" ".join(v) if v else "none" for v in values]
+    elif isinstance(value, dict):
+        values, texts = _range(kind, value, wk, check)
+    else:
+        items = value if isinstance(value, list) else [value]
+        if not items:
+            raise wk.error("an empty list: give at least one value")
+        values = []
+        for v in items:
+            values.append(_scalar(kind, v, wk))
+            check(v)
+        texts = [str(v) for v in items]
+    if len(set(values)) != len(values):
+        raise wk.error("the same value appears twice")
+    return Axis(key, kind, values, texts)
+
+
+def read_sweep(case: Case) -> list[Axis]:
+    """The axes of the case's ``[sweep]`` table, in the order written."""
+    data = case.data.get("sweep")
+    w = Where(case.file, "sweep")
+    if not isinstance(data, dict):
+        raise w.error("expected a table [sweep] of inputs to vary")
+    axes = []
+    for key, value in data.items():
+        if key == "extraction_flow":
+            if not isinstance(value, dict) or any(k in _RANGE_KEYS for k in value):
+                raise w.child(key).error(
+                    "expected a table of extraction names, e.g. "
+                    "[sweep.extraction_flow] process_steam = ['0 kg/s', '20 kg/s']")
+            wt = Where(case.file, "sweep.extraction_flow")
+            for name, v in value.items():
+                check_extraction_flow(case.model, name, wt)
+                axes.append(_read_axis(f"extraction_flow.{name}", v, wt.child(name), case))
+            continue
+        axes.append(_read_axis(key, value, w.child(key), case))
+    if not axes:
+        raise w.error("the [sweep] table is empty: name at least one input to vary")
+    return axes
+
+
+def check_extraction_flow(model: Model, name: str, w: Where) -> None:
+    if name not in model.extractions:
+        import difflib
+
+        hint = difflib.get_close_matches(name, list(model.extractions), n=1)
+        raise w.child(name).error(f"the model has no extraction {name!r}"
+                                  + (f"; did you mean {hint[0]!r}?" if hint else ""))
+    if model.extractions[name].heater:
+        raise w.child(name).error(
+            f"extraction {name!r} feeds heater {model.extractions[name].heater!r}, which sets "
+            f"its flow; vary 'heater_out' or 'extraction_closed' instead")

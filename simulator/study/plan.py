@@ -1,0 +1,401 @@
+"""Study planning: the ordered points of a study (:class:`StudyPlan`), cut into
+chunks of consecutive points (:class:`Chunk`), built by :func:`plan_study`.
+"""
+
+from __future__ import annotations
+
+import copy
+import dataclasses
+import itertools
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import InputError
+from ..plant.case import Case, Conditions, read_conditions
+from ..plant.model import Model
+from ..units import Where
+from .axes import CONTINUATION_ORDER, MAX_POINTS, Axis, read_sweep
+from .profile import ProfileSource, read_profile
+
+__all__ = [
+    "CHUNK_MAX",
+    "CHUNK_MIN",
+    "Chunk",
+    "InputColumn",
+    "StudyPlan",
+    "chunk_size",
+    "plan_study",
+]
+
+CHUNK_MAX = 200  # [points] largest chunk: one unit of work, continuation and storage
+CHUNK_MIN = 8  # [points] smallest chunk when a study is cut for parallel work
+
+
+@dataclass
+class InputColumn:
+    """Per-point values of one input, as stored under ``/inputs``.
+
+    ``values`` is float64 in SI units (NaN: not set) or a list of str.
+    """
+
+    values: np.ndarray | list
+    unit: str
+    description: str
+
+
+@dataclass
+class Chunk:
+    """Consecutive points ``start <= i < stop`` solved in one go (continuation)."""
+
+    index: int
+    start: int
+    stop: int
+
+    @property
+    def size(self) -> int:
+        return self.stop - self.start
+
+
+@dataclass
+class StudyPlan:
+    """Everything a study will solve, in storage (and continuation) order.
+
+    Attributes
+    ----------
+    case : the case file read
+    kind : ``"sweep"``, ``"profile"`` or ``"profile+sweep"``
+    backend : steam property backend name
+    conditions : one per point
+    labels : a short text per point
+    series : series number of each point [-]
+    series_labels : text of each series (the values of its fixed axes)
+    axes : axis keys as given (sweep axes, then profile columns)
+    continuation : the axis that varies inside a series (``"profile"`` for a
+        profile's rows)
+    inputs : per-point inputs for ``/inputs`` (name -> column)
+    chunks : the units of work
+    profile : the profile file, if any
+    limit : set by :meth:`head` when only the first points are planned
+    """
+
+    case: Case
+    kind: str
+    backend: str
+    conditions: list[Conditions]
+    labels: list[str]
+    series: np.ndarray
+    series_labels: list[str]
+    axes: list[str]
+    continuation: str
+    inputs: dict[str, InputColumn]
+    chunks: list[Chunk]
+    profile: ProfileSource | None = None
+
+    @property
+    def n_points(self) -> int:
+        return len(self.conditions)
+
+    limit: int | None = None
+
+    @property
+    def chunk_of_point(self) -> np.ndarray:
+        out = np.empty(self.n_points, dtype=np.int32)
+        for c in self.chunks:
+            out[c.start:c.stop] = c.index
+        return out
+
+    def head(self, n: int) -> StudyPlan:
+        """The first ``n`` points only (a trial run), chunked afresh for ``n``."""
+        if n < 1:
+            raise InputError(f"a study needs at least one point, not {n}", key="--limit")
+        if n >= self.n_points:
+            return self
+        inputs = {k: InputColumn(c.values[:n], c.unit, c.description)
+                  for k, c in self.inputs.items()}
+        series = self.series[:n].copy()
+        return dataclasses.replace(
+            self, conditions=self.conditions[:n], labels=self.labels[:n], series=series,
+            series_labels=self.series_labels[:int(series.max()) + 1], inputs=inputs,
+            chunks=_chunks(series, chunk_size(n)), limit=n)
+
+
+def chunk_size(n_points: int) -> int:
+    """Chunk length for a study of ``n_points`` points.
+
+    About 16 chunks so that a few workers share the work, but no fewer than
+    :data:`CHUNK_MIN` points (continuation needs a run) and no more than
+    :data:`CHUNK_MAX` (progress and storage come by chunk).  It depends on the
+    plan alone, so that results do not depend on the number of workers.
+    """
+    return int(min(CHUNK_MAX, max(CHUNK_MIN, math.ceil(n_points / 16))))
+
+
+def _chunks(series: np.ndarray, size: int) -> list[Chunk]:
+    """Cut the points into chunks of at most ``size`` that never cross a series."""
+    chunks: list[Chunk] = []
+    n = len(series)
+    start = 0
+    while start < n:
+        end = start
+        while end < n and series[end] == series[start]:
+            end += 1
+        for a in range(start, end, size):
+            chunks.append(Chunk(len(chunks), a, min(a + size, end)))
+        start = end
+    return chunks
+
+
+def _switch_conditions(case: Case, heaters: tuple, closed: tuple, cache: dict,
+                       where: Where) -> Conditions:
+    """The case's conditions with extra heaters out and extractions closed."""
+    k = (heaters, closed)
+    if k in cache:
+        return cache[k]
+    data = copy.deepcopy(case.data)
+    hs = data.setdefault("heaters", {})
+    for h in heaters:
+        hs[h] = {"in_service": False}
+    ex = data.setdefault("extractions", {})
+    for e in closed:
+        ex[e] = {"control": "closed"}
+    try:
+        cond = read_conditions(data, case.model, case.file)
+    except InputError as exc:
+        raise where.error(f"with {' '.join(heaters + closed)} out of service: "
+                          f"{exc.message}") from None
+    cache[k] = cond
+    return cond
+
+
+def _apply(cond: Conditions, key: str, value: float, model: Model) -> Conditions:
+    """Set one scalar input (SI) on a copy of ``cond``."""
+    if key == "throttle_flow":
+        return dataclasses.replace(cond, throttle_flow=value, output=None)
+    if key == "throttle_flow_fraction":
+        return dataclasses.replace(cond, throttle_flow=value * model.throttle.flow, output=None)
+    if key == "output":
+        return dataclasses.replace(cond, output=value, throttle_flow=None)
+    if key == "output_fraction":
+        return dataclasses.replace(cond, output=value * model.generator.rating,
+                                   throttle_flow=None)
+    if key.startswith("extraction_flow."):
+        name = key.split(".", 1)[1]
+        controls = dict(cond.extraction_control)
+        controls[name] = ("flow", float(value))
+        return dataclasses.replace(cond, extraction_control=tuple(sorted(controls.items())))
+    return dataclasses.replace(cond, **{key: value})
+
+
+def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
+    loads = [a.key for a in axes if a.kind.role == "load"]
+    if len(loads) > 1:
+        raise where.child(loads[1]).error(
+            f"the load is set once: vary only one of {', '.join(loads)}")
+    keys = [a.key for a in axes]
+    dup = [k for k in keys if keys.count(k) > 1]
+    if dup:
+        raise where.child(dup[0]).error("varied both in [sweep] and in the profile")
+
+
+def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, InputColumn]:
+    """Resolved per-point inputs (design values where the case leaves them unset)."""
+    n = len(conds)
+    reheat = [p.outlet_temperature for p in model.reheaters]
+    T_rh_design = reheat[0] if reheat and all(t == reheat[0] for t in reheat) else math.nan
+    exh = [model.design_pressure[e] for e in model.exhaust_nodes]
+    p_x_design = exh[0] if all(p == exh[0] for p in exh) else math.nan
+    nan = math.nan
+
+    def col(get):
+        return np.fromiter((get(c) for c in conds), dtype=np.float64, count=n)
+
+    def fmt_controls(c):
+        parts = []
+        for name, (ctl, v) in c.extraction_control:
+            if ctl == "flow":
+                parts.append(f"{name}: flow {v:.6g} kg/s")
+            elif ctl == "fraction":
+                parts.append(f"{name}: fraction {v:.6g}")
+        return "; ".join(parts)
+
+    return {
+        "throttle_flow": InputColumn(
+            col(lambda c: c.throttle_flow if c.throttle_flow is not None else nan), "kg/s",
+            "throttle flow asked for (NaN when an output is demanded)"),
+        "output": InputColumn(
+            col(lambda c: c.output if c.output is not None else nan), "W",
+            "generator output demanded (NaN when the throttle flow is given)"),
+        "governing": InputColumn([c.governing for c in conds], "",
+                                 "'sliding' or 'throttle' pressure governing"),
+        "throttle_pressure": InputColumn(
+            col(lambda c: c.throttle_pressure if c.throttle_pressure is not None else nan), "Pa",
+            "held throttle pressure (throttle governing; NaN: sliding pressure, see "
+            "/totals/throttle_pressure)"),
+        "throttle_temperature": InputColumn(
+            col(lambda c: c.throttle_temperature if c.throttle_temperature is not None
+                else model.throttle.temperature), "K", "throttle steam temperature"),
+        "reheat_temperature": InputColumn(
+            col(lambda c: c.reheat_temperature if c.reheat_temperature is not None
+                else T_rh_design), "K",
+            "hot reheat temperature (NaN: no reheater, or each reheater at its design)"),
+        "exhaust_pressure": InputColumn(
+            col(lambda c: c.exhaust_pressure if c.exhaust_pressure is not None
+                else p_x_design), "Pa", "exhaust (condenser or back) pressure"),
+        "heaters_out_of_service": InputColumn(
+            [" ".join(sorted(c.heaters_out)) for c in conds], "",
+            "heaters out of service, separated by spaces"),
+        "extractions_closed": InputColumn(
+            [" ".join(name for name, (ctl, _) in c.extraction_control if ctl == "closed")
+             for c in conds], "", "extractions closed, separated by spaces"),
+        "extraction_setpoints": InputColumn(
+            [fmt_controls(c) for c in conds], "",
+            "extractions held at a set flow or fraction of throttle flow"),
+    }
+
+
+def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
+    """Turn the case's ``[sweep]`` and ``[profile]`` tables into a plan.
+
+    Parameters
+    ----------
+    case : a case read by :func:`simulator.case.load_case`
+    backend : steam property backend (default: the case's)
+
+    Raises
+    ------
+    InputError
+        For a mistake in the tables or the profile file (file, table and key
+        named).
+    """
+    has_sweep = "sweep" in case.data
+    has_profile = "profile" in case.data
+    if not (has_sweep or has_profile):
+        raise InputError("this case has no [sweep] or [profile] table, so there is nothing to "
+                         "study; solve it with 'partload point', or add a [sweep] table such "
+                         "as: throttle_flow_fraction = {from = 0.4, to = 1.0, points = 13}",
+                         file=case.file)
+    model = case.model
+    sweep = read_sweep(case) if has_sweep else []
+    profile = read_profile(case) if has_profile else None
+    all_axes = sweep + (profile.axes if profile else [])
+    _check_axes(case, all_axes, Where(case.file, "sweep" if has_sweep else "profile"))
+    # base conditions: a load axis replaces the case's own load
+    base = case.conditions
+    if profile is not None:
+        series_axes = sweep
+        cont_key = "profile"
+        run_values = None
+    else:
+        cont = None
+        for pref in CONTINUATION_ORDER:
+            cands = [a for a in sweep if a.base == pref]
+            if cands:
+                cont = cands[-1]
+                break
+        series_axes = [a for a in sweep if a is not cont]
+        cont_key = cont.key if cont is not None else ""
+        if cont is not None:
+            order = sorted(range(len(cont.values)), key=lambda k: cont.values[k])
+            run_values = [(cont.values[k], cont.texts[k]) for k in order]
+        else:
+            run_values = [None]
+    combos = list(itertools.product(*[range(len(a.values)) for a in series_axes]))
+    n_run = len(profile.labels) if profile is not None else len(run_values)
+    n_total = len(combos) * n_run
+    if n_total > MAX_POINTS:
+        raise InputError(f"this study has {n_total} points, more than the {MAX_POINTS} allowed",
+                         file=case.file)
+    cache: dict = {}
+    conds: list[Conditions] = []
+    labels: list[str] = []
+    series = np.empty(n_total, dtype=np.int32)
+    series_labels: list[str] = []
+    axis_cols: dict[str, list] = {a.key: [] for a in all_axes}
+    for s, combo in enumerate(combos):
+        heaters: set[str] = set()
+        closed: set[str] = set()
+        parts = []
+        for a, k in zip(series_axes, combo):
+            parts.append(f"{a.key}={a.texts[k]}")
+            if a.base == "heater_out":
+                heaters.update(a.values[k])
+            elif a.base == "extraction_closed":
+                closed.update(a.values[k])
+        cond_s = base
+        if heaters or closed:
+            cond_s = _switch_conditions(case, tuple(sorted(heaters)), tuple(sorted(closed)),
+                                        cache, Where(case.file, "sweep",
+                                                     "heater_out" if heaters else
+                                                     "extraction_closed"))
+        for a, k in zip(series_axes, combo):
+            if a.kind.role != "switch":
+                cond_s = _apply(cond_s, a.key, a.values[k], model)
+        series_label = ", ".join(parts)
+        series_labels.append(series_label)
+        start = len(conds)
+        if profile is None:
+            for item in run_values:
+                c = cond_s
+                label = series_label
+                if item is not None:
+                    c = _apply(cond_s, cont.key, item[0], model)
+                    label = f"{cont.key}={item[1]}" + (f", {series_label}" if series_label else "")
+                conds.append(dataclasses.replace(c, label=label))
+                labels.append(label)
+                for a, k in zip(series_axes, combo):
+                    axis_cols[a.key].append(a.values[k])
+                if cont is not None:
+                    axis_cols[cont.key].append(item[0])
+        else:
+            p_switch = [a for a in profile.axes if a.kind.role == "switch"]
+            p_scalar = [a for a in profile.axes if a.kind.role != "switch"]
+            for r in range(n_run):
+                c = cond_s
+                if p_switch:
+                    h2 = set(heaters)
+                    c2 = set(closed)
+                    for a in p_switch:
+                        (h2 if a.base == "heater_out" else c2).update(a.values[r])
+                    if h2 != heaters or c2 != closed:
+                        c = _switch_conditions(case, tuple(sorted(h2)), tuple(sorted(c2)),
+                                               cache, Where(profile.file,
+                                                            f"line {profile.lines[r]}"))
+                        for a, k in zip(series_axes, combo):
+                            if a.kind.role != "switch":
+                                c = _apply(c, a.key, a.values[k], model)
+                for a in p_scalar:
+                    c = _apply(c, a.key, a.values[r], model)
+                label = profile.labels[r] + (f", {series_label}" if series_label else "")
+                conds.append(dataclasses.replace(c, label=label))
+                labels.append(label)
+                for a, k in zip(series_axes, combo):
+                    axis_cols[a.key].append(a.values[k])
+                for a in profile.axes:
+                    axis_cols[a.key].append(a.values[r])
+        series[start:len(conds)] = s
+    chunks = _chunks(series, chunk_size(n_total))
+    inputs = _effective_inputs(model, conds)
+    for a in all_axes:
+        if a.key in inputs:
+            continue  # the resolved column holds the same numbers
+        vals = axis_cols[a.key]
+        if a.kind.role == "switch":
+            inputs[a.key] = InputColumn([" ".join(v) for v in vals], "",
+                                        a.kind.description + " (axis)")
+        else:
+            inputs[a.key] = InputColumn(np.array(vals, dtype=np.float64), a.kind.unit,
+                                        a.kind.description + " (axis)")
+    if profile is not None:
+        inputs["profile_line"] = InputColumn(
+            np.tile(profile.lines, len(combos)).astype(np.int64), "-",
+            "line of the point in the profile file")
+        inputs["time"] = InputColumn(list(profile.labels) * len(combos), "",
+                                     "label of the profile row (its time column)")
+    kind = "sweep" if profile is None else ("profile+sweep" if sweep else "profile")
+    return StudyPlan(case=case, kind=kind, backend=backend or case.backend, conditions=conds,
+                     labels=labels, series=series, series_labels=series_labels,
+                     axes=[a.key for a in all_axes], continuation=cont_key, inputs=inputs,
+                     chunks=chunks, profile=profile)
