@@ -23,10 +23,11 @@ from ..physics.heater import (
     pump_enthalpy_rise,
 )
 from ..physics.pressure_drop import scaled_pressure_drop
+from ..steam.constants import H_ABOVE_SAT_VAP
 
-# [J/kg] above the largest saturated-vapour enthalpy of water (2803.3 kJ/kg, IAPWS-IF97)
-# an expansion end point is certainly dry
-H_DRY = 2.81e6
+# [J/kg] above the largest saturated-vapour enthalpy of water an expansion end point is
+# certainly dry (the one constant, with its source, is in simulator.steam.constants)
+H_DRY = H_ABOVE_SAT_VAP
 
 __all__ = [
     "ExhaustEnd",

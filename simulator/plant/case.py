@@ -21,7 +21,7 @@ from pathlib import Path
 from ..errors import InputError
 from ..inputs.reading import Problems, TableReader, load_toml
 from ..plant.model import Model, load_model
-from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, get_backend
+from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, get_backend
 from ..units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
@@ -146,7 +146,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>") -> Condition
     if governing == "throttle" and T_T is not None and (p_T is not None or "throttle_pressure"
                                                           not in op.data):
         p_held = p_T if p_T is not None else model.throttle.pressure
-        T_sat = 647.096 if p_held >= P_CRIT else get_backend().T_sat(p_held)
+        T_sat = T_CRIT if p_held >= P_CRIT else get_backend().T_sat(p_held)
         if T_T <= T_sat:
             problems.add(op.where.child("throttle_temperature").error(
                 f"{T_T - 273.15:.1f} degC is not above the saturation temperature "

@@ -44,14 +44,13 @@ from ..physics.efficiency import CORRECTIONS, make_table_correction
 from ..physics.ellipse import flow_constant
 from ..physics.heater import design_ua
 from ..plant.limits import Limits, default_limits, read_limits
-from ..steam.if97 import P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
+from ..steam.if97 import P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, SteamTables, get_backend
 from ..units import Where, parse
 
 __all__ = ["Model", "ThrottleDesign", "load_model", "build_model"]
 
 EXTRACTION_CONTROLS = ("fraction", "flow", "closed", "heater")
 IF97 = "the validity range of IAPWS-IF97"
-T_CRIT = 647.096  # [K] critical temperature, IAPWS R7-97(2012) eq. (1) constants
 HEATER_KINDS = ("closed", "deaerator")
 TTD_METHODS = ("constant", "ua")
 

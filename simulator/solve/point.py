@@ -35,7 +35,7 @@ from ..plant.case import Conditions, override
 from ..plant.model import Model
 from ..solve.newton import newton
 from ..solve.water import FeedwaterMarch, HeaterState
-from ..steam.if97 import SteamTables, get_backend
+from ..steam.if97 import P_CRIT, T_CRIT, SteamTables, get_backend
 
 __all__ = ["PointEquations", "PointResult", "solve_point", "UNITS"]
 
@@ -624,7 +624,7 @@ def _check_physical(model, cond, steam, eq, st):
     names = eq.names
     p_T = p[eq.src]
     T_T = eq.T_throttle
-    T_sat = 647.096 if p_T >= 22.064e6 else steam.T_sat(p_T)  # critical point, IAPWS R7-97
+    T_sat = T_CRIT if p_T >= P_CRIT else steam.T_sat(p_T)  # critical point, IAPWS R7-97
     if T_T <= T_sat:
         raise InfeasibleError(
             f"the throttle pressure would be {p_T / 1e5:.2f} bar, where the throttle "

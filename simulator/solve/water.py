@@ -19,6 +19,7 @@ from dataclasses import dataclass
 import networkx as nx
 
 from ..errors import InputError
+from ..steam.constants import P_CRIT
 
 __all__ = ["FeedwaterMarch", "HeaterState", "design_feedwater_states"]
 
@@ -310,7 +311,7 @@ class FeedwaterMarch:
                             f"water reaches deaerator {name!r} at {p_win[k] / 1e5:.4g} bar, below "
                             f"its {p_sh[k] / 1e5:.4g} bar: the pump before it"
                             f"{f' ({last_pump!r})' if last_pump else ''} cannot feed it"))
-            elif kind == 1 and p_win[k] < 22.064e6 and T_out[k] >= steam.T_sat(p_win[k]):
+            elif kind == 1 and p_win[k] < P_CRIT and T_out[k] >= steam.T_sat(p_win[k]):
                 out.append((last_pump or name,
                             f"feedwater would boil in heater {name!r}: {T_out[k] - 273.15:.1f} "
                             f"degC at {p_win[k] / 1e5:.4g} bar; the pump before it"
