@@ -307,3 +307,14 @@ def test_process_prints_no_traceback_for_a_broken_case(tmp_path):
     assert proc.returncode == 2 and proc.stdout == ""
     assert "Traceback" not in proc.stderr
     assert "[operation] governing: 'slidin' is not one of" in proc.stderr
+
+
+def test_closest_name_hint():
+    from partload.inputs.reading import closest
+
+    # hand check: 'efficency' differs from 'efficiency' by one letter (ratio 0.95 >= 0.6)
+    assert closest("efficency", ("name", "efficiency", "alpha")) == "; did you mean 'efficiency'?"
+    # nothing alike: no hint (difflib ratio of 'xyz' and 'HP8' is 0)
+    assert closest("xyz", {"HP8": 1, "LP1": 2}) == ""
+    assert closest("HP9", {"HP8": 1, "LP1": 2}) == "; did you mean 'HP8'?"
+    assert closest("HP9", []) == ""

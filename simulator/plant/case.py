@@ -13,13 +13,12 @@ Case file reference: see README.md, section "Case file".
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
-from ..inputs.reading import Problems, TableReader, load_toml
+from ..inputs.reading import Problems, TableReader, closest, load_toml
 from ..plant.model import Model, load_model
 from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, get_backend
 from ..units import Where
@@ -219,9 +218,7 @@ def _named_tables(data: dict, key: str, known, what: str, file: str, problems: P
     for name, table in tables.items():
         w = Where(file, f"{key}.{name}")
         if name not in known:
-            hint = difflib.get_close_matches(name, list(known), n=1)
-            problems.add(w.error(f"the model has no {what} {name!r}"
-                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
+            problems.add(w.error(f"the model has no {what} {name!r}" + closest(name, known)))
             continue
         yield name, w, table
 
