@@ -14,7 +14,7 @@ from partload.physics.efficiency import (
 )
 from partload.physics.ellipse import ellipse_flow, flow_constant
 from partload.physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from partload.physics.expansion import expansion_end
+from partload.physics.expansion import dry_expansion_end, expansion_end
 from partload.physics.generator import generator_output
 from partload.physics.heater import design_ua, effectiveness_ttd, pump_enthalpy_rise
 from partload.physics.pressure_drop import scaled_pressure_drop
@@ -72,9 +72,21 @@ def test_unknown_correction_lists_valid_names():
 
 
 def test_baumann_rule():
-    # Baumann (1921): 1 % mean moisture costs 1 % of efficiency with alpha = 1
-    assert baumann_factor(0.08, 1.0) == pytest.approx(0.92)
-    assert baumann_factor(0.08, 0.5) == pytest.approx(0.96)
+    # Baumann (1921): 1 % mean moisture costs 1 % of efficiency with alpha = 1;
+    # hand calculation: inlet 4 %, outlet 12 % -> mean 8 % -> 0.92 (alpha 1), 0.96 (0.5)
+    assert baumann_factor(0.04, 0.12, 1.0) == pytest.approx(0.92)
+    assert baumann_factor(0.04, 0.12, 0.5) == pytest.approx(0.96)
+    # a dry outlet: the mean is half the inlet moisture, 1 - 0.06 / 2
+    assert baumann_factor(0.06) == pytest.approx(0.97)
+    assert baumann_factor(0.0, 0.0, 2.0) == 1.0
+
+
+def test_dry_expansion_end_with_wet_inlet():
+    # hand calculation: h = 2700 - 0.9 * 300 * (1 - 1.0 * 0.04 / 2) kJ/kg = 2435.4 kJ/kg
+    assert dry_expansion_end(2.7e6, 3e5, 0.9, 0.04, 1.0) == pytest.approx(2.4354e6, rel=1e-12)
+    # the general end point agrees with it when the end is dry (h_vap below it)
+    assert expansion_end(2.7e6, 3e5, 0.9, 0.04, 2e5, 2.4e6) == dry_expansion_end(
+        2.7e6, 3e5, 0.9, 0.04)
 
 
 @pytest.mark.parametrize("h_in, y_in", [(2.75e6, 0.0), (2.60e6, 0.03)])

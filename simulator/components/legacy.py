@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 
 from ..physics.ellipse import ellipse_flow
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from ..physics.expansion import expansion_end
+from ..physics.expansion import dry_expansion_end, expansion_end
 from ..physics.generator import generator_output
 from ..physics.heater import (
     closed_heater_outlet_temperature,
@@ -123,7 +123,7 @@ class StageGroup:
         h_dry_end = h_in - eta_dry * dh_s
         if h_dry_end > H_DRY:  # above every saturated vapour: a dry end, no lookups
             h_vap = h_liq = math.nan
-            h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
+            h_elep = dry_expansion_end(h_in, dh_s, eta_dry, y_in, alpha)
             y_out = 0.0
         else:
             h_vap = steam.h_vap_sat(p_out)
@@ -132,7 +132,7 @@ class StageGroup:
                 h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, alpha)
             else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
                 h_liq = math.nan
-                h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
+                h_elep = dry_expansion_end(h_in, dh_s, eta_dry, y_in, alpha)
             y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
         eta = (h_in - h_elep) / dh_s if dh_s else eta_dry
         if self.exhaust is None:

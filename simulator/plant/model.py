@@ -40,7 +40,7 @@ from ..components.legacy import (
 )
 from ..errors import InputError, PartloadError, TopologyError
 from ..inputs.reading import Problems, TableReader, load_toml
-from ..physics.efficiency import CORRECTIONS, make_table_correction
+from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correction
 from ..physics.ellipse import flow_constant
 from ..physics.heater import design_ua
 from ..plant.limits import Limits, default_limits, read_limits
@@ -755,7 +755,7 @@ def _calibrate_component(c, m, p_in, h_in, p_out, steam, wide_open_fraction, mod
         h_liq = steam.h_liq_sat(p_out)
         y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
         y_in = (1.0 - steam.x_ph(p_in, h_in)) if c.alpha else 0.0
-        factor = 1.0 - c.alpha * 0.5 * (y_in + y_out)
+        factor = baumann_factor(y_in, y_out, c.alpha)
         if factor <= 0.05:
             raise InputError("Baumann's factor leaves no efficiency; check moisture_factor",
                              file=model.file, table=f"stage_group '{c.name}'",
