@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from ..physics.ellipse import ellipse_flow
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
 from ..physics.expansion import dry_expansion_end, expansion_end
+from ..physics.feedwater import boiler_pressure_drop
 from ..physics.generator import generator_output
 from ..physics.heater import (
     closed_heater_outlet_temperature,
@@ -325,8 +326,7 @@ class Boiler:
     m_design: float = 1.0
 
     def drop(self, m_dot: float) -> float:
-        r = m_dot / self.m_design
-        return self.dp_design * r * abs(r)
+        return boiler_pressure_drop(m_dot, self.dp_design, self.m_design)
 
 
 @dataclass
