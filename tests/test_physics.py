@@ -14,7 +14,11 @@ from partload.physics.efficiency import (
 )
 from partload.physics.ellipse import ellipse_flow, flow_constant
 from partload.physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from partload.physics.expansion import dry_expansion_end, expansion_end
+from partload.physics.expansion import (
+    dry_expansion_end,
+    expansion_end,
+    moisture_from_enthalpy,
+)
 from partload.physics.feedwater import boiler_pressure_drop, mixed_enthalpy, pumped_drain_enthalpy
 from partload.physics.generator import generator_output
 from partload.physics.heater import (
@@ -25,6 +29,7 @@ from partload.physics.heater import (
     effectiveness_ttd,
     feedwater_duty,
     heater_balance_residual,
+    heater_shell_pressure,
     steam_release,
 )
 from partload.physics.performance import (
@@ -306,3 +311,19 @@ def test_point_totals_follow_the_performance_definitions(industrial_model):
                                  t["process_steam_energy"])
     assert imbalance == pytest.approx(t["energy_imbalance"], abs=1.0)
     assert abs(imbalance) < 1e-6 * t["heat_added"]
+
+
+def test_moisture_lever_rule_hand_values():
+    # hand calculation at 6.8 kPa (h' = 161.1, h'' = 2570.8 kJ/kg, IF97 from memory):
+    # h = 2330 kJ/kg is (2570.8 - 2330) / (2570.8 - 161.1) = 0.09993 moist
+    assert moisture_from_enthalpy(2.33e6, 161.1e3, 2570.8e3) == pytest.approx(
+        240.8 / 2409.7, rel=1e-12)
+    assert moisture_from_enthalpy(161.1e3, 161.1e3, 2570.8e3) == 1.0
+    assert moisture_from_enthalpy(2.6e6, 161.1e3, 2570.8e3) == 0.0
+    # a superheated state needs no liquid enthalpy
+    assert moisture_from_enthalpy(2.9e6, math.nan, 2570.8e3) == 0.0
+
+
+def test_heater_shell_pressure_hand_value():
+    # hand calculation: 3 % line drop from 20 bar leaves 19.4 bar
+    assert heater_shell_pressure(20e5, 0.03) == pytest.approx(19.4e5)

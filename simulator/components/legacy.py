@@ -15,12 +15,13 @@ from dataclasses import dataclass, field
 
 from ..physics.ellipse import ellipse_flow
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from ..physics.expansion import dry_expansion_end, expansion_end
+from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
 from ..physics.feedwater import boiler_pressure_drop
 from ..physics.generator import generator_output
 from ..physics.heater import (
     closed_heater_outlet_temperature,
     effectiveness_ttd,
+    heater_shell_pressure,
     pump_enthalpy_rise,
 )
 from ..physics.pressure_drop import scaled_pressure_drop
@@ -134,7 +135,7 @@ class StageGroup:
             else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
                 h_liq = math.nan
                 h_elep = dry_expansion_end(h_in, dh_s, eta_dry, y_in, alpha)
-            y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+            y_out = moisture_from_enthalpy(h_elep, h_liq, h_vap)
         eta = (h_in - h_elep) / dh_s if dh_s else eta_dry
         if self.exhaust is None:
             return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0, h_vap, h_liq
@@ -288,7 +289,7 @@ class Heater:
 
     def shell_pressure(self, p_node: float) -> float:
         """Shell pressure [Pa] from extraction-node pressure [Pa] less the line drop."""
-        return p_node * (1.0 - self.line_drop)
+        return heater_shell_pressure(p_node, self.line_drop)
 
     def outlet_temperature(self, T_sat: float, T_in: float, m_water: float) -> float:
         """Feedwater outlet temperature [K] (closed heater)."""

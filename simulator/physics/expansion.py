@@ -13,7 +13,31 @@ from __future__ import annotations
 
 from .efficiency import baumann_factor
 
-__all__ = ["expansion_end", "dry_expansion_end"]
+__all__ = ["expansion_end", "dry_expansion_end", "moisture_from_enthalpy"]
+
+
+def moisture_from_enthalpy(h: float, h_liq: float, h_vap: float) -> float:
+    """Moisture fraction of steam at enthalpy ``h``, by the lever rule.
+
+    .. math::  y = (h'' - h) / (h'' - h') \\quad (h < h''), \\qquad y = 0 \\quad (h \\ge h'')
+
+    Parameters
+    ----------
+    h : enthalpy of the state [J/kg]
+    h_liq : saturated-liquid enthalpy at its pressure [J/kg]
+    h_vap : saturated-vapour enthalpy at its pressure [J/kg]
+
+    Returns
+    -------
+    float
+        Moisture fraction ``1 - x`` [-]; 0 for superheated steam.  Valid down to
+        saturated liquid (``y = 1``) below the critical pressure.
+
+    Reference: definition of quality in a two-phase mixture, any thermodynamics
+    text (e.g. Y. A. Cengel and M. A. Boles, *Thermodynamics: An Engineering
+    Approach*, 8th ed., McGraw-Hill, 2015, sec. 3-5, from memory).
+    """
+    return (h_vap - h) / (h_vap - h_liq) if h < h_vap else 0.0
 
 
 def dry_expansion_end(h_in: float, dh_s: float, eta_dry: float, y_in: float,

@@ -47,10 +47,32 @@ from collections.abc import Sequence
 
 from .pump import pump_enthalpy_rise  # the one pump law, re-exported here
 
-__all__ = ["closed_heater_outlet_temperature", "effectiveness_ttd", "design_ua",
+__all__ = ["heater_shell_pressure", "closed_heater_outlet_temperature", "effectiveness_ttd",
+           "design_ua",
            "drain_outlet_temperature", "drain_outlet_enthalpy", "deaerator_outlet_enthalpy",
            "feedwater_duty", "steam_release", "heater_balance_residual",
            "pump_enthalpy_rise"]
+
+
+def heater_shell_pressure(p_extraction: float, line_drop: float) -> float:
+    """Heater shell pressure: extraction pressure less the extraction-line drop.
+
+    .. math::  p_{shell} = p_{ext} (1 - \\delta)
+
+    Parameters
+    ----------
+    p_extraction : pressure at the turbine's extraction point [Pa]
+    line_drop : line pressure drop as a fraction of the extraction pressure [-]
+        (3-5 % is common practice, no source)
+
+    Returns
+    -------
+    float
+        Shell pressure [Pa].  The fraction is held at its design value off
+        design (the drop itself scales with the pressure, not with the flow
+        squared: a simplification, common practice, no source).
+    """
+    return p_extraction * (1.0 - line_drop)
 
 
 def closed_heater_outlet_temperature(T_sat: float, ttd: float) -> float:

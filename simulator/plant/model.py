@@ -42,6 +42,7 @@ from ..errors import InputError, PartloadError, TopologyError
 from ..inputs.reading import Problems, TableReader, load_toml
 from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correction
 from ..physics.ellipse import flow_constant
+from ..physics.expansion import moisture_from_enthalpy
 from ..physics.heater import design_ua
 from ..plant.limits import Limits, default_limits, read_limits
 from ..steam.if97 import P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, SteamTables, get_backend
@@ -753,7 +754,7 @@ def _calibrate_component(c, m, p_in, h_in, p_out, steam, wide_open_fraction, mod
         h_elep = h_in - c.eta_design * c.dh_s_design
         h_vap = steam.h_vap_sat(p_out)
         h_liq = steam.h_liq_sat(p_out)
-        y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+        y_out = moisture_from_enthalpy(h_elep, h_liq, h_vap)
         y_in = (1.0 - steam.x_ph(p_in, h_in)) if c.alpha else 0.0
         factor = baumann_factor(y_in, y_out, c.alpha)
         if factor <= 0.05:
