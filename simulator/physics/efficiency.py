@@ -105,10 +105,10 @@ def baumann_factor(y_in: float, y_out: float = 0.0, alpha: float = 1.0) -> float
 
     Parameters
     ----------
-    y_in : moisture fraction at the inlet of the expansion [-]; 0 when superheated
-    y_out : moisture fraction at the outlet of the expansion [-]; 0 when superheated
-    alpha : Baumann factor [-]; 1 is Baumann's own value, measured values span
-        about 0.4-2.5 (range quoted from memory of the literature).
+    y_in : moisture fraction at the inlet of the expansion, 0 when superheated [-]
+    y_out : moisture fraction at the outlet of the expansion, 0 when superheated [-]
+    alpha : Baumann factor; 1 is Baumann's own value, measured values span
+        about 0.4-2.5 (range quoted from memory of the literature) [-]
 
     Returns
     -------

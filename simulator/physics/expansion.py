@@ -52,7 +52,7 @@ def dry_expansion_end(h_in: float, dh_s: float, eta_dry: float, y_in: float,
     dh_s : isentropic enthalpy drop to the outlet pressure [J/kg]
     eta_dry : dry isentropic efficiency [-]
     y_in : inlet moisture fraction [-]
-    alpha : Baumann factor [-] (K. Baumann, J. IEE 59, 1921)
+    alpha : Baumann factor (K. Baumann, J. IEE 59, 1921) [-]
 
     Returns
     -------
@@ -75,7 +75,7 @@ def expansion_end(h_in: float, dh_s: float, eta_dry: float, y_in: float,
     eta_dry : dry isentropic efficiency [-]
     y_in : inlet moisture fraction [-]
     h_liq, h_vap : saturated liquid and vapour enthalpy at the outlet pressure [J/kg]
-    alpha : Baumann factor [-] (K. Baumann, J. IEE 59, 1921)
+    alpha : Baumann factor (K. Baumann, J. IEE 59, 1921) [-]
 
     Returns
     -------

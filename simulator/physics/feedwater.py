@@ -43,9 +43,9 @@ def mixed_enthalpy(flows: Sequence[float], enthalpies: Sequence[float]) -> float
 
     Parameters
     ----------
-    flows : mass flow of each stream [kg/s]; their sum must not be zero (a
-        negative flow, as a Newton iterate may have, is continued by the same
-        formula so that the iteration stays well defined)
+    flows : mass flow of each stream; their sum must not be zero (a negative
+        flow, as a Newton iterate may have, is continued by the same formula so
+        that the iteration stays well defined) [kg/s]
     enthalpies : enthalpy of each stream [J/kg]
 
     Returns

@@ -111,7 +111,7 @@ def drain_outlet_temperature(T_sat: float, T_fw_in: float, dca: float | None) ->
     ----------
     T_sat : saturation temperature at shell pressure [K]
     T_fw_in : feedwater inlet temperature [K]
-    dca : drain-cooler approach [K]; ``None`` when the heater has no drain cooler
+    dca : drain-cooler approach, ``None`` when the heater has no drain cooler [K]
 
     Returns
     -------
@@ -139,7 +139,7 @@ def drain_outlet_enthalpy(steam, p_shell: float, T_sat: float, T_fw_in: float,
     p_shell : shell pressure [Pa]
     T_sat : saturation temperature at ``p_shell`` [K]
     T_fw_in : feedwater inlet temperature [K]
-    dca : drain-cooler approach [K]; ``None`` without a drain cooler
+    dca : drain-cooler approach, ``None`` without a drain cooler [K]
 
     Returns
     -------
@@ -158,7 +158,7 @@ def deaerator_outlet_enthalpy(steam, p_shell: float) -> float:
     Parameters
     ----------
     steam : property backend (:mod:`simulator.steam`)
-    p_shell : deaerator shell pressure [Pa], below the critical pressure
+    p_shell : deaerator shell pressure, below the critical pressure [Pa]
 
     Returns
     -------
@@ -203,8 +203,8 @@ def steam_release(m_bleed: float, h_bleed: float, h_drain: float,
     Parameters
     ----------
     m_bleed : bleed flow of the heater [kg/s]
-    h_bleed : bleed enthalpy at the extraction [J/kg] (the line drop is
-        isenthalpic)
+    h_bleed : bleed enthalpy at the extraction, unchanged by the isenthalpic line
+        drop [J/kg]
     h_drain : drain outlet enthalpy of this heater [J/kg]
     drain_flows : flows of the drains arriving from heaters above [kg/s]
     drain_enthalpies : their enthalpies as they leave those heaters [J/kg]

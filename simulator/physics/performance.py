@@ -72,8 +72,8 @@ def heat_rate(heat: float, output: float) -> float:
 
     Parameters
     ----------
-    heat : heat added, :func:`heat_added`, or heat chargeable to power,
-        :func:`heat_chargeable_to_power` [W]
+    heat : heat added (:func:`heat_added`) or heat chargeable to power
+        (:func:`heat_chargeable_to_power`) [W]
     output : generator output [W]
 
     Returns
@@ -158,8 +158,8 @@ def condenser_duty(exhaust_energy: float, m_drains: float, h_drains: float,
 
     Parameters
     ----------
-    exhaust_energy : ``sum m h`` of the exhaust steam entering, at the used-energy
-        end point [W]
+    exhaust_energy : ``sum m h`` of the exhaust steam entering, at the
+        used-energy end point [W]
     m_drains : heater drains cascaded to the condenser [kg/s]
     h_drains : their mixed enthalpy [J/kg]
     m_makeup : make-up water entering at condensate enthalpy [kg/s]
