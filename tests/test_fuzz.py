@@ -39,7 +39,7 @@ from partload.errors import InputError, PartloadError, SolveError
 from partload.plant.case import Conditions, read_conditions
 from partload.plant.model import build_model, load_model
 from partload.solve.point import solve_point
-from partload.steam.if97 import P_CRIT, get_backend
+from partload.steam.if97 import P_CRIT, T_CRIT, get_backend
 
 ROOT = Path(__file__).resolve().parent.parent
 MODEL_FILES = {"reheat": ROOT / "models/demo_reheat_unit.toml",
@@ -278,7 +278,7 @@ def assert_valid_point(model, r):
         assert abs(dm) <= 1e-6 * m_T, node
     i = r.node_names.index(model.source)
     p, T = r.node_p[i], r.node_T[i]
-    T_sat = 647.096 if p >= P_CRIT else get_backend().T_sat(p)
+    T_sat = T_CRIT if p >= P_CRIT else get_backend().T_sat(p)
     assert T > T_sat, "water at the throttle"
 
 

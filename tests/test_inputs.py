@@ -327,3 +327,14 @@ def test_former_governing_key_still_reads_and_says_how_to_write_it(tmp_path):
                     'governing = "throttle"\npressure_mode = "fixed"\n')
     with pytest.raises(InputError, match="pressure_mode only"):
         load_case(both)
+
+
+def test_closest_name_hint():
+    from partload.inputs.reading import closest
+
+    # hand check: 'efficency' differs from 'efficiency' by one letter (ratio 0.95 >= 0.6)
+    assert closest("efficency", ("name", "efficiency", "alpha")) == "; did you mean 'efficiency'?"
+    # nothing alike: no hint (difflib ratio of 'xyz' and 'HP8' is 0)
+    assert closest("xyz", {"HP8": 1, "LP1": 2}) == ""
+    assert closest("HP9", {"HP8": 1, "LP1": 2}) == "; did you mean 'HP8'?"
+    assert closest("HP9", []) == ""

@@ -14,10 +14,37 @@ from partload.physics.efficiency import (
 )
 from partload.physics.ellipse import ellipse_flow, flow_constant
 from partload.physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from partload.physics.expansion import expansion_end
+from partload.physics.expansion import (
+    dry_expansion_end,
+    expansion_end,
+    moisture_from_enthalpy,
+)
+from partload.physics.feedwater import boiler_pressure_drop, mixed_enthalpy, pumped_drain_enthalpy
 from partload.physics.generator import generator_output
-from partload.physics.heater import design_ua, effectiveness_ttd, pump_enthalpy_rise
+from partload.physics.heater import (
+    deaerator_outlet_enthalpy,
+    design_ua,
+    drain_outlet_enthalpy,
+    drain_outlet_temperature,
+    effectiveness_ttd,
+    feedwater_duty,
+    heater_balance_residual,
+    heater_shell_pressure,
+    steam_release,
+)
+from partload.physics.performance import (
+    condenser_duty,
+    energy_imbalance,
+    heat_added,
+    heat_chargeable_to_power,
+    heat_rate,
+    makeup_flow,
+    net_process_steam_energy,
+    steam_rate,
+)
 from partload.physics.pressure_drop import scaled_pressure_drop
+from partload.physics.pump import pump_enthalpy_rise
+from partload.steam.if97 import get_backend
 from scipy.optimize import brentq
 
 
@@ -72,9 +99,21 @@ def test_unknown_correction_lists_valid_names():
 
 
 def test_baumann_rule():
-    # Baumann (1921): 1 % mean moisture costs 1 % of efficiency with alpha = 1
-    assert baumann_factor(0.08, 1.0) == pytest.approx(0.92)
-    assert baumann_factor(0.08, 0.5) == pytest.approx(0.96)
+    # Baumann (1921): 1 % mean moisture costs 1 % of efficiency with alpha = 1;
+    # hand calculation: inlet 4 %, outlet 12 % -> mean 8 % -> 0.92 (alpha 1), 0.96 (0.5)
+    assert baumann_factor(0.04, 0.12, 1.0) == pytest.approx(0.92)
+    assert baumann_factor(0.04, 0.12, 0.5) == pytest.approx(0.96)
+    # a dry outlet: the mean is half the inlet moisture, 1 - 0.06 / 2
+    assert baumann_factor(0.06) == pytest.approx(0.97)
+    assert baumann_factor(0.0, 0.0, 2.0) == 1.0
+
+
+def test_dry_expansion_end_with_wet_inlet():
+    # hand calculation: h = 2700 - 0.9 * 300 * (1 - 1.0 * 0.04 / 2) kJ/kg = 2435.4 kJ/kg
+    assert dry_expansion_end(2.7e6, 3e5, 0.9, 0.04, 1.0) == pytest.approx(2.4354e6, rel=1e-12)
+    # the general end point agrees with it when the end is dry (h_vap below it)
+    assert expansion_end(2.7e6, 3e5, 0.9, 0.04, 2e5, 2.4e6) == dry_expansion_end(
+        2.7e6, 3e5, 0.9, 0.04)
 
 
 @pytest.mark.parametrize("h_in, y_in", [(2.75e6, 0.0), (2.60e6, 0.03)])
@@ -133,3 +172,158 @@ def test_effectiveness_round_trip():
 def test_pump_rise_hand_value():
     # v dp / eta: 0.00101 m^3/kg * 18 MPa / 0.8 = 22.725 kJ/kg (hand calculation)
     assert pump_enthalpy_rise(0.00101, 0.0, 18e6, 0.8) == pytest.approx(22725.0)
+
+
+def test_one_pump_law():
+    # the heater module re-exports the pump law; it is the same function, not a copy
+    from partload.physics import heater
+
+    assert heater.pump_enthalpy_rise is pump_enthalpy_rise
+
+
+def test_drain_outlet_temperature_hand_values():
+    # hand calculation: feedwater in at 400 K plus a DCA of 5.6 K; without a drain
+    # cooler the drain is saturated; an approach beyond saturation is held there
+    assert drain_outlet_temperature(450.0, 400.0, 5.6) == pytest.approx(405.6)
+    assert drain_outlet_temperature(450.0, 400.0, None) == 450.0
+    assert drain_outlet_temperature(450.0, 400.0, 60.0) == 450.0
+
+
+@pytest.mark.parametrize("backend", ["seuif97", "iapws"])
+def test_drain_and_deaerator_outlet_enthalpy(backend):
+    steam = get_backend(backend)
+    # subcooled drain at 3 MPa, 495 K + DCA 5 K = 500 K (T_sat(3 MPa) = 507.0 K):
+    # IAPWS R7-97(2012) Table 5, region 1, T = 500 K, p = 3 MPa: h = 975.542239 kJ/kg
+    T_sat = steam.T_sat(3e6)
+    assert drain_outlet_enthalpy(steam, 3e6, T_sat, 495.0, 5.0) == pytest.approx(
+        975.542239e3, rel=1e-8)
+    # no drain cooler: saturated liquid at 3 MPa, 1008.37 kJ/kg (IF97 saturation
+    # table, from memory)
+    assert drain_outlet_enthalpy(steam, 3e6, T_sat, 495.0, None) == pytest.approx(
+        1008.37e3, rel=1e-5)
+    # deaerator at 1 MPa: saturated liquid, 762.68 kJ/kg (IF97 saturation table,
+    # from memory)
+    assert deaerator_outlet_enthalpy(steam, 1e6) == pytest.approx(762.68e3, rel=1e-5)
+
+
+def test_closed_heater_balance_hand_values():
+    # hand calculation: bleed 10 kg/s at 3000 kJ/kg and drains of 5 kg/s at 900 kJ/kg
+    # from the heater above, all leaving at the drain enthalpy 800 kJ/kg:
+    # 10 * 2200 + 5 * 100 = 22 500 kW
+    q = steam_release(10.0, 3.0e6, 8.0e5, [5.0], [9.0e5])
+    assert q == pytest.approx(22.5e6)
+    assert steam_release(10.0, 3.0e6, 8.0e5) == pytest.approx(22.0e6)
+    # feedwater 250 kg/s from 700 to 790.2 kJ/kg takes up 22 550 kW
+    duty = feedwater_duty(250.0, 7.0e5, 7.902e5)
+    assert duty == pytest.approx(22.55e6)
+    # closure 22.55 / 22.5 closes it; closure 1 leaves -50 kW, over a 25 MW scale -0.002
+    assert heater_balance_residual(q, duty, 22.55 / 22.5, 25e6) == pytest.approx(0.0, abs=1e-15)
+    assert heater_balance_residual(q, duty, 1.0, 25e6) == pytest.approx(-0.002)
+
+
+def test_deaerator_balance_is_mixing():
+    # identity: with the drain enthalpy equal to the saturated outlet, the heater
+    # balance is the adiabatic mixing of water, bleed and drains (hand-picked numbers)
+    m_w, h_w, h_b, m_d, h_d, h_out = 200.0, 5.5e5, 2.9e6, 30.0, 8.0e5, 7.0e5
+    # bleed that makes the mixture leave at h_out:
+    m_b = (m_w * (h_out - h_w) - m_d * (h_d - h_out)) / (h_b - h_out)
+    mixed = mixed_enthalpy([m_w, m_b, m_d], [h_w, h_b, h_d])
+    assert mixed == pytest.approx(h_out, rel=1e-12)
+    q = steam_release(m_b, h_b, h_out, [m_d], [h_d])
+    assert heater_balance_residual(q, feedwater_duty(m_w, h_w, h_out)) == pytest.approx(
+        0.0, abs=1e-9)
+
+
+def test_mixing_and_pumped_drain_hand_values():
+    # hand calculation: 100 kg/s at 1000 kJ/kg with 10 kg/s at 800 kJ/kg: 10800/11 kJ/kg
+    assert mixed_enthalpy((100.0, 10.0), (1.0e6, 8.0e5)) == pytest.approx(1.08e7 / 11)
+    with pytest.raises(ValueError):
+        mixed_enthalpy((0.0,), (1.0e6,))
+    # hand calculation: drain at 1 MPa, v = 0.0011 m^3/kg, lifted to 20 MPa at 75 %:
+    # 0.0011 * 19e6 / 0.75 = 27 866.67 J/kg above its 760 kJ/kg
+    assert pumped_drain_enthalpy(7.6e5, 0.0011, 1e6, 20e6, 0.75) == pytest.approx(
+        7.6e5 + 27866.6667, rel=1e-9)
+
+
+def test_boiler_pressure_drop_quadratic_in_flow():
+    # hand calculation: 20 bar at 280 kg/s; half the flow a quarter, sign kept
+    assert boiler_pressure_drop(280.0, 20e5, 280.0) == pytest.approx(20e5)
+    assert boiler_pressure_drop(140.0, 20e5, 280.0) == pytest.approx(5e5)
+    assert boiler_pressure_drop(-140.0, 20e5, 280.0) == pytest.approx(-5e5)
+
+
+def test_heat_rate_and_steam_rate_definitions():
+    # ASME PTC 6 definition (heat added / generator output): a cycle 40 % efficient
+    # has a heat rate of 3600 / 0.4 = 9000 kJ/kWh, 3412.14 / 0.4 = 8530.4 Btu/kWh
+    # (1 kWh = 3412.14 Btu, conversion factor from memory); hand calculation
+    assert heat_rate(250e6, 100e6) * 3600.0 == pytest.approx(9000.0)
+    assert heat_rate(250e6, 100e6) * 3412.14 == pytest.approx(8530.35)
+    # hand calculation: 280 kg/s from 1250 to 3400 kJ/kg plus 250 MW of reheat
+    assert heat_added(280.0, 3.4e6, 1.25e6, 250e6) == pytest.approx(852e6)
+    # hand calculation: 280 kg/s for 320 MW is 280 * 3.6e6 / 320e6 = 3.15 kg/kWh
+    assert steam_rate(280.0, 320e6) * 3.6e6 == pytest.approx(3.15)
+    assert math.isnan(heat_rate(1e6, 0.0)) and math.isnan(steam_rate(1.0, -1.0))
+
+
+def test_cycle_balances_of_a_hand_built_cycle():
+    # hand-built cycle (invented numbers): 100 kg/s raised to 3400 kJ/kg from
+    # feedwater at 200 kJ/kg; 20 kg/s leave as process steam at 2800 kJ/kg and come
+    # back as make-up at the condensate's 190 kJ/kg; 80 kg/s exhaust at 2300 kJ/kg;
+    # the pump adds 10 kJ/kg to the 100 kg/s of condensate.
+    q_in = heat_added(100.0, 3.4e6, 2.0e5)  # 320 MW
+    shaft = 100.0 * (3.4e6 - 2.8e6) + 80.0 * (2.8e6 - 2.3e6)  # 100 MW
+    m_mu = makeup_flow(100.0, 80.0, 0.0)
+    assert m_mu == pytest.approx(20.0)
+    q_c = condenser_duty(80.0 * 2.3e6, 0.0, 0.0, m_mu, 100.0, 1.9e5)
+    assert q_c == pytest.approx(184e6 + 3.8e6 - 19e6)  # 168.8 MW
+    e_proc = net_process_steam_energy(20.0 * 2.8e6, m_mu, 1.9e5)
+    assert e_proc == pytest.approx(52.2e6)
+    # first law closes: 320 + 1 - 100 - 168.8 - 0 - 52.2 = 0 MW
+    assert energy_imbalance(q_in, 1e6, shaft, q_c, 0.0, e_proc) == pytest.approx(0.0, abs=1e-3)
+    # heat chargeable to power: 320 - 52.2 = 267.8 MW; without process steam the two
+    # heat rates agree
+    assert heat_chargeable_to_power(q_in, e_proc) == pytest.approx(267.8e6)
+    assert heat_rate(heat_chargeable_to_power(q_in, 0.0), 100e6) == heat_rate(q_in, 100e6)
+    # drains cascaded to the condenser add their enthalpy: 5 kg/s at 400 kJ/kg
+    assert condenser_duty(0.0, 5.0, 4.0e5, 0.0, 5.0, 1.9e5) == pytest.approx(5.0 * 2.1e5)
+
+
+def test_point_totals_follow_the_performance_definitions(industrial_model):
+    # identity: a solved point of the demo unit with process steam reports the
+    # heat rate, heat rate chargeable to power, steam rate and first-law check as
+    # defined in physics.performance
+    from partload.plant.case import Conditions
+    from partload.solve.point import solve_point
+
+    model = industrial_model
+    r = solve_point(model, Conditions(throttle_flow=0.8 * model.throttle.flow))
+    t = r.totals
+    P = t["generator_output"]
+    assert t["heat_rate"] == pytest.approx(heat_rate(t["heat_added"], P), rel=1e-12)
+    assert t["steam_rate"] == pytest.approx(steam_rate(t["throttle_flow"], P), rel=1e-12)
+    assert t["process_steam_energy"] > 0.0
+    assert t["heat_rate_power"] == pytest.approx(
+        heat_rate(heat_chargeable_to_power(t["heat_added"], t["process_steam_energy"]), P),
+        rel=1e-12)
+    assert t["heat_rate_power"] < t["heat_rate"]
+    imbalance = energy_imbalance(t["heat_added"], t["pump_power"], t["shaft_power"],
+                                 t["condenser_duty"], t["heater_heat_loss"],
+                                 t["process_steam_energy"])
+    assert imbalance == pytest.approx(t["energy_imbalance"], abs=1.0)
+    assert abs(imbalance) < 1e-6 * t["heat_added"]
+
+
+def test_moisture_lever_rule_hand_values():
+    # hand calculation at 6.8 kPa (h' = 161.1, h'' = 2570.8 kJ/kg, IF97 from memory):
+    # h = 2330 kJ/kg is (2570.8 - 2330) / (2570.8 - 161.1) = 0.09993 moist
+    assert moisture_from_enthalpy(2.33e6, 161.1e3, 2570.8e3) == pytest.approx(
+        240.8 / 2409.7, rel=1e-12)
+    assert moisture_from_enthalpy(161.1e3, 161.1e3, 2570.8e3) == 1.0
+    assert moisture_from_enthalpy(2.6e6, 161.1e3, 2570.8e3) == 0.0
+    # a superheated state needs no liquid enthalpy
+    assert moisture_from_enthalpy(2.9e6, math.nan, 2570.8e3) == 0.0
+
+
+def test_heater_shell_pressure_hand_value():
+    # hand calculation: 3 % line drop from 20 bar leaves 19.4 bar
+    assert heater_shell_pressure(20e5, 0.03) == pytest.approx(19.4e5)

@@ -143,3 +143,32 @@ def test_combined_state_equals_separate_calls(p, h):
     assert x == pytest.approx(steam.x_ph(p, h), abs=1e-6)
     v, s2 = steam.vs_ph(p, h)
     assert v == pytest.approx(steam.v_ph(p, h), rel=1e-12) and s2 == pytest.approx(s, rel=1e-12)
+
+
+def test_enthalpy_above_every_saturated_vapour():
+    # the constant claims to lie above h''(p) at every pressure; the maximum of the
+    # saturation line (2803.3 kJ/kg near 3 MPa, steam tables from memory) must be
+    # below it, and by less than 10 kJ/kg so that it is no loose bound
+    from partload.steam.constants import H_ABOVE_SAT_VAP, P_CRIT, P_MIN
+
+    steam = get_backend("seuif97")
+    p = P_MIN
+    highest = 0.0
+    while p < P_CRIT:
+        highest = max(highest, steam.h_vap_sat(p))
+        p *= 1.002
+    assert 2.8030e6 < highest < H_ABOVE_SAT_VAP < highest + 10e3
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_critical_point_constants(backend):
+    # IAPWS R7-97(2012): T_c = 647.096 K, p_c = 22.064 MPa; the IF97 saturation line
+    # ends there.  Steam tables give T_sat(22 MPa) = 373.71 degC (from memory), a slope
+    # of about 3.7 mK/kPa, so 0.1 % (22 kPa) below p_c is about 0.08 K below T_c
+    # (hand calculation)
+    from partload.steam.constants import P_CRIT, T_CRIT
+
+    steam = get_backend(backend)
+    assert T_CRIT - 0.2 < steam.T_sat(P_CRIT * 0.999) < T_CRIT - 0.02
+    with pytest.raises(PropertyRangeError):
+        steam.T_sat(P_CRIT)

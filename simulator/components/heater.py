@@ -13,7 +13,11 @@ import math
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..physics.heater import closed_heater_outlet_temperature, effectiveness_ttd
+from ..physics.heater import (
+    closed_heater_outlet_temperature,
+    effectiveness_ttd,
+    heater_shell_pressure,
+)
 from ..units import Where
 from .base import Column, Component, ReadContext, Setting, Tunable
 
@@ -132,7 +136,7 @@ class Heater(Component):
 
     def shell_pressure(self, p_node: float) -> float:
         """Shell pressure [Pa] from extraction-node pressure [Pa] less the line drop."""
-        return p_node * (1.0 - self.line_drop)
+        return heater_shell_pressure(p_node, self.line_drop)
 
     def outlet_temperature(self, T_sat: float, T_in: float, m_water: float) -> float:
         """Feedwater outlet temperature [K] (closed heater) from the shell saturation

@@ -1,12 +1,12 @@
 """Pump: a condensate, feed or drain pump adding ``v dp / eta``
-(:func:`simulator.physics.heater.pump_enthalpy_rise`)."""
+(:func:`simulator.physics.pump.pump_enthalpy_rise`)."""
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..physics.heater import pump_enthalpy_rise
+from ..physics.pump import pump_enthalpy_rise
 from ..steam.if97 import P_MAX
 from ..units import Where
 from .base import Component, ReadContext, Tunable

@@ -14,10 +14,10 @@ from dataclasses import dataclass
 from typing import ClassVar
 
 from ..errors import InputError
-from ..physics.efficiency import CORRECTIONS, make_table_correction
+from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correction
 from ..physics.ellipse import ellipse_flow, flow_constant
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
-from ..physics.expansion import expansion_end
+from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
 from .base import H_DRY, Column, ReadContext, SteamPathComponent, Tunable
 from .reading import edge_names, ratio_list
 
@@ -129,9 +129,9 @@ class StageGroup(SteamPathComponent):
         h_elep = h_in - self.eta_design * self.dh_s_design
         h_vap = steam.h_vap_sat(p_out)
         h_liq = steam.h_liq_sat(p_out)
-        y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+        y_out = moisture_from_enthalpy(h_elep, h_liq, h_vap)
         y_in = (1.0 - steam.x_ph(p_in, h_in)) if self.alpha else 0.0
-        factor = 1.0 - self.alpha * 0.5 * (y_in + y_out)
+        factor = baumann_factor(y_in, y_out, self.alpha)
         if factor <= 0.05:
             raise InputError("Baumann's factor leaves no efficiency; check moisture_factor",
                              file=model.file, table=self.where, key="moisture_factor")
@@ -172,7 +172,7 @@ class StageGroup(SteamPathComponent):
         h_dry_end = h_in - eta_dry * dh_s
         if h_dry_end > H_DRY:  # above every saturated vapour: a dry end, no lookups
             h_vap = h_liq = math.nan
-            h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
+            h_elep = dry_expansion_end(h_in, dh_s, eta_dry, y_in, alpha)
             y_out = 0.0
         else:
             h_vap = steam.h_vap_sat(p_out)
@@ -181,8 +181,8 @@ class StageGroup(SteamPathComponent):
                 h_elep = expansion_end(h_in, dh_s, eta_dry, y_in, h_liq, h_vap, alpha)
             else:  # far above saturation: Baumann's rule with dry outlet, no liquid needed
                 h_liq = math.nan
-                h_elep = h_in - eta_dry * dh_s * (1.0 - 0.5 * alpha * y_in)
-            y_out = (h_vap - h_elep) / (h_vap - h_liq) if h_elep < h_vap else 0.0
+                h_elep = dry_expansion_end(h_in, dh_s, eta_dry, y_in, alpha)
+            y_out = moisture_from_enthalpy(h_elep, h_liq, h_vap)
         eta = (h_in - h_elep) / dh_s if dh_s else eta_dry
         if self.exhaust is None:
             return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0, h_vap, h_liq

@@ -15,7 +15,15 @@ from pathlib import Path
 from ..errors import InputError
 from ..units import Where, format_like, parse
 
-__all__ = ["load_toml", "Problems", "ProblemList", "TableReader"]
+__all__ = ["load_toml", "Problems", "ProblemList", "TableReader", "closest"]
+
+
+def closest(name: str, known) -> str:
+    """The did-you-mean hint for a misspelt ``name``: ``"; did you mean 'X'?"`` with
+    the closest of the ``known`` names (:func:`difflib.get_close_matches`, its
+    default cutoff 0.6), or ``""`` when none is close."""
+    hint = difflib.get_close_matches(name, list(known), n=1)
+    return f"; did you mean {hint[0]!r}?" if hint else ""
 
 
 def load_toml(path: str | Path) -> tuple[dict, str]:
@@ -195,8 +203,7 @@ class TableReader:
             self.problems.add(w.error(f"expected a name (text), got {value!r}"))
             return None
         if choices is not None and value not in choices:
-            hint = difflib.get_close_matches(value, list(choices), n=1)
-            extra = f"; did you mean {hint[0]!r}?" if hint else ""
+            extra = closest(value, choices)
             self.problems.add(w.error(f"{value!r} is not one of {', '.join(map(repr, choices))}"
                                       f"{extra}"))
             return None
@@ -234,7 +241,6 @@ class TableReader:
         valid = sorted(known)
         for key in self.data:
             if key not in known:
-                hint = difflib.get_close_matches(key, valid, n=1)
-                extra = f"; did you mean {hint[0]!r}?" if hint else (
+                extra = closest(key, valid) or (
                     f"; valid keys: {', '.join(valid)}" if valid else "")
                 self.problems.add(self.where.child(key).error(f"unknown key{extra}"))

@@ -92,18 +92,34 @@ def get_correction(name: str) -> Callable[[float, float], float]:
                        f"{', '.join(sorted([*CORRECTIONS, 'table']))}") from None
 
 
-def baumann_factor(y_mean: float, alpha: float = 1.0) -> float:
-    """Baumann's rule: wet efficiency over dry efficiency.
+def baumann_factor(y_in: float, y_out: float = 0.0, alpha: float = 1.0) -> float:
+    """Baumann's rule: wet efficiency over dry efficiency of an expansion.
 
-    .. math::  \\eta_{wet} = \\eta_{dry} (1 - \\alpha \\bar y)
+    .. math::  \\eta_{wet} / \\eta_{dry} = 1 - \\alpha \\bar y,
+               \\quad \\bar y = (y_{in} + y_{out}) / 2
+
+    Each percent of mean moisture costs about ``alpha`` percent of efficiency
+    (the water droplets are dragged along by the steam and brake the blades).
+    This is the one place the rule is written; every expansion, at design
+    (calibration of the dry efficiency) and off design, uses it.
 
     Parameters
     ----------
-    y_mean : mean moisture fraction of the expansion, inlet and outlet averaged [-]
-    alpha : Baumann factor [-]; 1 is Baumann's own value, measured values span
-        about 0.4-2.5 (range quoted from memory of the literature).
+    y_in : moisture fraction at the inlet of the expansion, 0 when superheated [-]
+    y_out : moisture fraction at the outlet of the expansion, 0 when superheated [-]
+    alpha : Baumann factor; 1 is Baumann's own value, measured values span
+        about 0.4-2.5 (range quoted from memory of the literature) [-]
+
+    Returns
+    -------
+    float
+        ``eta_wet / eta_dry`` [-].
+
+    Assumptions and range: the mean of inlet and outlet moisture stands for the
+    moisture along the expansion (the usual form for a stage group); a rule of
+    thumb for moisture up to about 15 % (common practice, no source).
 
     Reference: K. Baumann, "Some recent developments in large steam turbine
     practice", J. Inst. Electrical Engineers 59(302), 565-623, 1921.
     """
-    return 1.0 - alpha * y_mean
+    return 1.0 - 0.5 * alpha * (y_in + y_out)

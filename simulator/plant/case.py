@@ -13,16 +13,15 @@ Case file reference: see README.md, section "Case file".
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..components import KINDS
 from ..errors import InputError
-from ..inputs.reading import Problems, TableReader, load_toml
+from ..inputs.reading import Problems, TableReader, closest, load_toml
 from ..plant.model import Model, load_model
-from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_MAX, T_MIN, get_backend
+from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, get_backend
 from ..units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
@@ -182,7 +181,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
     if fixed and T_T is not None and (p_T is not None or "throttle_pressure"
                                                           not in op.data):
         p_held = p_T if p_T is not None else model.throttle.pressure
-        T_sat = 647.096 if p_held >= P_CRIT else get_backend().T_sat(p_held)
+        T_sat = T_CRIT if p_held >= P_CRIT else get_backend().T_sat(p_held)
         if T_T <= T_sat:
             problems.add(op.where.child("throttle_temperature").error(
                 f"{T_T - 273.15:.1f} degC is not above the saturation temperature "
@@ -244,9 +243,7 @@ def _named_tables(data: dict, key: str, known, what: str, file: str, problems: P
     for name, table in tables.items():
         w = Where(file, f"{key}.{name}")
         if name not in known:
-            hint = difflib.get_close_matches(name, list(known), n=1)
-            problems.add(w.error(f"the model has no {what} {name!r}"
-                                 + (f"; did you mean {hint[0]!r}?" if hint else "")))
+            problems.add(w.error(f"the model has no {what} {name!r}" + closest(name, known)))
             continue
         yield name, w, table
 

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-from ..steam.if97 import P_CRIT
+from ..steam.constants import P_CRIT, T_CRIT
 from ..units import Where
 
-__all__ = ["check_superheated", "T_CRIT"]
+__all__ = ["check_superheated"]
 
-T_CRIT = 647.096  # [K] critical temperature, IAPWS R7-97(2012) eq. (1) constants
 
 
 def check_superheated(problems, steam, where: Where, T: float,

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from ..physics.feedwater import boiler_pressure_drop
 from ..units import Where
 
 __all__ = ["FeedwaterTrain", "BoilerPressureDrop", "read_feedwater"]
@@ -20,8 +21,7 @@ class BoilerPressureDrop:
 
     def drop(self, m_dot: float) -> float:
         """The drop [Pa] at feedwater flow ``m_dot`` [kg/s]."""
-        r = m_dot / self.m_design
-        return self.dp_design * r * abs(r)
+        return boiler_pressure_drop(m_dot, self.dp_design, self.m_design)
 
 
 @dataclass

@@ -30,9 +30,9 @@ import numpy as np
 from ..components import KINDS, SteamPathComponent
 from ..errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
 from ..plant.case import Conditions, override
-from ..plant.checks import T_CRIT
 from ..plant.model import Model
-from ..steam.if97 import P_CRIT, SteamTables, get_backend
+from ..steam.constants import P_CRIT, T_CRIT
+from ..steam.if97 import SteamTables, get_backend
 from .equations import PointEquations, TrialPointError, equations_for
 from .newton import newton
 from .result import NODE_COLUMNS, STEAM_PATH_COLUMNS, PointResult, ResultTable

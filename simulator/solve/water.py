@@ -4,7 +4,8 @@
 service.  Given the turbine state (node pressures and enthalpies), the bleed
 flow of every heater and the feedwater flow, it marches the water from the
 condenser to the boiler and returns every heater's state and the residual of
-its energy balance.  The physics is in :mod:`simulator.physics.heater`.
+its energy balance.  The physics is in :mod:`simulator.physics.heater`,
+:mod:`simulator.physics.feedwater` and :mod:`simulator.physics.pump`.
 
 Flows are found first (drains cascade from high to low pressure; the
 condensate flow follows from the feedwater flow less what enters at the
@@ -19,6 +20,15 @@ from dataclasses import dataclass
 import networkx as nx
 
 from ..errors import InputError
+from ..physics.feedwater import mixed_enthalpy, pumped_drain_enthalpy
+from ..physics.heater import (
+    deaerator_outlet_enthalpy,
+    drain_outlet_enthalpy,
+    feedwater_duty,
+    heater_balance_residual,
+    steam_release,
+)
+from ..steam.constants import P_CRIT
 
 __all__ = ["FeedwaterMarch", "HeaterState", "design_feedwater_states"]
 
@@ -211,9 +221,9 @@ class FeedwaterMarch:
             h_in[k] = h_w
             p_win[k] = p_w
             if kind == 2:
-                ho = steam.h_liq_sat(ps)
+                ho = deaerator_outlet_enthalpy(steam, ps)
                 h_out[k] = h_drain[k] = ho
-                duty[k] = mw * (ho - h_w)
+                duty[k] = feedwater_duty(mw, h_w, ho)
                 h_w, p_w = ho, ps
                 T_w = None
                 sat_w = True
@@ -222,45 +232,43 @@ class FeedwaterMarch:
             ti = steam.T_ph(p_w, h_w) if T_w is None else T_w
             to = obj.outlet_temperature(ts, ti, mw)
             ho = steam.h_pT(p_w, to)
-            if obj.dca is not None and ti + obj.dca < ts:
-                hd = steam.h_pT(ps, ti + obj.dca)
-            else:
-                hd = steam.h_liq_sat(ps)
+            hd = drain_outlet_enthalpy(steam, ps, ts, ti, obj.dca)
             T_sat[k], T_in[k], T_out[k] = ts, ti, to
             h_drain[k] = hd
             h_out[k] = ho
-            duty[k] = mw * (ho - h_w)
+            duty[k] = feedwater_duty(mw, h_w, ho)
             h_w = ho
             T_w = to
             sat_w = False
             if self._forward[k]:
                 md = drain_out[k]
-                h_dp = hd + steam.v_liq_sat(ps) * (p_w - ps) / obj.drain_pump_efficiency
+                h_dp = pumped_drain_enthalpy(hd, steam.v_liq_sat(ps), ps, p_w,
+                                             obj.drain_pump_efficiency)
                 pump_power += md * (h_dp - hd)
-                h_w = (mw * ho + md * h_dp) / (mw + md)
+                h_w = mixed_enthalpy((mw, md), (ho, h_dp))
                 T_w = None
         residuals = [0.0] * n
         release = [0.0] * n
         ext = self._ext_node
         into = self._into
         for k, ht in enumerate(self._active_heaters):
-            ref = h_drain[k]
-            q = bleed[k] * (h_node[ext[k]] - ref)
-            for j in into[k]:
-                q += drain_out[j] * (h_drain[j] - ref)
+            js = into[k]
+            q = (steam_release(bleed[k], h_node[ext[k]], h_drain[k],
+                               [drain_out[j] for j in js], [h_drain[j] for j in js]) if js
+                 else steam_release(bleed[k], h_node[ext[k]], h_drain[k]))
             release[k] = q
-            residuals[k] = (ht.closure * q - duty[k]) / ht.duty_design
+            residuals[k] = heater_balance_residual(q, duty[k], ht.closure, ht.duty_design)
         m_dc = 0.0
-        e_dc = 0.0
         for j in self._to_cond:
             m_dc += drain_out[j]
-            e_dc += drain_out[j] * h_drain[j]
         summary = {
             "h_feedwater": h_w,
             "p_feedwater": p_w,
             "m_condensate": m_condensate,
             "drains_to_condenser": m_dc,
-            "h_drains_to_condenser": e_dc / m_dc if m_dc else 0.0,
+            "h_drains_to_condenser": (mixed_enthalpy([drain_out[j] for j in self._to_cond],
+                                                     [h_drain[j] for j in self._to_cond])
+                                      if m_dc else 0.0),
             "h_condensate": h_c,
             "pump_power": pump_power,
         }
@@ -310,7 +318,7 @@ class FeedwaterMarch:
                             f"water reaches deaerator {name!r} at {p_win[k] / 1e5:.4g} bar, below "
                             f"its {p_sh[k] / 1e5:.4g} bar: the pump before it"
                             f"{f' ({last_pump!r})' if last_pump else ''} cannot feed it"))
-            elif kind == 1 and p_win[k] < 22.064e6 and T_out[k] >= steam.T_sat(p_win[k]):
+            elif kind == 1 and p_win[k] < P_CRIT and T_out[k] >= steam.T_sat(p_win[k]):
                 out.append((last_pump or name,
                             f"feedwater would boil in heater {name!r}: {T_out[k] - 273.15:.1f} "
                             f"degC at {p_win[k] / 1e5:.4g} bar; the pump before it"

@@ -35,17 +35,15 @@ from __future__ import annotations
 import math
 
 from ..errors import InputError, PropertyRangeError
+from .constants import H_ABOVE_SAT_VAP, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN
 
-__all__ = ["SteamTables", "get_backend", "BACKENDS", "P_MAX", "T_MIN", "T_MAX"]
+__all__ = ["SteamTables", "get_backend", "BACKENDS", "P_MIN", "P_MAX", "T_MIN", "T_MAX",
+           "P_CRIT", "T_CRIT"]
 
-P_MAX = 100e6  # [Pa] upper pressure limit of IAPWS-IF97
-P_MIN = 611.2127  # [Pa] triple-point pressure; below it no liquid water exists
-T_MIN = 273.15  # [K]
-T_MAX = 1073.15  # [K] region 1-3 upper limit (region 5 is not used by turbines here)
-P_CRIT = 22.064e6  # [Pa] critical pressure, IAPWS R7-97(2012) eq. (1) constants
-# [kJ/kg] largest saturated-vapour enthalpy (2803.3 kJ/kg near 3 MPa, IF97 region 4
-# with region 2; rounded up): any state above it is superheated vapour
-H_VAP_MAX = 2804.0
+# seuif97 works in MPa and kJ/kg: the critical pressure and the enthalpy above every
+# saturated vapour (see :mod:`simulator.steam.constants`) in those units
+_P_CRIT_MPA = P_CRIT * 1e-6
+_H_VAP_MAX_KJ = H_ABOVE_SAT_VAP * 1e-3
 
 
 def _range_error(what: str, **state) -> PropertyRangeError:
@@ -132,7 +130,7 @@ class Seuif97Tables(SteamTables):
         """
         if not (P_MIN <= p * 1e6 <= P_MAX):
             raise _range_error("a (p, h) state", p=p * 1e6, h=h * 1e3)
-        if h > H_VAP_MAX:  # above every saturated-vapour enthalpy: superheated
+        if h > _H_VAP_MAX_KJ:  # above every saturated-vapour enthalpy: superheated
             x = 1.0
         else:
             x = self._ph(p, h, 15)
@@ -149,7 +147,7 @@ class Seuif97Tables(SteamTables):
             # the phase from the saturation enthalpies; a single-phase state steps
             # from just inside its phase and stays inside it.
             px = self._px
-            if p < 22.064:
+            if p < _P_CRIT_MPA:
                 h_f, h_g = px(p, 0.0, 4), px(p, 1.0, 4)
                 if h_f <= h <= h_g:
                     return 2, (h - h_f) / (h_g - h_f)
@@ -159,7 +157,7 @@ class Seuif97Tables(SteamTables):
             t1 = t0 + (h - pt(p, t0, 4)) / pt(p, t0, 8)
             return 0, (min(t1, t0) if x <= 0.0 else max(t1, t0))
         t1 = t0 + (h - h0) / pt(p, t0, 8)
-        if p < 22.064 and (t1 < t0 if x >= 1.0 else t1 > t0):
+        if p < _P_CRIT_MPA and (t1 < t0 if x >= 1.0 else t1 > t0):
             # stepping toward saturation: stay at least 1e-6 K inside the phase, where
             # seuif97's choice of region is certain
             t_sat = self._px(p, 0.0, 1)
@@ -219,7 +217,7 @@ class Seuif97Tables(SteamTables):
         kind, t = self._T_ph(P, H)
         if kind == 0:
             # single phase: liquid at or below the saturated-liquid enthalpy
-            x = 0.0 if P < 22.064 and H <= self._px(P, 0.0, 4) else 1.0
+            x = 0.0 if P < _P_CRIT_MPA and H <= self._px(P, 0.0, 4) else 1.0
             return t + 273.15, self._pt(P, t, 5) * 1e3, x
         if kind == 2:
             return self._px(P, 0.0, 1) + 273.15, self._mix(P, t, 5) * 1e3, t
@@ -246,7 +244,7 @@ class Seuif97Tables(SteamTables):
                     raise _range_error("h(p, s)", p=p, s=s)
                 pt = self._pt
                 s0 = pt(P, t0, 5)
-                near = abs(S - s0) > 0.1 and P < 22.064
+                near = abs(S - s0) > 0.1 and P < _P_CRIT_MPA
                 r = None
                 if near:
                     # backward temperature on the other side of saturation (see _T_ph):
@@ -265,7 +263,7 @@ class Seuif97Tables(SteamTables):
                     t1 = t0 + (S - s0) * (t0 + 273.15) / pt(P, t0, 8)
                     if near:
                         t1 = min(t1, t0) if x <= 0.0 else max(t1, t0)
-                    elif P < 22.064 and (t1 < t0 if x >= 1.0 else t1 > t0):
+                    elif P < _P_CRIT_MPA and (t1 < t0 if x >= 1.0 else t1 > t0):
                         # stepping toward saturation: stay inside the phase (see _T_ph)
                         t_sat = self._px(P, 0.0, 1)
                         t1 = (max(t1, t_sat + 1e-6) if x >= 1.0

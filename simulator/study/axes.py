@@ -15,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from ..inputs.reading import closest
 from ..plant.case import Case, read_conditions
 from ..plant.model import Model
 from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN
@@ -119,11 +120,8 @@ class Axis:
 def axis_kind(key: str, where: Where) -> AxisKind:
     base = key.split(".", 1)[0]
     if base not in AXES or (base == "extraction_flow") != ("." in key):
-        import difflib
-
         valid = [k for k in AXES if k != "extraction_flow"] + ["extraction_flow.NAME"]
-        hint = difflib.get_close_matches(key, valid, n=1)
-        mean = f"; did you mean {hint[0]!r}?" if hint else ""
+        mean = closest(key, valid)
         raise where.child(key).error(
             f"not an input that can be varied{mean} (valid: {', '.join(valid)})")
     return AXES[base]
@@ -181,12 +179,8 @@ def switch_names(kind_key: str, value, w: Where, model: Model) -> tuple[str, ...
     what = "heater" if kind_key == "heater_out" else "extraction"
     for name in items:
         if name not in known:
-            import difflib
-
-            hint = difflib.get_close_matches(name, list(known), n=1)
             raise w.error(f"the model has no {what} {name!r}"
-                          + (f"; did you mean {hint[0]!r}?" if hint else
-                             f"; valid: {', '.join(known)}"))
+                          + (closest(name, known) or f"; valid: {', '.join(known)}"))
     return tuple(sorted(set(items)))
 
 
@@ -308,11 +302,8 @@ def read_sweep(case: Case) -> list[Axis]:
 
 def check_extraction_flow(model: Model, name: str, w: Where) -> None:
     if name not in model.extractions:
-        import difflib
-
-        hint = difflib.get_close_matches(name, list(model.extractions), n=1)
         raise w.child(name).error(f"the model has no extraction {name!r}"
-                                  + (f"; did you mean {hint[0]!r}?" if hint else ""))
+                                  + closest(name, model.extractions))
     if model.extractions[name].heater:
         raise w.child(name).error(
             f"extraction {name!r} feeds heater {model.extractions[name].heater!r}, which sets "
