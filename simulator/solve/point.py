@@ -29,6 +29,7 @@ import numpy as np
 
 from ..components import KINDS, SteamPathComponent
 from ..errors import ConvergenceError, InfeasibleError, PropertyRangeError, SolveError
+from ..physics import performance as perf
 from ..plant.case import Conditions, override
 from ..plant.model import Model
 from ..steam.constants import P_CRIT, T_CRIT
@@ -415,7 +416,7 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
         "shaft_power": st["shaft"],
         "generator_output": P_gen,
         "generator_and_mechanical_losses": st["shaft"] - P_gen,
-        "steam_rate": m_T / P_gen if P_gen > 0 else math.nan,
+        "steam_rate": perf.steam_rate(m_T, P_gen),
         "exhaust_loss_power": exhaust_loss_power,
         "exhaust_moisture": max(exh_y) if exh_y else 0.0,
         "exhaust_flow": sum(st["M"][eq.idx[n]] for n in model.exhaust_nodes),
@@ -430,31 +431,29 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
     heaters = list(fw["heaters"].values())
     h_T = h[src]
     ex = tables["extractions"].columns if "extractions" in tables else {"flow": [], "enthalpy": []}
-    boiler = m_T * (h_T - fw["h_feedwater"]) + reheat
+    boiler = perf.heat_added(m_T, h_T, fw["h_feedwater"], reheat)
     totals["final_feedwater_temperature"] = fw["T_feedwater"]
     totals["heat_added"] = boiler
-    totals["heat_rate"] = boiler / P_gen if P_gen > 0 else math.nan
+    totals["heat_rate"] = perf.heat_rate(boiler, P_gen)
     totals["pump_power"] = fw["pump_power"]
     # condenser: exhaust steam + drains + makeup in, condensate out
     exhaust_energy = sum(st["M"][eq.idx[n]] * h[eq.idx[n]] for n in model.exhaust_nodes)
     m_ex = totals["exhaust_flow"]
-    makeup = fw["m_condensate"] - m_ex - fw["drains_to_condenser"]
+    makeup = perf.makeup_flow(fw["m_condensate"], m_ex, fw["drains_to_condenser"])
     totals["makeup_flow"] = makeup
     h_c = fw["h_condensate"]
-    totals["condenser_duty"] = (exhaust_energy + fw["drains_to_condenser"]
-                                * fw["h_drains_to_condenser"] + makeup * h_c
-                                - fw["m_condensate"] * h_c)
+    totals["condenser_duty"] = perf.condenser_duty(
+        exhaust_energy, fw["drains_to_condenser"], fw["h_drains_to_condenser"], makeup,
+        fw["m_condensate"], h_c)
     heater_loss = sum(hs.steam_release - hs.duty for hs in heaters if hs.in_service)
     totals["heater_heat_loss"] = heater_loss
     process = sum(f * hh for f, hh, b in zip(ex["flow"], ex["enthalpy"], eq.bleeds)
                   if b[2] != 2)
-    totals["process_steam_energy"] = process - makeup * h_c
-    # heat chargeable to power: the heat added less the net enthalpy that leaves
-    # with process steam (returned as make-up at condensate enthalpy); equal to
-    # heat_rate for a unit without process steam
-    totals["heat_rate_power"] = ((boiler - totals["process_steam_energy"]) / P_gen
-                                 if P_gen > 0 else math.nan)
-    totals["energy_imbalance"] = (boiler + fw["pump_power"] - st["shaft"]
-                                  - totals["condenser_duty"] - heater_loss
-                                  - totals["process_steam_energy"])
+    totals["process_steam_energy"] = perf.net_process_steam_energy(process, makeup, h_c)
+    # equal to heat_rate for a unit without process steam
+    totals["heat_rate_power"] = perf.heat_rate(
+        perf.heat_chargeable_to_power(boiler, totals["process_steam_energy"]), P_gen)
+    totals["energy_imbalance"] = perf.energy_imbalance(
+        boiler, fw["pump_power"], st["shaft"], totals["condenser_duty"], heater_loss,
+        totals["process_steam_energy"])
     return totals
