@@ -27,8 +27,6 @@ from __future__ import annotations
 
 import importlib
 
-__version__ = "0.1.0"
-
 from .errors import (  # noqa: E402
     ConvergenceError,
     InfeasibleError,
@@ -39,6 +37,7 @@ from .errors import (  # noqa: E402
     SolveError,
     TopologyError,
 )
+from .version import __version__  # noqa: E402
 
 # public name -> module that holds it (imported on first access, PEP 562)
 _LAZY = {

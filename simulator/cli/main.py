@@ -15,8 +15,8 @@ import os
 import sys
 import traceback
 
-from .. import __version__
 from ..errors import InputError, PartloadError, ResultFileError, SolveError
+from ..version import __version__
 
 __all__ = ["main"]
 

@@ -4,7 +4,7 @@ The laws are in :mod:`simulator.physics.heater`: shell pressure from the
 extraction pressure less the line drop, feedwater outlet at saturation less
 the TTD (constant, or from the condensing zone's design UA), drain outlet at
 the feedwater inlet plus the DCA or saturated.  The water-side march that
-balances every heater is :mod:`simulator.solve.water`.
+balances every heater is :mod:`simulator.plant.water_side`.
 """
 
 from __future__ import annotations

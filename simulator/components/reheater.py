@@ -14,6 +14,7 @@ from ..physics.pressure_drop import scaled_pressure_drop
 from ..steam.if97 import T_MAX, T_MIN
 from ..units import Where
 from .base import Column, ReadContext, SteamPathComponent
+from .checks import check_superheated
 from .reading import edge_names
 
 __all__ = ["Reheater"]
@@ -56,8 +57,6 @@ class Reheater(SteamPathComponent):
         return cls(name, a, b, T_out)
 
     def check_design(self, ctx: ReadContext) -> None:
-        from ..plant.checks import check_superheated
-
         p = (ctx.design_pressure or {}).get(self.outlet)
         if p is not None:
             check_superheated(ctx.problems, ctx.steam,

@@ -8,7 +8,7 @@ from collections import defaultdict
 
 from ..errors import InputError, PartloadError
 from ..physics.heater import design_ua
-from ..solve.water import design_feedwater_states  # moved below plant after merge
+from .water_side import design_feedwater_states
 
 __all__ = ["calibrate", "calibrate_heaters", "check_design_annulus"]
 

@@ -42,12 +42,12 @@ from ..components import (
     SteamPathComponent,
     ThrottleValve,
 )
+from ..components.checks import check_superheated
 from ..errors import InputError
 from ..inputs.reading import Problems, TableReader, load_toml
 from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
 from ..units import Where, parse
 from .calibrate import calibrate
-from .checks import check_superheated
 from .feedwater_train import FeedwaterTrain, read_feedwater
 from .limits import Limits, default_limits, read_limits
 from .topology import build_graph

@@ -31,8 +31,8 @@ import numpy as np
 from ..errors import SolveError
 from ..plant.case import Conditions
 from ..plant.model import Model
+from ..plant.water_side import FeedwaterMarch
 from ..steam.if97 import SteamTables
-from .water import FeedwaterMarch
 
 __all__ = ["PointEquations", "equations_for", "TrialPointError"]
 

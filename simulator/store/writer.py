@@ -15,13 +15,12 @@ from __future__ import annotations
 import datetime as _dt
 import os
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 import h5py
 import numpy as np
 
-from .. import __version__
 from ..errors import ResultFileError
+from ..version import __version__
 from .format import (
     FORMAT,
     FORMAT_VERSION,
@@ -32,9 +31,11 @@ from .format import (
     is_hdf5,
     open_hdf5,
 )
+from .layout import ResultLayout
 
-if TYPE_CHECKING:  # pragma: no cover
-    from ..study import ChunkResult, ResultLayout, StudyPlan
+# The plan (``partload.study.StudyPlan``) and the finished chunks
+# (``partload.study.ChunkResult``) a study hands over are used by their
+# attributes only: the store sits below the study and never imports it.
 
 __all__ = ["StudyFile", "check_target"]
 
@@ -142,7 +143,7 @@ class StudyFile:
 
     # ---------------------------------------------------------------- create
     @classmethod
-    def create(cls, path: str | Path, plan: StudyPlan, layout: ResultLayout,
+    def create(cls, path: str | Path, plan, layout: ResultLayout,
                check_limits: bool = True) -> StudyFile:
         """Write the file's whole structure, then move it to ``path``.
 
@@ -167,7 +168,7 @@ class StudyFile:
 
     # ---------------------------------------------------------------- resume
     @classmethod
-    def resume(cls, path: str | Path, plan: StudyPlan, layout: ResultLayout,
+    def resume(cls, path: str | Path, plan, layout: ResultLayout,
                check_limits: bool = True) -> StudyFile:
         """Open an earlier result of the same study to finish it.
 
@@ -206,12 +207,12 @@ class StudyFile:
         """Finished flag of every point (bool)."""
         return self._done[:].astype(bool)
 
-    def done_chunks(self, plan: StudyPlan) -> set[int]:
+    def done_chunks(self, plan) -> set[int]:
         """Indices of the chunks of ``plan`` whose points are all done."""
         d = self.done
         return {c.index for c in plan.chunks if d[c.start:c.stop].all()}
 
-    def write(self, res: ChunkResult) -> None:
+    def write(self, res) -> None:
         """Store a finished chunk: results first, flushed, then its done flags, flushed."""
         a, b = res.start, res.stop
         try:
@@ -239,7 +240,7 @@ class StudyFile:
         self.close()
 
 
-def _write_structure(f: h5py.File, plan: StudyPlan, layout: ResultLayout) -> None:
+def _write_structure(f: h5py.File, plan, layout: ResultLayout) -> None:
     case = plan.case
     model = case.model
     n = plan.n_points
@@ -329,7 +330,7 @@ def _write_structure(f: h5py.File, plan: StudyPlan, layout: ResultLayout) -> Non
     f.visititems(dimensionless)
 
 
-def _check_same_study(f: h5py.File, path: Path, plan: StudyPlan) -> None:
+def _check_same_study(f: h5py.File, path: Path, plan) -> None:
     a = f.attrs
     model = plan.case.model
 

@@ -133,7 +133,7 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
 
 
 def _software_version() -> str:
-    from .. import __version__
+    from ..version import __version__
 
     return __version__
 
@@ -152,7 +152,7 @@ def _run_dask(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], address: str,
                          key="--scheduler") from None
     futures = []
     try:
-        from .. import __version__
+        from ..version import __version__
 
         versions = client.run(_software_version)
         other = {w: v for w, v in versions.items() if v != __version__}
