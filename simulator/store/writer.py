@@ -31,11 +31,11 @@ from .format import (
     is_hdf5,
     open_hdf5,
 )
-from .layout import ResultLayout
 
-# The plan (``partload.study.StudyPlan``) and the finished chunks
-# (``partload.study.ChunkResult``) a study hands over are used by their
-# attributes only: the store sits below the study and never imports it.
+# The plan (``partload.study.StudyPlan``), the finished chunks
+# (``partload.study.ChunkResult``) and the layout (:mod:`.layout`) a study hands
+# over are used by their attributes only: the store sits below the study and
+# never imports it, and reading results never loads the layout's declarations.
 
 __all__ = ["StudyFile", "check_target"]
 
@@ -134,7 +134,7 @@ class StudyFile:
     then :meth:`write` each finished chunk and :meth:`close`.
     """
 
-    def __init__(self, path: Path, f: h5py.File, layout: ResultLayout):
+    def __init__(self, path: Path, f: h5py.File, layout):
         self.path = path
         self.f = f
         self.layout = layout
@@ -143,7 +143,7 @@ class StudyFile:
 
     # ---------------------------------------------------------------- create
     @classmethod
-    def create(cls, path: str | Path, plan, layout: ResultLayout,
+    def create(cls, path: str | Path, plan, layout,
                check_limits: bool = True) -> StudyFile:
         """Write the file's whole structure, then move it to ``path``.
 
@@ -168,7 +168,7 @@ class StudyFile:
 
     # ---------------------------------------------------------------- resume
     @classmethod
-    def resume(cls, path: str | Path, plan, layout: ResultLayout,
+    def resume(cls, path: str | Path, plan, layout,
                check_limits: bool = True) -> StudyFile:
         """Open an earlier result of the same study to finish it.
 
@@ -240,7 +240,7 @@ class StudyFile:
         self.close()
 
 
-def _write_structure(f: h5py.File, plan, layout: ResultLayout) -> None:
+def _write_structure(f: h5py.File, plan, layout) -> None:
     case = plan.case
     model = case.model
     n = plan.n_points
