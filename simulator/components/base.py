@@ -196,7 +196,13 @@ class Component:
     def apply_settings(self, values: dict, where, target) -> None:
         """Put a case's settings of this component (``values``: setting name -> SI
         value, absent ones left out) into ``target`` (a
-        :class:`simulator.plant.case.SettingsTarget`); problems name ``where``."""
+        :class:`simulator.plant.case.SettingsTarget`); problems name ``where``.
+
+        By default every value is kept as a generic setting, which the kind reads
+        back with ``march.setting(self, name, default)`` when it evaluates."""
+        for key, value in values.items():
+            if value is not None:
+                target.settings.append((self.settings_table, self.name, key, value))
 
     def point_row(self, point) -> tuple:
         """Values of :attr:`columns` at a solved point (kinds off the steam path);

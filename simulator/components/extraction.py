@@ -69,14 +69,17 @@ class Extraction(Component):
         return (flow, point.pressure(self.node), point.enthalpy(self.node), control)
 
     def apply_settings(self, values, where, target) -> None:
-        control = values.get("control")
+        # a flow or a fraction given without a control word says which control it is
+        implied = [k for k in ("flow", "fraction") if k in values]
+        control = values.get("control", implied[0] if len(implied) == 1 else None)
         for key in ("flow", "fraction"):
             if key in values and control != key:
                 target.problems.add(where.child(key).error(
                     f"applies with control = {key!r} only"))
         if control is None:
             if "control" not in values:
-                target.problems.add(where.child("control").error("missing required key"))
+                target.problems.add(where.child("control").error(
+                    "missing required key (or give one of flow and fraction)"))
             return
         if control == "heater" and not self.heater:
             target.problems.add(where.child("control").error("this extraction feeds no heater"))

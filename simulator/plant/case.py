@@ -24,7 +24,8 @@ from ..plant.model import Model, load_model
 from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, get_backend
 from ..units import Where
 
-__all__ = ["Conditions", "Case", "load_case", "read_conditions", "override",
+__all__ = ["Conditions", "Case", "load_case", "read_conditions", "override", "apply_setting",
+           "SettingsTarget",
            "VALVE_MODES", "PRESSURE_MODES", "OPERATION_KEYS"]
 
 # how the throttle valves pass the steam: "throttle" (all of it through one set of
@@ -66,6 +67,9 @@ class Conditions:
     heaters_out: frozenset = frozenset()
     label: str = ""
     held_pressures: tuple = ()  # (control valve name, held inlet pressure [Pa])
+    # every other component setting of the case: (settings table, component name,
+    # setting, SI value), read by the component's kind when it evaluates
+    settings: tuple = ()
 
     @property
     def governing(self) -> str:
@@ -217,7 +221,28 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
                       throttle_pressure=p_T, throttle_temperature=T_T, reheat_temperature=T_rh,
                       exhaust_pressure=p_x, extraction_control=tuple(sorted(controls)),
                       heaters_out=frozenset(target.heaters_out),
-                      held_pressures=tuple(sorted(target.held_pressures)))
+                      held_pressures=tuple(sorted(target.held_pressures)),
+                      settings=target.settings_tuple())
+
+
+def apply_setting(cond: Conditions, model: Model, key: str, value) -> Conditions:
+    """``cond`` with one component setting changed: ``key`` is ``TABLE.NAME.SETTING``
+    as a case file writes it in ``[TABLE.NAME]``, ``value`` in SI units.  The
+    component's kind applies it (:meth:`simulator.components.Component.apply_settings`),
+    so any declared setting can be varied in a study."""
+    parts = key.split(".")
+    table, name, setting = parts[0], ".".join(parts[1:-1]), parts[-1]
+    kind = next(k for k in KINDS.values() if k.settings_table == table)
+    comp = next(c for c in model.of_kind(kind) if c.name == name)
+    target = SettingsTarget(Problems(), list(cond.extraction_control), set(cond.heaters_out),
+                            list(cond.held_pressures), list(cond.settings))
+    comp.apply_settings({setting: value}, Where(None, f"{table}.{name}"), target)
+    target.problems.raise_if_any()
+    return dataclasses.replace(
+        cond, extraction_control=tuple(sorted(dict(target.extraction_control).items())),
+        heaters_out=frozenset(target.heaters_out),
+        held_pressures=tuple(sorted(dict(target.held_pressures).items())),
+        settings=target.settings_tuple())
 
 
 @dataclass
@@ -231,6 +256,12 @@ class SettingsTarget:
     extraction_control: list = field(default_factory=list)
     heaters_out: set = field(default_factory=set)
     held_pressures: list = field(default_factory=list)
+    settings: list = field(default_factory=list)
+
+    def settings_tuple(self) -> tuple:
+        """The generic settings, the last given of each (table, name, setting) kept."""
+        last = {(t, n, s): v for t, n, s, v in self.settings}
+        return tuple(sorted((t, n, s, v) for (t, n, s), v in last.items()))
 
 
 def _named_tables(data: dict, key: str, known, what: str, file: str, problems: Problems):

@@ -161,7 +161,13 @@ class PointEquations:
         self.p_fix = p_fix
         self.T_throttle = (cond.throttle_temperature if cond.throttle_temperature is not None
                            else model.throttle.temperature)
+        self.settings = {(name, key): value for _t, name, key, value in cond.settings}
         self.T_reheat = cond.reheat_temperature
+
+    def setting(self, component, key: str, default):
+        """A component's case setting ``key`` (SI), or ``default`` when the case
+        leaves it unset (what a kind reads while it evaluates)."""
+        return self.settings.get((component.name, key), default)
 
     # ------------------------------------------------------------------ guesses
     def flow_ratio(self) -> float:

@@ -14,12 +14,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..components import KINDS
 from ..errors import InputError
 from ..inputs.reading import closest
 from ..plant.case import Case, read_conditions
 from ..plant.model import Model
 from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN
-from ..units import Where, parse
+from ..units import DIMENSIONS, Where, parse
 
 __all__ = [
     "AXES",
@@ -28,6 +29,7 @@ __all__ = [
     "CONTINUATION_ORDER",
     "MAX_POINTS",
     "axis_kind",
+    "setting_axis",
     "check_extraction_flow",
     "check_range",
     "read_sweep",
@@ -117,14 +119,48 @@ class Axis:
         return self.key.split(".", 1)[0]
 
 
-def axis_kind(key: str, where: Where) -> AxisKind:
+def axis_kind(key: str, where: Where, model: Model | None = None) -> AxisKind:
+    """What the axis ``key`` sets: an input of :data:`AXES`, or a component's
+    setting ``TABLE.NAME.SETTING`` (see :func:`setting_axis`, needs ``model``)."""
     base = key.split(".", 1)[0]
+    if model is not None and base in _settings_tables():
+        return setting_axis(key, model, where)
     if base not in AXES or (base == "extraction_flow") != ("." in key):
-        valid = [k for k in AXES if k != "extraction_flow"] + ["extraction_flow.NAME"]
+        valid = ([k for k in AXES if k != "extraction_flow"] + ["extraction_flow.NAME"]
+                 + [f"{t}.NAME.SETTING" for t in _settings_tables()])
         mean = closest(key, valid)
         raise where.child(key).error(
             f"not an input that can be varied{mean} (valid: {', '.join(valid)})")
     return AXES[base]
+
+
+def _settings_tables() -> dict:
+    """Case tables of per-component settings -> their kind."""
+    return {k.settings_table: k for k in KINDS.values() if k.settings_table}
+
+
+def setting_axis(key: str, model: Model, where: Where) -> AxisKind:
+    """The axis of a component setting ``TABLE.NAME.SETTING``, as a case file writes
+    it in ``[TABLE.NAME] SETTING = ...``: every setting a kind declares with a
+    dimension (:attr:`simulator.components.Component.settings`) can be varied,
+    without code for it here."""
+    parts = key.split(".")
+    kind = _settings_tables().get(parts[0])
+    if kind is None or len(parts) < 3:
+        raise where.child(key).error(f"write a component setting as {parts[0]}.NAME.SETTING")
+    name, setting = ".".join(parts[1:-1]), parts[-1]
+    known = [c.name for c in model.of_kind(kind)]
+    if name not in known:
+        raise where.child(key).error(f"the model has no {kind.title} {name!r}"
+                                     + closest(name, known))
+    st = next((s for s in kind.settings if s.name == setting), None)
+    numeric = [s.name for s in kind.settings if s.dimension in DIMENSIONS]
+    if st is None or st.name not in numeric:
+        raise where.child(key).error(
+            f"{setting!r} is not a quantity of a {kind.title} that can be varied "
+            f"(it has: {', '.join(numeric) or 'none'})")
+    return AxisKind(st.dimension, DIMENSIONS[st.dimension][0] or "-", "state", st.lo, st.hi, False,
+                    f"{kind.title} {name!r}: {st.description}")
 
 
 def check_range(kind: AxisKind, si: float, text, w: Where, hi: float | None = None) -> None:
@@ -152,7 +188,13 @@ def validate_value(case: Case, key: str, value, w: Where) -> None:
     accepts exactly what a case file would.
     """
     data = copy.deepcopy(case.data)
-    if key.startswith("extraction_flow."):
+    base = key.split(".", 1)[0]
+    if base in _settings_tables():
+        parts = key.split(".")
+        name, setting = ".".join(parts[1:-1]), parts[-1]
+        tables = data.setdefault(base, {})
+        tables[name] = {**tables.get(name, {}), setting: value}
+    elif key.startswith("extraction_flow."):
         data.setdefault("extractions", {})[key.split(".", 1)[1]] = {"control": "flow",
                                                                    "flow": value}
     else:
@@ -248,7 +290,7 @@ def _range(kind: AxisKind, spec: dict, w: Where, check) -> tuple[list[float], li
 
 def _read_axis(key: str, value, wk: Where, case: Case) -> Axis:
     """One axis of ``[sweep]``; ``wk`` locates its value in the case file."""
-    kind = axis_kind(key, Where(wk.file, wk.table))
+    kind = axis_kind(key, Where(wk.file, wk.table), case.model)
 
     def check(v):
         validate_value(case, key, v, wk)
@@ -293,6 +335,18 @@ def read_sweep(case: Case) -> list[Axis]:
             for name, v in value.items():
                 check_extraction_flow(case.model, name, wt)
                 axes.append(_read_axis(f"extraction_flow.{name}", v, wt.child(name), case))
+            continue
+        if key in _settings_tables():
+            if not isinstance(value, dict) or not all(isinstance(v, dict)
+                                                      for v in value.values()):
+                raise w.child(key).error(
+                    f"expected tables of component settings, e.g. [sweep.{key}.NAME] "
+                    f"SETTING = [...]")
+            for name, settings in value.items():
+                wt = Where(case.file, f"sweep.{key}.{name}")
+                for setting, v in settings.items():
+                    axes.append(_read_axis(f"{key}.{name}.{setting}", v, wt.child(setting),
+                                           case))
             continue
         axes.append(_read_axis(key, value, w.child(key), case))
     if not axes:

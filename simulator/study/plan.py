@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
-from ..plant.case import Case, Conditions, read_conditions
+from ..plant.case import Case, Conditions, apply_setting, read_conditions
 from ..plant.model import Model
 from ..units import Where
 from .axes import CONTINUATION_ORDER, MAX_POINTS, Axis, read_sweep
@@ -186,6 +186,8 @@ def _apply(cond: Conditions, key: str, value: float, model: Model) -> Conditions
         controls = dict(cond.extraction_control)
         controls[name] = ("flow", float(value))
         return dataclasses.replace(cond, extraction_control=tuple(sorted(controls.items())))
+    if "." in key:  # a component setting TABLE.NAME.SETTING (see axes.setting_axis)
+        return apply_setting(cond, model, key, value)
     return dataclasses.replace(cond, **{key: value})
 
 

@@ -122,7 +122,7 @@ def read_profile(case: Case) -> ProfileSource:
             raise wh.error("cannot read this column header; write it as 'key [unit]', "
                            "e.g. 'output [MW]'")
         key, unit = m.group(1), m.group(2) or ""
-        kind = axis_kind(key, Where(fname, f"line {hline}"))
+        kind = axis_kind(key, Where(fname, f"line {hline}"), case.model)
         if key in seen:
             raise wh.error("this column appears twice")
         seen.add(key)
