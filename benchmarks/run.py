@@ -171,12 +171,13 @@ class _TimedSolves:
         g = solve_chunk.__globals__
         self.inner = g["solve_point"]
 
-        def timed(model, cond, steam=None, guess=None, **kw):
+        def timed(model, cond, steam=None, guess=None, neighbour=None, **kw):
             t = time.perf_counter()
             try:
-                return self.inner(model, cond, steam, guess=guess, **kw)
-            finally:
-                self.calls.append((guess is None, time.perf_counter() - t))
+                return self.inner(model, cond, steam, guess=guess, neighbour=neighbour, **kw)
+            finally:  # cold: neither a neighbour nor a guess to start from
+                self.calls.append((guess is None and neighbour is None,
+                                   time.perf_counter() - t))
 
         g["solve_point"] = timed
         return self
@@ -191,8 +192,8 @@ def bench_study_path(quick: bool) -> dict:
     The demo load sweep (cases/reheat_load_sweep.toml: 30 points, 5 % load
     steps, in chunks of 8 and 7) and the first chunks of the demo hourly
     profile.  Each chunk's first point starts from the design-scaled guess
-    (cold), every other from the previous solution and its Jacobian
-    (``guess``/``jacobian``: warm).  ``warm_ms`` is the median of the warm
+    (cold), every other from the point solved before it (``neighbour``, the
+    guarded continuation of :class:`~simulator.study.run.Continuation`: warm).  ``warm_ms`` is the median of the warm
     points' :func:`solve_point` calls; ``ms_per_point`` is the whole chunk
     time over its points: cold starts, operating-limit checks and result arrays
     included, HDF5 writes not.  One untimed pass first builds the model and
@@ -310,7 +311,7 @@ def bench_scaling(quick: bool) -> dict:
             t = time.perf_counter()
             prev = solve_point(model, Conditions(throttle_flow=f * m_d), neighbour=prev)
             warm.append(time.perf_counter() - t)
-        rows.append({"groups": len(model.groups), "unknowns": len(prev.x),
+        rows.append({"groups": len(model.groups), "unknowns": len(prev.unknowns),
                      "cold_ms": 1e3 * cold, "warm_ms": 1e3 * statistics.median(warm)})
     g = np.log([r["groups"] for r in rows])
     warm_exp = float(np.polyfit(g, np.log([r["warm_ms"] for r in rows]), 1)[0])
@@ -389,15 +390,15 @@ def bench_compare(quick: bool) -> dict:
     prev = solve_point(model, conds[0])
     for cond in conds[1:]:
         eq = equations_for(model, cond, steam)
-        exact = solve_point(model, cond, steam, guess=prev.x, jacobian=prev.jacobian)
+        exact = solve_point(model, cond, steam, guess=prev.unknowns, jacobian=prev.jacobian)
         for policy, jac0 in (("fresh_jacobian", None), ("given_jacobian", prev.jacobian)):
             t_ours, t_theirs = [], []
             for _ in range(repeats):
                 t = time.perf_counter()
-                nr = newton(eq.residuals, prev.x, tol=TOL, jacobian=jac0)
+                nr = newton(eq.residuals, prev.unknowns, tol=TOL, jacobian=jac0)
                 t_ours.append(time.perf_counter() - t)
                 t = time.perf_counter()
-                xs, res, ev, nj = fsolve_to_tolerance(eq.residuals, prev.x, TOL, jac0)
+                xs, res, ev, nj = fsolve_to_tolerance(eq.residuals, prev.unknowns, TOL, jac0)
                 t_theirs.append(time.perf_counter() - t)
             rows[policy].append({
                 "ours_ms": 1e3 * statistics.median(t_ours),
@@ -405,8 +406,8 @@ def bench_compare(quick: bool) -> dict:
                 "ours_evaluations": nr.evaluations, "ours_jacobians": nr.jacobians,
                 "fsolve_evaluations": ev, "fsolve_jacobians": nj,
                 "fsolve_residual": res,
-                "same_answer": float(np.max(np.abs(xs - exact.x))),
-                "ours_same_answer": float(np.max(np.abs(nr.x - exact.x))),
+                "same_answer": float(np.max(np.abs(xs - exact.unknowns))),
+                "ours_same_answer": float(np.max(np.abs(nr.x - exact.unknowns))),
             })
         prev = exact
     out = {"fsolve_points": len(conds) - 1, "fsolve_repeats": repeats}

@@ -197,7 +197,7 @@ def _heaters_out(model: Model, base: Conditions, names: Iterable[str] | str | No
         if name not in model.heaters:
             raise InputError(f"the model has no heater {name!r} (it has "
                              f"{', '.join(model.heaters) or 'none'})", key="heaters_out")
-        if model.heaters[name].kind == "deaerator":
+        if model.heaters[name].heater_type == "deaerator":
             raise InputError(f"the deaerator {name!r} cannot be taken out of service",
                              key="heaters_out")
     bleeds_of = {model.heaters[h].extraction for h in base.heaters_out | out}

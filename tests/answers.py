@@ -47,7 +47,7 @@ def flatten(r) -> dict[str, float]:
         for key, attr in (("bleed", "bleed"), ("shell_pressure", "shell_pressure"),
                           ("feedwater_out_temperature", "T_out"),
                           ("drain_temperature", "T_drain"), ("feedwater_flow", "m_water"),
-                          ("drain_flow", "drain_out"), ("duty", "duty")):
+                          ("drain_flow", "drain_flow"), ("duty", "duty")):
             out[f"heater/{hs.name}/{key}"] = getattr(hs, attr) if hs.in_service else None
     for key, value in r.totals.items():
         out[f"total/{key}"] = value

@@ -113,7 +113,7 @@ def test_lp_heater_out_reroutes_drains(reheat_model):
     assert by["LP3"].bleed == 0.0 and not by["LP3"].in_service
     # LP4's drains pass on to LP2 (the model's drain_to_when_out_of_service is unset
     # for LP3, so its own drain_to applies): LP2 drains forward all of E2 and E4
-    assert by["LP2"].drain_out == pytest.approx(by["LP2"].bleed + by["LP4"].drain_out)
+    assert by["LP2"].drain_flow == pytest.approx(by["LP2"].bleed + by["LP4"].drain_flow)
     assert abs(r.totals["energy_imbalance"]) <= 1e-6 * r.totals["heat_added"]
 
 

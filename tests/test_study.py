@@ -441,7 +441,7 @@ def _solve_from_last_solution(plan, chunk):
     prev = None
     for i in solve_order(conds):
         try:
-            r = solve_point(model, conds[i], steam, guess=prev.x if prev else None,
+            r = solve_point(model, conds[i], steam, guess=prev.unknowns if prev else None,
                             jacobian=prev.jacobian if prev else None)
         except SolveError:
             continue
@@ -507,19 +507,20 @@ def test_a_predicted_start_that_is_not_physical_is_not_used():
     m_d = model.throttle.flow
     a = solve_point(model, Conditions(throttle_flow=0.60 * m_d))
     b = solve_point(model, Conditions(throttle_flow=0.61 * m_d), neighbour=a)
-    assert b.x_slope is not None
+    assert b.unknowns_slope is not None
     # a slope that predicts ln p rising by 500 per unit of flow ratio: over a step of 0.01
     # every pressure would be e^5 = 148 times higher (far above the throttle limit)
-    poisoned = dataclasses.replace(b, x_slope=np.full_like(b.x_slope, 500.0), x_curvature=None)
+    poisoned = dataclasses.replace(b, unknowns_slope=np.full_like(b.unknowns_slope, 500.0),
+                                   unknowns_curvature=None)
     cold = solve_point(model, Conditions(throttle_flow=0.62 * m_d))
     warm = solve_point(model, Conditions(throttle_flow=0.62 * m_d), neighbour=poisoned)
     np.testing.assert_allclose(warm.node_p, cold.node_p, rtol=RTOL_START)
     # it started from the neighbour scaled by the ellipse law, with the neighbour's
     # Jacobian, exactly as a neighbour without a slope does: the same iterates
-    plain = dataclasses.replace(b, x_slope=None, x_curvature=None)
+    plain = dataclasses.replace(b, unknowns_slope=None, unknowns_curvature=None)
     scaled = solve_point(model, Conditions(throttle_flow=0.62 * m_d), neighbour=plain)
     assert warm.iterations == scaled.iterations
-    np.testing.assert_array_equal(warm.x, scaled.x)
+    np.testing.assert_array_equal(warm.unknowns, scaled.unknowns)
 
 
 def test_continuation_falls_back_on_any_solve_error(monkeypatch):

@@ -34,7 +34,7 @@ class Heater(Component):
 
     Attributes
     ----------
-    kind : ``"closed"`` or ``"deaerator"`` (the model file's ``type``)
+    heater_type : ``"closed"`` or ``"deaerator"`` (the model file's ``type``)
     extraction : name of the extraction that feeds it
     line_drop : extraction-line pressure drop as a fraction of node pressure [-]
     ttd : terminal temperature difference, saturation minus feedwater outlet [K]
@@ -94,7 +94,7 @@ class Heater(Component):
     )
 
     name: str
-    kind: str
+    heater_type: str
     extraction: str
     line_drop: float = 0.03
     ttd: float = 0.0
@@ -152,13 +152,13 @@ class Heater(Component):
         (NaN where a value has no meaning: most of a heater out of service, TTD and
         DCA of a deaerator)."""
         on = hs.in_service
-        closed = on and self.kind == "closed"
+        closed = on and self.heater_type == "closed"
         return (1 if on else 0, hs.bleed,
                 hs.shell_pressure if on else _NAN, hs.T_sat if on else _NAN,
                 hs.T_in if on else _NAN, hs.T_out if on else _NAN,
                 hs.T_drain if on else _NAN, hs.h_in, hs.h_out,
                 hs.h_drain if on else _NAN, hs.h_bleed if on else _NAN,
-                hs.m_water, hs.drain_out, hs.duty, hs.steam_release,
+                hs.m_water, hs.drain_flow, hs.duty, hs.steam_release,
                 hs.ttd if closed else _NAN, hs.dca if closed else _NAN)
 
     def point_row(self, point) -> tuple:

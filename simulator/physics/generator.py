@@ -19,19 +19,19 @@ import math
 __all__ = ["generator_output"]
 
 
-def generator_output(p_shaft: float, mechanical_loss: float, fixed_loss: float,
+def generator_output(P_shaft: float, mechanical_loss: float, fixed_loss: float,
                      load_loss_rated: float, rating: float) -> float:
-    """Electrical output [W] for shaft power ``p_shaft`` [W].
+    """Electrical output [W] for shaft power ``P_shaft`` [W].
 
     Parameters
     ----------
-    p_shaft : turbine shaft power [W]
+    P_shaft : turbine shaft power [W]
     mechanical_loss : mechanical losses [W], constant
     fixed_loss : constant generator losses [W]
     load_loss_rated : load-dependent generator losses at rated output [W]
     rating : rated electrical output [W]
     """
-    net = p_shaft - mechanical_loss - fixed_loss
+    net = P_shaft - mechanical_loss - fixed_loss
     if load_loss_rated <= 0.0:
         return net
     a = load_loss_rated / (rating * rating)

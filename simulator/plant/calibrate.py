@@ -138,7 +138,7 @@ def calibrate_heaters(model, steam) -> None:
                 f"heater {name!r}: design heat balance closes to {htr.closure:.4f} (more than "
                 f"1 % from 1); every off-design bleed of this heater is scaled by it. Check the "
                 f"design flow of extraction {htr.extraction!r}, the TTD and the DCA.")
-        if htr.kind == "closed":
+        if htr.heater_type == "closed":
             htr.cp = duty / st["m_water"] / max(st["T_out"] - st["T_in"], 1e-6)
             if htr.ttd_method == "ua":
                 try:

@@ -213,7 +213,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
     for hname in target.heaters_out:  # out of service, or its extraction closed
         e = model.extractions[model.heaters[hname].extraction]
         controls.append((e.name, ("closed", 0.0)))
-        if model.heaters[hname].kind == "deaerator":
+        if model.heaters[hname].heater_type == "deaerator":
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))
     problems.raise_if_any()

@@ -133,7 +133,7 @@ def build_graph(file, design_p, throttle, valve, steam_path, extractions, exhaus
             elif target == h.name:
                 problems.add(TopologyError("a heater cannot drain to itself", file=file,
                                            table=table, key=key))
-            elif heaters[target].kind == "closed" and h.kind == "closed":
+            elif heaters[target].heater_type == "closed" and h.heater_type == "closed":
                 pass
     if feedwater is not None:
         if feedwater.condenser not in exhaust_nodes:
@@ -154,7 +154,7 @@ def build_graph(file, design_p, throttle, valve, steam_path, extractions, exhaus
             problems.add(TopologyError("heater drains form a loop", file=file, table="heater",
                                        key="drain_to"))
         for h in heaters.values():
-            if h.drain_to == "forward" and h.kind != "closed":
+            if h.drain_to == "forward" and h.heater_type != "closed":
                 problems.add(InputError("only a closed heater can pump its drains forward",
                                         file=file, table=f"heater '{h.name}'", key="drain_to"))
     for e in extractions.values():

@@ -39,7 +39,7 @@ class HeaterState:
 
     name: str
     in_service: bool
-    kind: str = "closed"  # "closed" or "deaerator"
+    heater_type: str = "closed"  # "closed" or "deaerator"
     bleed: float = 0.0  # [kg/s]
     shell_pressure: float = 0.0  # [Pa]
     T_sat: float = 0.0  # [K]
@@ -51,7 +51,7 @@ class HeaterState:
     h_drain: float = 0.0
     h_bleed: float = 0.0
     m_water: float = 0.0  # [kg/s]
-    drain_out: float = 0.0  # [kg/s]
+    drain_flow: float = 0.0  # drain flow leaving the heater [kg/s]
     duty: float = 0.0  # [W]
     steam_release: float = 0.0  # [W]
     ttd: float = 0.0  # [K]
@@ -77,7 +77,7 @@ class FeedwaterMarch:
         self.boiler = fw.boiler
         self.out = frozenset(out_of_service)
         for name in self.out:
-            if self.heaters[name].kind == "deaerator":
+            if self.heaters[name].heater_type == "deaerator":
                 raise InputError("a deaerator cannot be taken out of service here; the cycle "
                                  "has no other place to degas and store feedwater", file=file,
                                  table=f"heaters.{name}", key="in_service")
@@ -85,7 +85,7 @@ class FeedwaterMarch:
         # where each active closed heater's drains really go
         self.dest: dict[str, str] = {}
         for h in self.active:
-            if self.heaters[h].kind != "closed":
+            if self.heaters[h].heater_type != "closed":
                 continue  # a deaerator's outflow is the feedwater itself
             d = self.heaters[h].drain_to
             seen = {h}
@@ -125,7 +125,7 @@ class FeedwaterMarch:
                 steps.append((0, self.pumps[item], -1, item))
             elif item in self.out:
                 steps.append((3, self.heaters[item], -1, item))
-            elif self.heaters[item].kind == "deaerator":
+            elif self.heaters[item].heater_type == "deaerator":
                 steps.append((2, self.heaters[item], pos[item], item))
             else:
                 steps.append((1, self.heaters[item], pos[item], item))
@@ -156,12 +156,12 @@ class FeedwaterMarch:
             :class:`HeaterState` in water order.
         """
         n = self._n
-        drain_out = [0.0] * n
+        drain_flow = [0.0] * n
         for k, into in self._cascade:
             d = bleed[k]
             for j in into:
-                d += drain_out[j]
-            drain_out[k] = d
+                d += drain_flow[j]
+            drain_flow[k] = d
         # water flows, from the boiler backwards
         steps = self._steps
         through = [0.0] * len(steps)
@@ -171,9 +171,9 @@ class FeedwaterMarch:
             if kind == 2:
                 m -= bleed[k]
                 for j in self._into[k]:
-                    m -= drain_out[j]
+                    m -= drain_flow[j]
             elif kind == 1 and self._forward[k]:
-                m -= drain_out[k]
+                m -= drain_flow[k]
             through[s] = m
         m_condensate = m
         p_c = p_node[self._cond]
@@ -241,7 +241,7 @@ class FeedwaterMarch:
             T_w = to
             sat_w = False
             if self._forward[k]:
-                md = drain_out[k]
+                md = drain_flow[k]
                 h_dp = pumped_drain_enthalpy(hd, steam.v_liq_sat(ps), ps, p_w,
                                              obj.drain_pump_efficiency)
                 pump_power += md * (h_dp - hd)
@@ -254,19 +254,19 @@ class FeedwaterMarch:
         for k, ht in enumerate(self._active_heaters):
             js = into[k]
             q = (steam_release(bleed[k], h_node[ext[k]], h_drain[k],
-                               [drain_out[j] for j in js], [h_drain[j] for j in js]) if js
+                               [drain_flow[j] for j in js], [h_drain[j] for j in js]) if js
                  else steam_release(bleed[k], h_node[ext[k]], h_drain[k]))
             release[k] = q
             residuals[k] = heater_balance_residual(q, duty[k], ht.closure, ht.duty_design)
         m_dc = 0.0
         for j in self._to_cond:
-            m_dc += drain_out[j]
+            m_dc += drain_flow[j]
         summary = {
             "h_feedwater": h_w,
             "p_feedwater": p_w,
             "m_condensate": m_condensate,
             "drains_to_condenser": m_dc,
-            "h_drains_to_condenser": (mixed_enthalpy([drain_out[j] for j in self._to_cond],
+            "h_drains_to_condenser": (mixed_enthalpy([drain_flow[j] for j in self._to_cond],
                                                      [h_drain[j] for j in self._to_cond])
                                       if m_dc else 0.0),
             "h_condensate": h_c,
@@ -281,15 +281,15 @@ class FeedwaterMarch:
                     continue
                 if kind == 3:
                     mw, hw = bypass[name]
-                    states[name] = HeaterState(name, False, self.heaters[name].kind,
+                    states[name] = HeaterState(name, False, self.heaters[name].heater_type,
                                                m_water=mw, h_in=hw, h_out=hw)
                     continue
-                hs = HeaterState(name, True, self.heaters[name].kind, bleed=bleed[k],
+                hs = HeaterState(name, True, self.heaters[name].heater_type, bleed=bleed[k],
                                  shell_pressure=p_sh[k],
                                  h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
                                  h_bleed=h_node[self._ext_node[k]],
                                  m_water=through[s_of[k]],
-                                 drain_out=drain_out[k], duty=duty[k],
+                                 drain_flow=drain_flow[k], duty=duty[k],
                                  steam_release=release[k], residual=residuals[k])
                 hs.T_sat = T_sat[k] if kind == 1 else steam.T_sat(p_sh[k])
                 if kind == 1:

@@ -215,9 +215,9 @@ def format_model(model) -> str:
     if model.heaters:
         lines.append(_table("Heaters", ["heater", "type", "extraction", "TTD", "DCA", "drains to",
                                         "design duty", "closure"],
-                            [[h.name, h.kind, h.extraction,
-                              h.ttd if h.kind == "closed" else None, h.dca, h.drain_to
-                              if h.kind == "closed" else "", h.duty_design / 1e6, h.closure]
+                            [[h.name, h.heater_type, h.extraction,
+                              h.ttd if h.heater_type == "closed" else None, h.dca, h.drain_to
+                              if h.heater_type == "closed" else "", h.duty_design / 1e6, h.closure]
                              for h in model.heaters.values()],
                             ["", "", "", "K", "K", "", "MW", "-"]))
         lines.append("  closure = feedwater duty / heat given up by bleed and drains at design;"

@@ -281,10 +281,10 @@ class PointEquations:
         shaft = 0.0
         steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
         self.p, self.h, self.hv, self.hl = p, h, hv, hl  # what the components read
-        limit = 1e-9 * md
+        trace = 1e-9 * md  # a flow this small means no steam reaches the node
         for i in range(N):
             if i != src:
-                if M[i] <= limit:
+                if M[i] <= trace:
                     raise TrialPointError(f"no steam reaches node {self.names[i]!r}")
                 h[i] = E[i] / M[i]
             outs = self.outs[i]
@@ -309,21 +309,21 @@ class PointEquations:
                 E[j] += m * h_out
             if row_of[i] >= 0 and not passes_net[i]:
                 F[row_of[i]] = (net - out_flow) / md
-        p_gen = self.model.generator.output(shaft)
+        P_gen = self.model.generator.output(shaft)
         k = len(self.node_rows)
         if self.fw is not None:
             res, _ = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src])
             F[k:k + self.n_h] = res
             k += self.n_h
         if self.demand:
-            F[k] = (p_gen - self.cond.output) / self.model.generator.rating
+            F[k] = (P_gen - self.cond.output) / self.model.generator.rating
         F = np.array(F)
-        self._last = (xs, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, p_gen, steps)
+        self._last = (xs, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps)
         if not detail:
             return F, None
         return self._detail(*self._last[1:])
 
-    def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, p_gen, steps):
+    def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps):
         """The full state of a marched point, as a dict (see :func:`build_result`)."""
         steam = self.steam
         by_name = {s[0].name: s for s in steps}
@@ -337,7 +337,7 @@ class PointEquations:
             _, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[self.src],
                                           detail=True)
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
-                 "steps": by_name, "shaft": shaft, "p_gen": p_gen,
+                 "steps": by_name, "shaft": shaft, "P_gen": P_gen,
                  "valve_drop_needed": by_name[self.model.valve.name][6],
                  "feedwater": summary, "control_valve_needed": needed}
         return F, state

@@ -52,7 +52,7 @@ def wide_open_capacity(model: Model, cond: Conditions, steam: SteamTables,
     x0 = eq.guess()
     nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names)
     _, st = eq.evaluate(nr.x, detail=True)
-    return st["m_T"], st["p_gen"]
+    return st["m_T"], st["P_gen"]
 
 
 def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
@@ -66,7 +66,7 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     model : calibrated model
     cond : operating conditions
     steam : property backend or its name (default ``"seuif97"``)
-    guess : starting unknowns (``PointResult.x`` of a point solved with the same
+    guess : starting unknowns (``PointResult.unknowns`` of a point solved with the same
         unknowns); the design-scaled guess otherwise
     jacobian : starting Jacobian for the same unknowns
     broyden : Broyden updates between fresh Jacobians (``False``: plain Newton)
@@ -107,12 +107,12 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     result.flow_ratio = r
     result.wide_open_valves = wide
     if scaled is not None and abs(r - neighbour.flow_ratio) > 1e-9:
-        result.x_slope = (nr.x - scaled) / (r - neighbour.flow_ratio)
+        result.unknowns_slope = (nr.x - scaled) / (r - neighbour.flow_ratio)
         result.slope_from = neighbour.flow_ratio
-        if neighbour.x_slope is not None and abs(r - neighbour.slope_from) > 1e-9:
+        if neighbour.unknowns_slope is not None and abs(r - neighbour.slope_from) > 1e-9:
             # second divided difference, for a quadratic predictor at the next point
-            result.x_curvature = ((result.x_slope - neighbour.x_slope)
-                                  / (r - neighbour.slope_from))
+            result.unknowns_curvature = ((result.unknowns_slope - neighbour.unknowns_slope)
+                                         / (r - neighbour.slope_from))
     return result
 
 
@@ -121,7 +121,7 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
     shape = (eq.n_res, eq.n)
     r = eq.flow_ratio()
     scaled = None
-    if (neighbour is not None and neighbour.x is not None and len(neighbour.x) == eq.n
+    if (neighbour is not None and neighbour.unknowns is not None and len(neighbour.unknowns) == eq.n
             and guess is None and neighbour.wide_open_valves == eq.wide_open):
         scaled, guess = _continuation_start(eq, neighbour, r)
         jacobian = neighbour.jacobian if jacobian is None else jacobian
@@ -156,7 +156,7 @@ def _continuation_start(eq: PointEquations, neighbour: PointResult, r: float):
     dropped: the predicted one for ``scaled``, ``scaled`` for ``None`` (the
     caller then starts from the design-scaled guess).
     """
-    x_n = neighbour.x
+    x_n = neighbour.unknowns
     if len(eq.exhaust_idx) == 1 and neighbour.node_p is not None:
         exh = eq.exhaust_idx[0]
         p_ex, p_ex_n = eq.p_fix[exh], neighbour.node_p[exh]
@@ -170,10 +170,10 @@ def _continuation_start(eq: PointEquations, neighbour: PointResult, r: float):
     start = scaled
     step = r - neighbour.flow_ratio
     base = neighbour.flow_ratio - neighbour.slope_from  # NaN without a slope
-    if neighbour.x_slope is not None and abs(step) < 0.15 and abs(step) <= 4.0 * abs(base):
-        start = scaled + neighbour.x_slope * step  # secant predictor along the load
-        if neighbour.x_curvature is not None:  # quadratic through three points
-            start = start + neighbour.x_curvature * step * (r - neighbour.slope_from)
+    if neighbour.unknowns_slope is not None and abs(step) < 0.15 and abs(step) <= 4.0 * abs(base):
+        start = scaled + neighbour.unknowns_slope * step  # secant predictor along the load
+        if neighbour.unknowns_curvature is not None:  # quadratic through three points
+            start = start + neighbour.unknowns_curvature * step * (r - neighbour.slope_from)
         if not _plausible_start(eq, start):
             start = scaled
     if not _plausible_start(eq, start):
@@ -359,7 +359,7 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
         evaluations=nr.evaluations, message="converged", model_name=model.name,
         valve_mode=cond.valve_mode, pressure_mode=cond.pressure_mode, backend=steam.name,
         tables=tables, totals=totals,
-        heaters=list(heater_states.values()), x=nr.x, jacobian=nr.jacobian)
+        heaters=list(heater_states.values()), unknowns=nr.x, jacobian=nr.jacobian)
 
 
 class PointView:
@@ -407,7 +407,7 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
         r = st["steps"][c.name][6]
         exhaust_loss_power += r[0] * (r[1] - r[2])
     exh_y = [groups["outlet_moisture"][k] for k in exhaust]
-    P_gen = st["p_gen"]
+    P_gen = st["P_gen"]
     totals = {
         "throttle_flow": m_T,
         "throttle_pressure": p[src],

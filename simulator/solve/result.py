@@ -135,11 +135,11 @@ class PointResult:
     tables: dict[str, ResultTable]
     totals: dict[str, float]
     heaters: list = field(default_factory=list)
-    x: np.ndarray = field(repr=False, default=None)  # the solved unknowns of Newton
+    unknowns: np.ndarray = field(repr=False, default=None)  # the solved unknowns of Newton
     jacobian: np.ndarray = field(repr=False, default=None)
     flow_ratio: float = 1.0
-    x_slope: np.ndarray = field(repr=False, default=None)
-    x_curvature: np.ndarray = field(repr=False, default=None)
+    unknowns_slope: np.ndarray = field(repr=False, default=None)
+    unknowns_curvature: np.ndarray = field(repr=False, default=None)
     slope_from: float = math.nan  # flow ratio of the point the slope was taken from
     wide_open_valves: frozenset = frozenset()
 

@@ -161,7 +161,7 @@ class Continuation:
             return r
         same = boundary == self.last_boundary
         neighbour = last if (same and self.slope_ok) else dataclasses.replace(
-            last, x_slope=None, x_curvature=None)
+            last, unknowns_slope=None, unknowns_curvature=None)
         try:
             r = solve_point(self.model, cond, self.steam, neighbour=neighbour, **kw)
         except SolveError:
@@ -170,7 +170,7 @@ class Continuation:
             self._keep(r, boundary, same)
             return r
         try:
-            r = solve_point(self.model, cond, self.steam, guess=last.x,
+            r = solve_point(self.model, cond, self.steam, guess=last.unknowns,
                             jacobian=last.jacobian, **kw)
         except ConvergenceError:
             raise
