@@ -193,7 +193,8 @@ def bench_study_path(quick: bool) -> dict:
     steps, in chunks of 8 and 7) and the first chunks of the demo hourly
     profile.  Each chunk's first point starts from the design-scaled guess
     (cold), every other from the point solved before it (``neighbour``, the
-    guarded continuation of :class:`~simulator.study.run.Continuation`: warm).  ``warm_ms`` is the median of the warm
+    guarded continuation of :class:`~simulator.study.run.Continuation`:
+    warm).  ``warm_ms`` is the median of the warm
     points' :func:`solve_point` calls; ``ms_per_point`` is the whole chunk
     time over its points: cold starts, operating-limit checks and result arrays
     included, HDF5 writes not.  One untimed pass first builds the model and
