@@ -206,7 +206,7 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
     t = r.totals
     m_T = t["throttle_flow"]
     p_T = t["throttle_pressure"]
-    if r.governing == "throttle":
+    if r.pressure_mode == "fixed":
         i = pt.node_index(model.source)
         v = pt.steam.v_ph(p_T, float(r.node_h[i]))
         needed = model.valve.wide_open_drop(m_T, v)

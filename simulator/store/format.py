@@ -38,20 +38,31 @@ Root attributes
     solved before it).
 ``/inputs/<name>`` (n)
     What was asked at each point: ``throttle_flow`` [kg/s] or ``output`` [W]
-    (the other is NaN), ``governing``, ``throttle_pressure`` [Pa] (NaN under
-    sliding pressure), ``throttle_temperature`` [K], ``reheat_temperature``
+    (the other is NaN), ``valve_mode``, ``pressure_mode``, ``throttle_pressure``
+    [Pa] (NaN under sliding pressure), ``throttle_temperature`` [K], ``reheat_temperature``
     [K], ``exhaust_pressure`` [Pa] (design values where the case leaves them
     unset), ``heaters_out_of_service``, ``extractions_closed`` and
     ``extraction_setpoints`` (text), and each swept or profile input that is
     not among these (``throttle_flow_fraction`` [-], ``output_fraction`` [-],
-    ``heater_out``, ``extraction_closed``, ``extraction_flow.NAME`` [kg/s];
-    for profiles ``profile_line`` and ``time``).
+    ``heater_out``, ``extraction_closed``, ``extraction_flow.NAME`` [kg/s], a
+    component setting ``TABLE.NAME.SETTING`` [its SI unit]; for profiles
+    ``profile_line`` and ``time``).
 ``/solver/`` (n)
     ``status`` (int8: -1 not solved yet, 0 converged, 1 failed, 2 internal
     error), ``converged`` (uint8), ``iterations``, ``evaluations`` (int32, -1
     not known), ``residual`` [-] (largest normalised residual), ``error`` (the
     error class of a failed point: ``ConvergenceError``, ``InfeasibleError``,
     ``PropertyRangeError``), ``message`` (why it failed; cut to 256 bytes).
+Result groups
+    One group per result group of a point, generated from the declared
+    columns (:mod:`simulator.store.layout`): ``/nodes/`` and one group for
+    each kind of component the model has (``/throttle_valve/``,
+    ``/stage_groups/``, ``/reheaters/``, ``/pipes/``, ``/control_valves/``,
+    ``/extractions/``, ``/heaters/``, and any kind added later).  Each holds
+    ``names`` (items, text), ``inlet`` and ``outlet`` (node names) for
+    components between two nodes or ``nodes`` for those at one node, and one
+    (n, items) dataset per declared column with its ``unit`` and
+    ``description``.  Those of the demo units:
 ``/nodes/``
     ``names`` (nodes, text) and, each (n, nodes): ``pressure`` [Pa],
     ``temperature`` [K], ``enthalpy`` [J/kg], ``entropy`` [J/(kg K)],
@@ -75,9 +86,16 @@ Root attributes
     ``steam_release`` [W], ``ttd``, ``dca`` [K] (NaN where a value has no
     meaning: most values of a heater out of service; ttd and dca of a
     deaerator).
+``/throttle_valve/``, ``/reheaters/``, ``/pipes/``, ``/control_valves/``
+    (n, items): ``flow`` [kg/s], ``pressure_drop`` [Pa]; the throttle
+    valves' ``wide_open_drop`` [Pa] at the point's flow; a reheater's
+    ``heat`` [W]; a control valve's ``wide_open`` (uint8: 1 wide open, its
+    inlet pressure floating; 0 holding it).
 ``/paths/``
-    ``names``, ``inlet``, ``outlet``, ``kind`` (text): the reheaters and
-    pipes between nodes (no per-point data; their end states are node states).
+    ``names``, ``inlet``, ``outlet``, ``kind`` (text: the component's table):
+    the components other than stage groups and the throttle valves that join
+    two nodes (reheaters, pipes, control valves), for drawing the expansion
+    line.
 ``/totals/<name>`` (n)
     ``throttle_flow`` [kg/s], ``throttle_pressure`` [Pa],
     ``generator_output`` [W], ``shaft_power`` [W], ``heat_rate`` [J/J],

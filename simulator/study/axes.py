@@ -76,7 +76,7 @@ AXES: dict[str, AxisKind] = {
     "exhaust_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
                                  "exhaust (condenser or back) pressure"),
     "throttle_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
-                                  "throttle pressure held by throttle governing"),
+                                  "throttle pressure held (pressure mode 'fixed')"),
     "throttle_temperature": AxisKind("temperature", "K", "state", T_MIN, T_MAX, False,
                                      "throttle steam temperature"),
     "reheat_temperature": AxisKind("temperature", "K", "state", T_MIN, T_MAX, False,

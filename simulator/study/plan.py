@@ -230,11 +230,13 @@ def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, In
         "output": InputColumn(
             col(lambda c: c.output if c.output is not None else nan), "W",
             "generator output demanded (NaN when the throttle flow is given)"),
-        "governing": InputColumn([c.governing for c in conds], "",
-                                 "'sliding' or 'throttle' pressure governing"),
+        "valve_mode": InputColumn([c.valve_mode for c in conds], "",
+                                  "how the throttle valves pass the steam: 'throttle'"),
+        "pressure_mode": InputColumn([c.pressure_mode for c in conds], "",
+                                     "throttle pressure 'sliding' (a result) or 'fixed' (held)"),
         "throttle_pressure": InputColumn(
             col(lambda c: c.throttle_pressure if c.throttle_pressure is not None else nan), "Pa",
-            "held throttle pressure (throttle governing; NaN: sliding pressure, see "
+            "held throttle pressure (pressure mode 'fixed'; NaN: sliding pressure, see "
             "/totals/throttle_pressure)"),
         "throttle_temperature": InputColumn(
             col(lambda c: c.throttle_temperature if c.throttle_temperature is not None

@@ -107,7 +107,7 @@ def solve_order(conditions: Sequence[Conditions]) -> list[int]:
 
 def _boundary(cond: Conditions) -> tuple:
     """Everything of ``cond`` but the load: points that share it lie on one load line."""
-    return (cond.governing, cond.output is None, cond.throttle_pressure,
+    return (cond.valve_mode, cond.pressure_mode, cond.output is None, cond.throttle_pressure,
             cond.throttle_temperature, cond.reheat_temperature, cond.exhaust_pressure,
             cond.extraction_control, cond.heaters_out, cond.held_pressures)
 
