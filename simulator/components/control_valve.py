@@ -14,17 +14,16 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..errors import InputError
-from ..physics.pressure_drop import scaled_pressure_drop
 from ..steam.if97 import P_MAX, P_MIN
 from .base import Column, ReadContext, Setting, SteamPathComponent
+from .drops import WideOpenValve
 from .reading import edge_names
 
 __all__ = ["ControlValve"]
 
 
 @dataclass
-class ControlValve(SteamPathComponent):
+class ControlValve(WideOpenValve, SteamPathComponent):
     """A valve holding its inlet pressure, or wide open.
 
     ``wide_open_fraction`` [-] is the model file's ``wide_open_drop`` (``None``:
@@ -62,23 +61,6 @@ class ControlValve(SteamPathComponent):
         if None in (name, a, b):
             return None
         return cls(name, a, b, frac)
-
-    def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
-        dp = p_in - p_out
-        self.m_design, self.v_design = m, steam.v_ph(p_in, h_in)
-        frac = self.wide_open_fraction
-        self.dp_wide_open = dp if frac is None else frac * p_in
-        if self.dp_wide_open > dp * (1 + 1e-12):
-            raise InputError(
-                f"the wide-open valve drop ({self.dp_wide_open / 1e5:.4g} bar) exceeds the "
-                f"design drop from the node pressures ({dp / 1e5:.4g} bar)", file=model.file,
-                table=self.where, key="wide_open_drop")
-        return h_in
-
-    def wide_open_drop(self, m_dot: float, v_in: float) -> float:
-        """Pressure drop [Pa] of the valve wide open at ``m_dot`` [kg/s] and inlet
-        volume ``v_in`` [m^3/kg]."""
-        return scaled_pressure_drop(m_dot, v_in, self.dp_wide_open, self.m_design, self.v_design)
 
     def evaluate(self, march, i, j, m_net):
         hi = march.h[i]

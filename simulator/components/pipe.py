@@ -7,15 +7,15 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..physics.pressure_drop import scaled_pressure_drop
 from .base import Column, ReadContext, SteamPathComponent
+from .drops import SquareLawDrop
 from .reading import edge_names
 
 __all__ = ["Pipe"]
 
 
 @dataclass
-class Pipe(SteamPathComponent):
+class Pipe(SquareLawDrop, SteamPathComponent):
     """A pipe between two nodes; ``dp_design`` [Pa] at ``m_design`` [kg/s] and inlet
     volume ``v_design`` [m^3/kg]."""
 
@@ -43,12 +43,8 @@ class Pipe(SteamPathComponent):
         return cls(name, a, b)
 
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
-        self.dp_design, self.m_design, self.v_design = p_in - p_out, m, steam.v_ph(p_in, h_in)
+        self.calibrate_drop(m, p_in, h_in, p_out, steam)
         return h_in
-
-    def drop(self, m_dot: float, v_in: float) -> float:
-        """Pressure drop [Pa] at flow ``m_dot`` [kg/s] and inlet volume ``v_in`` [m^3/kg]."""
-        return scaled_pressure_drop(m_dot, v_in, self.dp_design, self.m_design, self.v_design)
 
     def evaluate(self, march, i, j, m_net):
         hi = march.h[i]

@@ -10,11 +10,11 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..physics.pressure_drop import scaled_pressure_drop
 from ..steam.if97 import T_MAX, T_MIN
 from ..units import Where
 from .base import Column, ReadContext, SteamPathComponent
 from .checks import check_superheated
+from .drops import SquareLawDrop
 from .reading import edge_names
 
 __all__ = ["Reheater"]
@@ -23,7 +23,7 @@ IF97 = "the validity range of IAPWS-IF97"
 
 
 @dataclass
-class Reheater(SteamPathComponent):
+class Reheater(SquareLawDrop, SteamPathComponent):
     """A reheater between two nodes.
 
     ``outlet_temperature`` [K]; ``dp_design`` [Pa] the design drop at
@@ -64,12 +64,8 @@ class Reheater(SteamPathComponent):
                               self.outlet_temperature, p, "the reheater outlet temperature")
 
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
-        self.dp_design, self.m_design, self.v_design = p_in - p_out, m, steam.v_ph(p_in, h_in)
+        self.calibrate_drop(m, p_in, h_in, p_out, steam)
         return steam.h_pT(p_out, self.outlet_temperature)
-
-    def drop(self, m_dot: float, v_in: float) -> float:
-        """Pressure drop [Pa] at flow ``m_dot`` [kg/s] and inlet volume ``v_in`` [m^3/kg]."""
-        return scaled_pressure_drop(m_dot, v_in, self.dp_design, self.m_design, self.v_design)
 
     def evaluate(self, march, i, j, m_net):
         steam = march.steam
