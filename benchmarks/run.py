@@ -153,7 +153,7 @@ def bench_points(quick: bool) -> dict:
 def _spec(case, plan) -> SolveSpec:
     model = case.model
     return SolveSpec(model.text, model.file, model.sha256, plan.backend,
-                     result_layout(model, plan.backend), True)
+                     result_layout(model), True)
 
 
 class _TimedSolves:

@@ -185,6 +185,44 @@ def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Co
     return override(base, **new)
 
 
+# SI unit of each keyword of point() that a case file writes with a unit
+_SI_UNITS = {"throttle_flow": "kg/s", "output": "W", "throttle_pressure": "Pa",
+             "throttle_temperature": "K", "reheat_temperature": "K", "exhaust_pressure": "Pa"}
+
+
+def _check_as_a_case_would(model: Model, base: Conditions, data: dict | None,
+                           changes: dict[str, Any]) -> None:
+    """Check the keyword values of :func:`point` with the case reader's own rules
+    (ranges, combinations), by writing them into a case table: a script gets the
+    same refusals, naming the keyword, as a case file would."""
+    import copy
+
+    from .plant.case import read_conditions
+
+    data = copy.deepcopy(data) if data else {}
+    op = data.setdefault("operation", {})
+    op.setdefault("valve_mode", base.valve_mode)
+    if "governing" not in op:
+        op.setdefault("pressure_mode", base.pressure_mode)
+    if any(changes.get(k) is not None for k in _LOADS):
+        for k in _LOADS:
+            op.pop(k, None)
+    for key, value in changes.items():
+        if key not in _LOADS and key not in _SETTINGS:
+            continue
+        if value is None:
+            op.pop(key, None)
+        elif key in _MODES:
+            op[key] = value
+            if key == "pressure_mode":
+                op.pop("governing", None)
+        elif key in _SI_UNITS:
+            op[key] = f"{float(value)!r} {_SI_UNITS[key]}"
+        else:
+            op[key] = float(value)
+    read_conditions(data, model, file="partload.point keywords")
+
+
 def _heaters_out(model: Model, base: Conditions, names: Iterable[str] | str | None) -> dict:
     """Conditions fields for exactly ``names`` out of service: as a case file's
     ``[heaters.NAME] in_service = false``, each one's extraction is closed."""
@@ -248,8 +286,11 @@ def point(model_or_case, conditions: Conditions | None = None, *, backend: str |
     from .solve.point import solve_point
 
     model, base, default_backend = _model_and_base(model_or_case)
+    data = getattr(model_or_case, "data", None) if conditions is None else None
     if conditions is not None:
         base = conditions
+    if changes:
+        _check_as_a_case_would(model, base, data, changes)
     cond = _with_changes(model, base, changes) if changes else base
     return solve_point(model, cond, backend or default_backend, check_limits=check_limits)
 
@@ -348,7 +389,7 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
     if path.is_dir():
         path = path / f"{stem}.h5"
     action = store.check_target(path, resume=resume or auto_resume, force=force)
-    layout = study.result_layout(case.model, plan.backend)
+    layout = study.result_layout(case.model)
     run = StudyRun(case, plan, path, action)
     main_thread = threading.current_thread() is threading.main_thread()
     old_handler = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None

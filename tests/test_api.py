@@ -145,6 +145,10 @@ def test_conditions_object_and_backend(reheat_model):
     ({"throttle_pressure": 150e5}, "throttle_pressure"),  # sliding pressure holds none
     ({"heaters_out": ["HP9"]}, "heaters_out"),
     ({"heaters_out": ["deaerator"]}, "heaters_out"),
+    # the case reader's ranges: a case file refuses these too
+    ({"throttle_flow_fraction": 5.0}, "throttle_flow_fraction"),
+    ({"exhaust_pressure": -1.0}, "exhaust_pressure"),
+    ({"throttle_temperature": 2000.0}, "throttle_temperature"),
 ])
 def test_mistaken_keywords_are_input_errors_naming_the_key(reheat_model, keywords, key):
     with pytest.raises(InputError) as info:

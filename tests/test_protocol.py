@@ -12,8 +12,10 @@ convention of its own (no source needed): the checks are identities.
 from __future__ import annotations
 
 import copy
+import csv
 import json
 from dataclasses import dataclass
+from pathlib import Path
 from typing import ClassVar
 
 import h5py
@@ -205,6 +207,12 @@ def test_new_kind_through_files(strainer_kind, tmp_path, capsys):
         drops = f["strainers/pressure_drop"][:, 0]
         p_in = f["nodes/pressure"][:, list(f["nodes/names"].asstr()[:]).index("ip_exhaust")]
         assert drops == pytest.approx([0.02 * p_in[0], 0.08 * p_in[1]], rel=1e-9)
+    # and the CSV export has a file for it, in display units
+    assert main(["export", str(out), "--output", str(tmp_path / "csv")]) == 0
+    with open(tmp_path / "csv" / "sweep_strainers.csv") as fh:
+        rows = list(csv.DictReader(fh))
+    assert [float(r["pressure_drop S1 [bar]"]) for r in rows] == pytest.approx(drops / 1e5,
+                                                                              rel=1e-9)
 
 
 def test_a_new_kind_reports_its_mistakes_like_the_others(strainer_kind):
@@ -217,3 +225,45 @@ def test_a_new_kind_reports_its_mistakes_like_the_others(strainer_kind):
     with pytest.raises(ValueError):
         register(Strainer)
     assert "strainer" in KINDS
+
+
+def test_every_declared_tunable_names_a_calibrated_number(reheat_model, industrial_model):
+    # a declaration that names no attribute would let a later fit change nothing
+    seen = set()
+    for model in (reheat_model, industrial_model):
+        for c in model.components:
+            for t in type(c).tunables:
+                value = getattr(c, t.attribute)
+                assert value is None or isinstance(value, float), (c.name, t.name)
+                assert value is None or t.lo <= value <= t.hi, (c.name, t.name, value)
+                seen.add((type(c).table, t.name))
+    assert ("stage_group", "efficiency") in seen and ("heater", "ttd") in seen
+
+
+def test_an_input_written_two_ways_is_refused(tmp_path):
+    # extraction_flow.NAME and extractions.NAME.flow set the same input: one study
+    # cannot vary it twice (it would keep one and label the points with the other)
+    case = tmp_path / "twice.toml"
+    model = Path(__file__).resolve().parent.parent / "models" / "demo_industrial_unit.toml"
+    case.write_text(f'model = "{model.as_posix()}"\n'
+                    '[sweep.extraction_flow]\nprocess_steam = ["10 kg/s", "20 kg/s"]\n'
+                    '[sweep.extractions.process_steam]\nflow = ["5 kg/s", "15 kg/s"]\n')
+    with pytest.raises(InputError, match="varied twice"):
+        plan_study(load_case(case))
+    # written the second way alone it is the same axis as the first way
+    case.write_text(f'model = "{model.as_posix()}"\n'
+                    '[sweep.extractions.process_steam]\nflow = ["5 kg/s", "15 kg/s"]\n')
+    plan = plan_study(load_case(case))
+    assert plan.axes == ["extraction_flow.process_steam"]
+    assert [dict(c.extraction_control)["process_steam"] for c in plan.conditions] == [
+        ("flow", 5.0), ("flow", 15.0)]
+
+
+def test_an_empty_settings_table_is_a_mistake(tmp_path):
+    case = tmp_path / "empty.toml"
+    model = Path(__file__).resolve().parent.parent / "models" / "demo_industrial_unit.toml"
+    case.write_text(f'model = "{model.as_posix()}"\n[control_valves."LP control valve"]\n')
+    with pytest.raises(InputError) as err:
+        load_case(case)
+    assert err.value.table == 'control_valves.LP control valve'
+    assert "pressure" in str(err.value)

@@ -81,7 +81,7 @@ def test_layout_reads_back_with_h5py_alone(sweep_file):
     plan = plan_study(case)
     with h5py.File(out, "r") as f:
         a = f.attrs
-        assert a["format"] == FORMAT and a["format_version"] == 1
+        assert a["format"] == FORMAT and a["format_version"] == 2
         assert a["software_version"] == __version__
         assert a["model_sha256"] == case.model.sha256 and a["case_sha256"] == case.sha256
         assert a["property_backend"] == "seuif97" and a["n_points"] == 10
@@ -438,24 +438,33 @@ def test_reading_checks_the_format(tmp_path):
 
 
 def test_result_format_versions(sweep_file, tmp_path, capsys):
-    """Version 1 files read; a newer or missing ``format_version`` is refused with
-    the file, the version found and the versions read (this partload reads 1)."""
+    """Version 1 and 2 files read; a newer or missing ``format_version`` is refused
+    with the file, the version found and the versions read (this partload reads 1
+    and 2 and writes 2); a version 1 file is not resumed."""
     case, out = sweep_file
     copy = tmp_path / "versions.h5"
     shutil.copy(out, copy)
-    assert read_study(copy).attrs["format_version"] == 1
+    assert read_study(copy).attrs["format_version"] == 2
     with h5py.File(copy, "r+") as f:
-        f.attrs["format_version"] = 2
+        f.attrs["format_version"] = 3
     before = copy.read_bytes()
     with pytest.raises(ResultFileError) as info:
         read_study(copy)
     text = str(info.value)
-    assert str(copy) in text and "version 2" in text and "newer" in text
-    assert "reads result format version 1" in text
+    assert str(copy) in text and "version 3" in text and "newer" in text
+    assert "reads result format version 1, 2" in text
     assert run_cli("export", copy) == 3
-    assert "version 2" in capsys.readouterr().err
+    assert "version 3" in capsys.readouterr().err
     assert run_cli("study", case, "--workers", "1", "--output", copy, "-q", "--resume") == 3
-    assert "version 2" in capsys.readouterr().err
+    assert "version 3" in capsys.readouterr().err
+    assert copy.read_bytes() == before
+    with h5py.File(copy, "r+") as f:  # an older layout reads, but is not resumed
+        f.attrs["format_version"] = 1
+    assert read_study(copy).done.all()
+    before = copy.read_bytes()
+    assert run_cli("study", case, "--workers", "1", "--output", copy, "-q", "--resume") == 3
+    err = capsys.readouterr().err
+    assert "format version 1" in err and "writes version 2" in err
     assert copy.read_bytes() == before
     with h5py.File(copy, "r+") as f:
         del f.attrs["format_version"]
@@ -463,9 +472,9 @@ def test_result_format_versions(sweep_file, tmp_path, capsys):
         read_study(copy)
     text = str(info.value)
     assert str(copy) in text and "no root attribute 'format_version'" in text
-    assert "reads result format version 1" in text
-    with h5py.File(copy, "r+") as f:  # the same file marked version 1 again reads as before
-        f.attrs["format_version"] = 1
+    assert "reads result format version 1, 2" in text
+    with h5py.File(copy, "r+") as f:  # the same file marked version 2 again reads as before
+        f.attrs["format_version"] = 2
     assert read_study(copy).done.all()
 
 

@@ -47,7 +47,7 @@ def write_case(tmp_path: Path, body: str, name: str = "study.toml", model: Path 
 
 def collect(plan, **kw):
     """Run ``plan`` and return every stored array by path, in plan order."""
-    layout = result_layout(plan.case.model, plan.backend)
+    layout = result_layout(plan.case.model)
     out = {f.path: np.full((plan.n_points, f.width) if f.width else (plan.n_points,), f.fill,
                            dtype=f.dtype) for f in layout.fields()}
     seen = []
@@ -467,7 +467,7 @@ def test_guarded_continuation_solves_every_point_the_last_solution_start_solves(
     for plan, chunk in _continuation_plans():
         model = plan.case.model
         spec = SolveSpec(model.text, model.file, model.sha256, plan.backend,
-                         result_layout(model, plan.backend))
+                         result_layout(model))
         res = solve_chunk(spec, chunk, plan.conditions[chunk.start:chunk.stop])
         before = _solve_from_last_solution(plan, chunk)
         for k, (p, out) in before.items():

@@ -3,7 +3,7 @@ calibration, part of the equations, case settings, tunables and result
 columns (the protocol of :mod:`simulator.components.base`), and the registry
 that maps a table name to its kind."""
 
-from .base import H_DRY, Column, Component, ReadContext, Setting, SteamPathComponent, Tunable
+from .base import Column, Component, ReadContext, Setting, SteamPathComponent, Tunable
 from .control_valve import ControlValve
 from .extraction import EXTRACTION_CONTROLS, Extraction
 from .generator import Generator
@@ -16,7 +16,7 @@ from .stage_group import ExhaustEnd, StageGroup
 from .throttle_valve import ThrottleValve
 
 __all__ = [
-    "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable", "H_DRY",
+    "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable",
     "KINDS", "register", "unregister", "kind_of_results",
     "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "Generator", "Heater", "HEATER_TYPES",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",

@@ -36,14 +36,8 @@ import math
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..steam.constants import H_ABOVE_SAT_VAP
+__all__ = ["Column", "Setting", "Tunable", "Component", "SteamPathComponent", "ReadContext"]
 
-__all__ = ["Column", "Setting", "Tunable", "Component", "SteamPathComponent", "ReadContext",
-           "H_DRY"]
-
-# [J/kg] above the largest saturated-vapour enthalpy of water: an expansion end point
-# above it is certainly dry (the constant and its source: simulator.steam.constants)
-H_DRY = H_ABOVE_SAT_VAP
 
 
 @dataclass(frozen=True)

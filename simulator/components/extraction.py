@@ -34,7 +34,7 @@ class Extraction(Component):
     settings: ClassVar[tuple[Setting, ...]] = (
         Setting("control", "choice", "how the bleed flow is set", EXTRACTION_CONTROLS),
         Setting("flow", "mass_flow", "bleed flow held (control = 'flow')", lo=0.0),
-        Setting("fraction", "number", "bleed flow over throttle flow (control = 'fraction')",
+        Setting("fraction", "fraction", "bleed flow over throttle flow (control = 'fraction')",
                 lo=0.0, hi=1.0),
     )
     columns: ClassVar[tuple[Column, ...]] = (

@@ -18,7 +18,8 @@ from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correct
 from ..physics.ellipse import ellipse_flow, flow_constant
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
 from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
-from .base import H_DRY, Column, ReadContext, SteamPathComponent, Tunable
+from ..steam.constants import H_ABOVE_SAT_VAP
+from .base import Column, ReadContext, SteamPathComponent, Tunable
 from .reading import edge_names, ratio_list
 
 __all__ = ["StageGroup", "ExhaustEnd"]
@@ -170,7 +171,7 @@ class StageGroup(SteamPathComponent):
         if y_in is None:
             y_in = 1.0 - steam.x_ph(p_in, h_in) if alpha else 0.0
         h_dry_end = h_in - eta_dry * dh_s
-        if h_dry_end > H_DRY:  # above every saturated vapour: a dry end, no lookups
+        if h_dry_end > H_ABOVE_SAT_VAP:  # above every saturated vapour: a dry end, no lookups
             h_vap = h_liq = math.nan
             h_elep = dry_expansion_end(h_in, dh_s, eta_dry, y_in, alpha)
             y_out = 0.0
@@ -198,7 +199,7 @@ class StageGroup(SteamPathComponent):
         steam = march.steam
         pi = march.p[i]
         hi = march.h[i]
-        if self.alpha and hi < H_DRY:
+        if self.alpha and hi < H_ABOVE_SAT_VAP:
             hv, hl = march.hv, march.hl
             hvi = hv[i]
             if hvi != hvi:  # node state not known from upstream

@@ -206,6 +206,9 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
         for cname, w, table in _named_tables(data, kind.settings_table, known, kind.title,
                                              file, problems):
             reader = TableReader(table, w, problems, atmosphere=model.atmosphere)
+            if isinstance(table, dict) and not table:
+                problems.add(w.error("an empty table sets nothing; give one of: "
+                                     + ", ".join(st.name for st in kind.settings)))
             values = {st.name: st.read(reader) for st in kind.settings if st.name in reader.data}
             reader.finish(also_valid=[st.name for st in kind.settings])
             known[cname].apply_settings(values, w, target)

@@ -95,6 +95,9 @@ class Model:
     limits: Limits = field(default_factory=default_limits)
     warnings: list[str] = field(default_factory=list)
     atmosphere: float | None = None  # [Pa] stated local atmosphere, for gauge pressures
+    # compiled equations kept by the solver, one per structure and thread
+    # (simulator.solve.equations.equations_for); not part of the model's identity
+    solver_cache: dict = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def source(self) -> str:

@@ -121,7 +121,7 @@ def _dots(n: int, scale: float = 1.0) -> dict:
 
 
 def _disp(st: StudyData, key: str) -> np.ndarray:
-    return to_display(st.data[key], st.units.get(key, ""), key)[0]
+    return to_display(st.data[key], st.units.get(key, ""), key, st.display.get(key))[0]
 
 
 def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, ylabel: str,

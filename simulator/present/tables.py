@@ -202,7 +202,7 @@ def format_model(model) -> str:
         lines.append(_table("Reheaters and pipes", ["name", "from", "to", "design drop",
                                                     "outlet T"],
                             [[c.name, c.inlet, c.outlet, c.dp_design / 1e5,
-                              getattr(c, "outlet_temperature", None)]
+                              c.outlet_temperature - 273.15 if c in model.reheaters else None]
                              for c in model.reheaters + model.pipes],
                             ["", "", "", "bar", "degC"]))
         lines.append("")

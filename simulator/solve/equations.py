@@ -50,7 +50,7 @@ class PointEquations:
     with the valves wide open; the throttle flow is the unknown).
 
     The structure (unknowns, residual rows, the compiled water side) depends
-    only on the governing mode, on whether an output is demanded, on the
+    only on the valve and pressure modes, on whether an output is demanded, on the
     extraction controls and on the heaters out of service; it is built once per
     model and kept (:func:`equations_for`).  The operating values are set by
     :meth:`set_conditions`.
@@ -349,7 +349,7 @@ def equations_for(model: Model, cond: Conditions, steam: SteamTables,
     key = (cond.valve_mode, cond.pressure_mode, mode, cond.output is not None,
            cond.extraction_control, cond.heaters_out, steam.name, frozenset(wide_open))
     key = key + (threading.get_ident(),)  # one compiled copy per thread: it holds state
-    cache = model.__dict__.setdefault("_equations", {})
+    cache = model.solver_cache
     eq = cache.get(key)
     if eq is None:
         if len(cache) > 64:

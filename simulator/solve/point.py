@@ -1,24 +1,13 @@
-"""Solve one operating point: the equations, Newton, and the point result.
+"""Solve one operating point: Newton on the point's equations
+(:mod:`simulator.solve.equations`), the checks of the answer, and the point
+result built from the declared columns (:mod:`simulator.solve.result`).
 
-Unknowns
-    * ``ln p`` at every node whose pressure is not fixed (exhaust nodes are
-      fixed by the condenser or back pressure; the throttle node is fixed under
-      throttle governing);
-    * the bleed flow of every in-service heater, over design throttle flow;
-    * the throttle flow, over its design value, when an output is demanded.
-
-Residuals (all dimensionless)
-    * mass balance at each free node, over design throttle flow;
-    * at the inlet node of a valve, reheater or pipe, which passes the whole
-      net flow of its inlet node, its pressure-drop law instead, over the
-      node's design pressure;
-    * each heater's energy balance, over its design duty;
-    * generator output minus demand, over the rating.
-
-A march in topological order gives every flow and enthalpy from the unknowns,
-so the system stays small (one equation per node and heater).  Newton's method
-(:mod:`simulator.newton`) starts from the design pressures scaled by flow with
-the ellipse law, or from a neighbouring solution.
+Newton's method (:mod:`simulator.solve.newton`) starts from the design
+pressures scaled by flow with the ellipse law, or from a solved neighbour
+(its solution scaled the same way, a guarded predictor along the load, its
+Jacobian).  Control valves that hold their inlet pressure or stand wide open
+are switched until the solution agrees with their state.  An answer no machine
+can give, or one beyond the throttle valves, raises :class:`InfeasibleError`.
 """
 
 from __future__ import annotations

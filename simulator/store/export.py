@@ -21,13 +21,14 @@ from .reader import read_study
 
 __all__ = ["to_display", "export_csv"]
 
-# datasets whose kelvin are differences, and dimensionless ones shown in percent
-_DIFFERENCES = ("heaters/ttd", "heaters/dca")
-_PERCENT = ("stage_groups/efficiency", "stage_groups/outlet_moisture", "totals/exhaust_moisture")
-_KEEP = ("totals/energy_imbalance",)
+# display rules of files of format version 1, which do not store them
+_V1_DISPLAY = {"heaters/ttd": "K", "heaters/dca": "K", "stage_groups/efficiency": "%",
+               "stage_groups/outlet_moisture": "%", "totals/exhaust_moisture": "%",
+               "totals/energy_imbalance": "W"}
 
 
-def to_display(values, unit: str, path: str = "") -> tuple[np.ndarray, str]:
+def to_display(values, unit: str, path: str = "",
+               display: str | None = None) -> tuple[np.ndarray, str]:
     """Convert SI values to the engineer's units used in tables, CSV and plots.
 
     Pressure in bar, temperature in degC (differences stay in K), enthalpy in
@@ -38,17 +39,22 @@ def to_display(values, unit: str, path: str = "") -> tuple[np.ndarray, str]:
     ----------
     values : array in SI units [unit]
     unit : its SI unit, the dataset's ``unit`` attribute [-]
-    path : the dataset path, for the exceptions above [-]
+    path : the dataset path [-]
+    display : the dataset's ``display`` attribute, the declared column's rule:
+        ``"%"`` (a fraction shown in per cent) or a unit kept as it is (a
+        temperature difference in K); a file of format version 1 has none, and
+        the rules of its datasets are known by path [-]
 
     Returns
     -------
     values, unit : converted array and its unit
     """
     v = np.asarray(values, dtype=float)
-    if path in _KEEP or path in _DIFFERENCES:
-        return v, unit
-    if path in _PERCENT:
+    display = display or _V1_DISPLAY.get(path)
+    if display == "%":
         return v * 100.0, "%"
+    if display is not None:
+        return v, display
     return to_display_unit(v, unit)
 
 
@@ -65,9 +71,10 @@ def _fmt(col: np.ndarray) -> list[str]:
 def export_csv(path: str | Path, out_dir: str | Path | None = None, si: bool = False) -> list[Path]:
     """Write a study result as CSV files for spreadsheets.
 
-    Files ``<stem>_points.csv`` (inputs, solver record, totals, cautions),
-    ``<stem>_nodes.csv``, ``<stem>_stage_groups.csv``, ``<stem>_extractions.csv``
-    and ``<stem>_heaters.csv``; one row per point, in the order of the file.
+    Files ``<stem>_points.csv`` (inputs, solver record, totals, cautions) and
+    one file per result group of the file (``<stem>_nodes.csv``,
+    ``<stem>_stage_groups.csv``, ``<stem>_heaters.csv``, one per kind of
+    component); one row per point, in the order of the file.
     Headers give the unit in brackets, e.g. ``generator_output [MW]`` or
     ``pressure crossover [bar]``; ``input`` columns hold what was asked.
     Values are in display units (see :func:`to_display`), or SI with ``si``.
@@ -95,7 +102,7 @@ def export_csv(path: str | Path, out_dir: str | Path | None = None, si: bool = F
         unit = st.units.get(key, "")
         if si or np.asarray(values).dtype.kind not in "fiu" or not unit:
             return np.asarray(values), unit
-        return to_display(values, unit, key)
+        return to_display(values, unit, key, st.display.get(key))
 
     def head(name, unit):
         return f"{name} [{unit}]" if unit else name
@@ -120,8 +127,7 @@ def export_csv(path: str | Path, out_dir: str | Path | None = None, si: bool = F
         cols.append(("caution messages", np.array([m.replace("\n", " | ") for m in
                                                    st.data["cautions/messages"]], dtype=object)))
     files.append(_write_csv(out_dir / f"{stem}_points.csv", cols))
-    for group in ("nodes", "stage_groups", "extractions", "heaters"):
-        items = st.names.get(group, [])
+    for group, items in st.names.items():  # the nodes and one group per kind
         cols = list(base_cols)
         for key in [k for k in st.data if k.startswith(group + "/")]:
             arr = st.data[key]

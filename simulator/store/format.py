@@ -12,8 +12,16 @@ numbered ``0 .. n-1``: one *series* after the other (one series per
 combination of the swept values other than the load), the load increasing
 inside a series of a sweep; a profile keeps its file order.
 
+Versions
+    2 (this partload writes it): one result group per kind of component
+    (``/throttle_valve``, ``/reheaters``, ``/pipes``, ``/control_valves`` are
+    new), ``/inputs/valve_mode`` and ``/inputs/pressure_mode`` instead of
+    ``/inputs/governing``, control valves in ``/paths``, text columns of 16
+    bytes.  1: the first layout.  Both are read (plots, export); only files of
+    the version this partload writes are resumed.
+
 Root attributes
-    ``format`` = ``"partload-study"``, ``format_version`` (1), ``software``
+    ``format`` = ``"partload-study"``, ``format_version`` (2), ``software``
     (``"partload"``), ``software_version``, ``created`` (UTC, ISO 8601),
     ``property_backend``, ``units`` (a reminder that all is SI),
     ``model_name``, ``model_file``, ``model_sha256``, ``case_name``,
@@ -168,8 +176,8 @@ __all__ = [
 ]
 
 FORMAT = "partload-study"
-FORMAT_VERSION = 1  # the version this software writes
-READABLE_VERSIONS = (1,)  # the versions this software reads
+FORMAT_VERSION = 2  # the version this software writes
+READABLE_VERSIONS = (1, 2)  # the versions this software reads
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
 TEXT = h5py.string_dtype("utf-8")  # variable-length UTF-8 text
 

@@ -52,7 +52,8 @@ class Field:
     ``path`` below the file root; ``dtype`` a numpy dtype string (``"S400"``
     for fixed-length UTF-8 text); ``width`` the number of columns (``0``: a
     one-dimensional dataset); ``unit`` SI; ``fill`` the value before the point
-    is solved.
+    is solved; ``display`` the column's display rule (stored in the dataset's
+    ``display`` attribute: ``"%"`` or a unit kept as it is).
     """
 
     path: str
@@ -61,6 +62,7 @@ class Field:
     unit: str
     description: str
     fill: float | int | bytes = math.nan
+    display: str | None = None  # how it is shown where not by its unit (Column.display)
 
 
 @dataclass
@@ -137,9 +139,10 @@ class ResultLayout:
                 text = col.description + ("" if col.when_out else
                                           " (NaN when out of service)")
                 f.append(Field(f"{g.name}/{col.name}", _dtype(col), len(g.names), col.unit,
-                               text, _fill(col)))
+                               text, _fill(col), col.display))
         for col in self.totals:
-            f.append(Field(f"totals/{col.name}", "f8", 0, col.unit, col.description))
+            f.append(Field(f"totals/{col.name}", "f8", 0, col.unit, col.description,
+                           display=col.display))
         if self.cautions:
             f += [
                 Field("cautions/count", "i2", 0, "-",
@@ -220,11 +223,10 @@ def _cautions_available() -> tuple[bool, list[str]]:
     return True, [str(c) for c in CAUTION_CODES]
 
 
-def result_layout(model, backend: str = "seuif97") -> ResultLayout:
+def result_layout(model) -> ResultLayout:
     """The result layout of ``model`` (a :class:`~simulator.plant.model.Model`),
     from the declared columns of the nodes, of every kind it has and of the
-    totals.  ``backend`` is accepted for callers that name one; the layout does
-    not depend on it."""
+    totals."""
     groups = [ResultGroup("nodes", list(model.order), NODE_COLUMNS)]
     for kind in KINDS.values():
         comps = model.of_kind(kind)

@@ -78,6 +78,7 @@ class StudyData:
     descriptions: dict[str, str]
     inputs: dict[str, np.ndarray]
     texts: dict[str, str] = field(default_factory=dict)
+    display: dict[str, str] = field(default_factory=dict)  # display rules by path
     topology: dict[str, list[str]] = field(default_factory=dict)
 
     @property
@@ -123,7 +124,7 @@ def read_study(path: str | Path) -> StudyData:
                          and g not in ("points", "inputs", "paths")]
         names = {g: list(f[g]["names"].asstr()[:]) for g in result_groups
                  if "names" in f[g] and g != "cautions"}
-        data, units, desc = {}, {}, {}
+        data, units, desc, display = {}, {}, {}, {}
         for gname in result_groups:
             for dname, ds in f[gname].items():
                 if dname in ("names", "inlet", "outlet", "nodes", "kind") and gname != "totals":
@@ -132,6 +133,8 @@ def read_study(path: str | Path) -> StudyData:
                 data[key] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
                 units[key] = attr_value(ds.attrs.get("unit", ""))
                 desc[key] = attr_value(ds.attrs.get("description", ""))
+                if "display" in ds.attrs:
+                    display[key] = attr_value(ds.attrs["display"])
         inputs = {}
         for name, ds in f["inputs"].items():
             inputs[name] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
@@ -148,5 +151,6 @@ def read_study(path: str | Path) -> StudyData:
             path=path, attrs=attrs, labels=list(f["points/label"].asstr()[:]),
             series=f["points/series"][:], series_labels=list(f["points/series_labels"].asstr()[:]),
             done=f["points/done"][:].astype(bool), status=f["solver/status"][:],
-            names=names, data=data, units=units, descriptions=desc, inputs=inputs, texts=texts,
+            names=names, data=data, units=units, descriptions=desc, display=display,
+            inputs=inputs, texts=texts,
             topology=topo)

@@ -25,6 +25,7 @@ from .format import (
     FORMAT,
     FORMAT_VERSION,
     TEXT,
+    attr_value,
     check_format,
     format_name,
     in_use,
@@ -183,6 +184,13 @@ class StudyFile:
         f = open_hdf5(path, "r+")
         try:
             check_format(f, path)
+            found = attr_value(f.attrs.get("format_version"))
+            if found != FORMAT_VERSION:
+                raise ResultFileError(
+                    f"cannot resume {path}: it has result format version {found}, and this "
+                    f"partload writes version {FORMAT_VERSION} (one result group per kind of "
+                    f"component); plot or export it as it is, or run the study anew with "
+                    f"--force or another --output")
             _check_same_study(f, path, plan)
             if int(f.attrs.get("check_limits", 1)) != int(check_limits):
                 was = "with" if int(f.attrs.get("check_limits", 1)) else "without"
@@ -322,6 +330,8 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
         if fl.unit:
             ds.attrs["unit"] = fl.unit
         ds.attrs["description"] = fl.description
+        if fl.display:
+            ds.attrs["display"] = fl.display
 
     def dimensionless(name, obj):  # every numeric dataset states a unit
         if isinstance(obj, h5py.Dataset) and obj.dtype.kind in "iuf" and "unit" not in obj.attrs:

@@ -29,6 +29,7 @@ __all__ = [
     "CONTINUATION_ORDER",
     "MAX_POINTS",
     "axis_kind",
+    "canonical_key",
     "setting_axis",
     "check_extraction_flow",
     "check_range",
@@ -134,6 +135,15 @@ def axis_kind(key: str, where: Where, model: Model | None = None) -> AxisKind:
     return AXES[base]
 
 
+def canonical_key(key: str) -> str:
+    """The one name of an axis written two ways: an extraction's flow setting
+    ``extractions.NAME.flow`` is the axis ``extraction_flow.NAME``."""
+    parts = key.split(".")
+    if parts[0] == "extractions" and len(parts) >= 3 and parts[-1] == "flow":
+        return "extraction_flow." + ".".join(parts[1:-1])
+    return key
+
+
 def _settings_tables() -> dict:
     """Case tables of per-component settings -> their kind."""
     return {k.settings_table: k for k in KINDS.values() if k.settings_table}
@@ -157,7 +167,7 @@ def setting_axis(key: str, model: Model, where: Where) -> AxisKind:
     numeric = [s.name for s in kind.settings if s.dimension in DIMENSIONS]
     if st is None or st.name not in numeric:
         raise where.child(key).error(
-            f"{setting!r} is not a quantity of a {kind.title} that can be varied "
+            f"{setting!r} is not a quantity of the {kind.title} that can be varied "
             f"(it has: {', '.join(numeric) or 'none'})")
     return AxisKind(st.dimension, DIMENSIONS[st.dimension][0] or "-", "state", st.lo, st.hi, False,
                     f"{kind.title} {name!r}: {st.description}")
@@ -345,8 +355,10 @@ def read_sweep(case: Case) -> list[Axis]:
             for name, settings in value.items():
                 wt = Where(case.file, f"sweep.{key}.{name}")
                 for setting, v in settings.items():
-                    axes.append(_read_axis(f"{key}.{name}.{setting}", v, wt.child(setting),
-                                           case))
+                    akey = canonical_key(f"{key}.{name}.{setting}")
+                    if akey.startswith("extraction_flow."):
+                        check_extraction_flow(case.model, name, wt)
+                    axes.append(_read_axis(akey, v, wt.child(setting), case))
             continue
         axes.append(_read_axis(key, value, w.child(key), case))
     if not axes:

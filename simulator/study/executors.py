@@ -60,7 +60,7 @@ def run_study(plan: StudyPlan, on_result: Callable[[ChunkResult], None], *,
         every chunk finished before the stop has been handed to ``on_result``.
     """
     model = plan.case.model
-    layout = layout or result_layout(model, plan.backend)
+    layout = layout or result_layout(model)
     spec = SolveSpec(model.text, model.file, model.sha256, plan.backend, layout, check_limits)
     keep_model(model)  # inherited by forked workers
     todo = [c for c in plan.chunks if c.index not in skip]

@@ -199,7 +199,9 @@ def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
     keys = [a.key for a in axes]
     dup = [k for k in keys if keys.count(k) > 1]
     if dup:
-        raise where.child(dup[0]).error("varied both in [sweep] and in the profile")
+        raise where.child(dup[0]).error(
+            "varied twice: in [sweep] and in the profile, or written two ways "
+            "(extraction_flow.NAME and extractions.NAME.flow are one input)")
 
 
 def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, InputColumn]:

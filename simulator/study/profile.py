@@ -23,6 +23,7 @@ from .axes import (
     Axis,
     AxisKind,
     axis_kind,
+    canonical_key,
     check_extraction_flow,
     check_range,
     switch_names,
@@ -121,7 +122,7 @@ def read_profile(case: Case) -> ProfileSource:
         if not m:
             raise wh.error("cannot read this column header; write it as 'key [unit]', "
                            "e.g. 'output [MW]'")
-        key, unit = m.group(1), m.group(2) or ""
+        key, unit = canonical_key(m.group(1)), m.group(2) or ""
         kind = axis_kind(key, Where(fname, f"line {hline}"), case.model)
         if key in seen:
             raise wh.error("this column appears twice")
