@@ -273,7 +273,7 @@ DISPLAY = {
 }
 
 
-def to_display_unit(values, si_unit: str) -> tuple[np.ndarray, str]:
+def to_display_unit(values, si_unit: str, display: str | None = None) -> tuple[np.ndarray, str]:
     """Convert SI values to the display unit of :data:`DISPLAY`.
 
     Pressure to bar, temperature to degC, specific enthalpy to kJ/kg, entropy
@@ -287,6 +287,10 @@ def to_display_unit(values, si_unit: str) -> tuple[np.ndarray, str]:
         Number or array in the SI unit ``si_unit`` [si_unit].
     si_unit
         The SI unit of ``values``, as in :data:`DISPLAY` [-].
+    display
+        A declared column's own rule (``Column.display``), which comes first:
+        ``"%"`` shows a fraction in per cent; any other unit keeps the values as
+        they are in it (a temperature difference in K) [-].
 
     Returns
     -------
@@ -296,6 +300,10 @@ def to_display_unit(values, si_unit: str) -> tuple[np.ndarray, str]:
         ``si_unit`` is not in :data:`DISPLAY`.
     """
     v = np.asarray(values, dtype=float)
+    if display == "%":
+        return v * 100.0, "%"
+    if display is not None:
+        return v, display
     if si_unit in DISPLAY:
         unit, factor, offset = DISPLAY[si_unit]
         return v * factor + offset, unit

@@ -212,20 +212,16 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
             values = {st.name: st.read(reader) for st in kind.settings if st.name in reader.data}
             reader.finish(also_valid=[st.name for st in kind.settings])
             known[cname].apply_settings(values, w, target)
-    controls = target.extraction_control
     for hname in target.heaters_out:  # out of service, or its extraction closed
         e = model.extractions[model.heaters[hname].extraction]
-        controls.append((e.name, ("closed", 0.0)))
+        target.extraction_control.append((e.name, ("closed", 0.0)))
         if model.heaters[hname].heater_type == "deaerator":
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))
     problems.raise_if_any()
     return Conditions(m_T, out, valve_mode=valve_mode, pressure_mode=pressure_mode,
                       throttle_pressure=p_T, throttle_temperature=T_T, reheat_temperature=T_rh,
-                      exhaust_pressure=p_x, extraction_control=tuple(sorted(controls)),
-                      heaters_out=frozenset(target.heaters_out),
-                      held_pressures=tuple(sorted(target.held_pressures)),
-                      settings=target.settings_tuple())
+                      exhaust_pressure=p_x, **target.fields())
 
 
 def apply_setting(cond: Conditions, model: Model, key: str, value) -> Conditions:
@@ -241,11 +237,7 @@ def apply_setting(cond: Conditions, model: Model, key: str, value) -> Conditions
                             list(cond.held_pressures), list(cond.settings))
     comp.apply_settings({setting: value}, Where(None, f"{table}.{name}"), target)
     target.problems.raise_if_any()
-    return dataclasses.replace(
-        cond, extraction_control=tuple(sorted(dict(target.extraction_control).items())),
-        heaters_out=frozenset(target.heaters_out),
-        held_pressures=tuple(sorted(dict(target.held_pressures).items())),
-        settings=target.settings_tuple())
+    return dataclasses.replace(cond, **target.fields())
 
 
 @dataclass
@@ -261,10 +253,16 @@ class SettingsTarget:
     held_pressures: list = field(default_factory=list)
     settings: list = field(default_factory=list)
 
-    def settings_tuple(self) -> tuple:
-        """The generic settings, the last given of each (table, name, setting) kept."""
+    def fields(self) -> dict:
+        """The :class:`Conditions` fields these settings give, the last given of
+        each extraction, valve and (table, name, setting) kept."""
         last = {(t, n, s): v for t, n, s, v in self.settings}
-        return tuple(sorted((t, n, s, v) for (t, n, s), v in last.items()))
+        return {
+            "extraction_control": tuple(sorted(dict(self.extraction_control).items())),
+            "heaters_out": frozenset(self.heaters_out),
+            "held_pressures": tuple(sorted(dict(self.held_pressures).items())),
+            "settings": tuple(sorted((t, n, s, v) for (t, n, s), v in last.items())),
+        }
 
 
 def _named_tables(data: dict, key: str, known, what: str, file: str, problems: Problems):

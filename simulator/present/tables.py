@@ -29,12 +29,7 @@ _NOT_SHOWN = ("steam_path",)
 
 def shown(values, column) -> tuple[np.ndarray, str]:
     """Values of a declared column in its display unit, and that unit."""
-    v = np.asarray(values, dtype=float)
-    if column.display == "%":
-        return v * 100.0, "%"
-    if column.display is not None:
-        return v, column.display
-    return to_display_unit(v, column.unit)
+    return to_display_unit(values, column.unit, column.display)
 
 
 def _f(v) -> float | None:

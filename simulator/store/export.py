@@ -49,13 +49,7 @@ def to_display(values, unit: str, path: str = "",
     -------
     values, unit : converted array and its unit
     """
-    v = np.asarray(values, dtype=float)
-    display = display or _V1_DISPLAY.get(path)
-    if display == "%":
-        return v * 100.0, "%"
-    if display is not None:
-        return v, display
-    return to_display_unit(v, unit)
+    return to_display_unit(values, unit, display or _V1_DISPLAY.get(path))
 
 
 def _fmt(col: np.ndarray) -> list[str]:
