@@ -78,7 +78,7 @@ class Strainer(SteamPathComponent):
 
     def evaluate(self, march, i, j, m_net):
         f = march.setting(self, "drop_fraction", self.fraction)
-        return march.h[i], f * march.p[i], None
+        return march.h[i], f * march.p[i], 0.0, None
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out):
         return (m, p_in - p_out)

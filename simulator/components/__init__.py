@@ -7,6 +7,7 @@ from .base import Column, Component, ReadContext, Setting, SteamPathComponent, T
 from .control_valve import ControlValve
 from .extraction import EXTRACTION_CONTROLS, Extraction
 from .generator import Generator
+from .governing_stage import GoverningStage
 from .heater import HEATER_TYPES, TTD_METHODS, Heater
 from .pipe import Pipe
 from .pump import Pump
@@ -18,6 +19,7 @@ from .throttle_valve import ThrottleValve
 __all__ = [
     "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable",
     "KINDS", "register", "unregister", "kind_of_results",
-    "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "Generator", "Heater", "HEATER_TYPES",
+    "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "Generator", "GoverningStage", "Heater",
+    "HEATER_TYPES",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

@@ -28,6 +28,12 @@ either *sets its flow* from the pressures by its own flow law (a stage group:
 Stodola's ellipse law), or *passes the net flow* arriving at its inlet node
 and owns the pressure-drop law there (valves, reheaters, pipes); the solver
 needs nothing else to know about it.
+
+The steam-path kind leaving the throttle node *admits* the steam to the
+turbine and governs it (``admits``: the throttle valve, or a governing stage
+of nozzle groups).  Under a held throttle pressure it takes whatever pressure
+the flow leaves and tells the solver when that flow is beyond what it can pass
+wide open (``over_capacity``); ``valve_drop`` gives its valves' pressure drop.
 """
 
 from __future__ import annotations
@@ -148,6 +154,10 @@ class Component:
     settings: ClassVar[tuple[Setting, ...]] = ()
     settings_table: ClassVar[str | None] = None
     tunables: ClassVar[tuple[Tunable, ...]] = ()
+    # a second result group with one row per part of the component (the control
+    # valves of a governing stage): its name, columns, row names and rows
+    part_results: ClassVar[str | None] = None
+    part_columns: ClassVar[tuple[Column, ...]] = ()
 
     name: str
 
@@ -203,6 +213,14 @@ class Component:
         ``point`` is a :class:`simulator.solve.point.PointView`."""
         return ()
 
+    def part_names(self) -> list[str]:
+        """Row names of :attr:`part_results` (the parts of this component)."""
+        return []
+
+    def part_rows(self, record) -> list[tuple]:
+        """Values of :attr:`part_columns` for each part, from the march ``record``."""
+        return []
+
 
 class SteamPathComponent(Component):
     """A kind that joins two nodes of the steam path (an edge of the graph).
@@ -215,6 +233,9 @@ class SteamPathComponent(Component):
     """
 
     sets_flow: ClassVar[bool] = False
+    expands: ClassVar[bool] = False  # expands the steam through blading (needs a falling
+    # pressure at every answer)
+    admits: ClassVar[bool] = False  # leaves the throttle node and governs the admission
     # the key of the model file naming this component's inlet / outlet node
     inlet_key: ClassVar[str] = "from"
     outlet_key: ClassVar[str] = "to"
@@ -235,9 +256,20 @@ class SteamPathComponent(Component):
         ``march`` gives ``steam``, the node pressures ``p`` and enthalpies ``h``
         and the conditions of the point.  Kinds that set their flow return
         ``(m, h_out, power, record)``; kinds that pass ``m_net`` return
-        ``(h_out, dp, record)`` with ``dp`` the drop [Pa] their law requires, or
-        ``None`` while they hold their inlet pressure.
+        ``(h_out, dp, power, record)`` with ``dp`` the drop [Pa] their law
+        requires, or ``None`` while they hold their inlet pressure (or, as the
+        admission under a held throttle pressure, take what is left), and
+        ``power`` [W] the work they take from the steam (0 for valves and lines).
         """
+        raise NotImplementedError
+
+    def over_capacity(self, record, p_in: float, p_out: float) -> bool:
+        """Admission kinds: whether at a held throttle pressure ``p_in`` [Pa] the
+        flow of ``record`` needs more than the valves wide open pass to ``p_out`` [Pa]."""
+        raise NotImplementedError
+
+    def valve_drop(self, record, p_in: float, p_out: float) -> float:
+        """Admission kinds: the pressure drop [Pa] across the admitting valves."""
         raise NotImplementedError
 
     def result_row(self, record, m: float, p_in: float, h_in: float, p_out: float,

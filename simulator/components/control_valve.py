@@ -65,8 +65,8 @@ class ControlValve(WideOpenValve, SteamPathComponent):
     def evaluate(self, march, i, j, m_net):
         hi = march.h[i]
         if self.name not in march.wide_open:
-            return hi, None, False  # holding: its inlet node is fixed, no law to meet
-        return hi, self.wide_open_drop(m_net, march.steam.v_ph(march.p[i], hi)), True
+            return hi, None, 0.0, False  # holding: its inlet node is fixed, no law to meet
+        return hi, self.wide_open_drop(m_net, march.steam.v_ph(march.p[i], hi)), 0.0, True
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         return (m, p_in - p_out, 1 if record else 0)

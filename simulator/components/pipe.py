@@ -48,7 +48,7 @@ class Pipe(SquareLawDrop, SteamPathComponent):
 
     def evaluate(self, march, i, j, m_net):
         hi = march.h[i]
-        return hi, self.drop(m_net, march.steam.v_ph(march.p[i], hi)), None
+        return hi, self.drop(m_net, march.steam.v_ph(march.p[i], hi)), 0.0, None
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         return (m, p_in - p_out)

@@ -11,6 +11,7 @@ from .base import Component
 from .control_valve import ControlValve
 from .extraction import Extraction
 from .generator import Generator
+from .governing_stage import GoverningStage
 from .heater import Heater
 from .pipe import Pipe
 from .pump import Pump
@@ -22,7 +23,7 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
-    for cls in (ThrottleValve, StageGroup, Reheater, Pipe, ControlValve, Extraction,
+    for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
                 Generator, Heater, Pump)
 }
 

@@ -71,7 +71,7 @@ class Reheater(SquareLawDrop, SteamPathComponent):
         steam = march.steam
         T_out = march.T_reheat if march.T_reheat is not None else self.outlet_temperature
         dp = self.drop(m_net, steam.v_ph(march.p[i], march.h[i]))
-        return steam.h_pT(march.p[j], T_out), dp, None
+        return steam.h_pT(march.p[j], T_out), dp, 0.0, None
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         return (m, p_in - p_out, m * (h_out - h_in))

@@ -60,6 +60,7 @@ class StageGroup(SteamPathComponent):
     title: ClassVar[str] = "stage group"
     results: ClassVar[str] = "stage_groups"
     sets_flow: ClassVar[bool] = True
+    expands: ClassVar[bool] = True
     calibration_key: ClassVar[str] = "efficiency"
     columns: ClassVar[tuple[Column, ...]] = (
         Column("flow", "kg/s", "steam flow through the group"),

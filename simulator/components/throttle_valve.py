@@ -29,10 +29,10 @@ class ThrottleValve(WideOpenValve, SteamPathComponent):
 
     table: ClassVar[str] = "throttle_valve"
     many: ClassVar[bool] = False
-    required: ClassVar[bool] = True
     title: ClassVar[str] = "throttle valve"
     results: ClassVar[str] = "throttle_valve"
     inlet_key: ClassVar[str] = "node"
+    admits: ClassVar[bool] = True
     columns: ClassVar[tuple[Column, ...]] = (
         Column("flow", "kg/s", "steam flow through the throttle valves"),
         Column("pressure_drop", "Pa", "pressure drop across the throttle valves"),
@@ -59,7 +59,16 @@ class ThrottleValve(WideOpenValve, SteamPathComponent):
     def evaluate(self, march, i, j, m_net):
         hi = march.h[i]
         dp = self.wide_open_drop(m_net, march.steam.v_ph(march.p[i], hi))
-        return hi, dp, dp
+        return hi, dp, 0.0, dp
+
+    def over_capacity(self, record, p_in, p_out) -> bool:
+        # record: the wide-open drop at this flow; within 1e-5 of the throttle
+        # pressure, since the design point itself sits on that limit and its exact
+        # value moves by pascals with the back pressure
+        return p_in - p_out < record - 1e-5 * p_in
+
+    def valve_drop(self, record, p_in, p_out) -> float:
+        return p_in - p_out
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         return (m, p_in - p_out, record)

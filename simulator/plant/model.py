@@ -33,6 +33,7 @@ from ..components import (
     ControlValve,
     Extraction,
     Generator,
+    GoverningStage,
     Heater,
     Pipe,
     Pump,
@@ -40,7 +41,6 @@ from ..components import (
     Reheater,
     StageGroup,
     SteamPathComponent,
-    ThrottleValve,
 )
 from ..components.checks import check_superheated
 from ..errors import InputError
@@ -114,8 +114,15 @@ class Model:
         return [c for c in self.components if isinstance(c, SteamPathComponent)]
 
     @functools.cached_property
-    def valve(self) -> ThrottleValve:
-        return self.of_kind(ThrottleValve)[0]
+    def admission(self) -> SteamPathComponent:
+        """The component leaving the throttle node that governs the admission
+        (the throttle valve, or a governing stage)."""
+        return next(c for c in self.steam_path if c.admits)
+
+    @functools.cached_property
+    def governing_stage(self) -> GoverningStage | None:
+        """The governing stage of a nozzle-governed unit, ``None`` otherwise."""
+        return next(iter(self.of_kind(GoverningStage)), None)
 
     @functools.cached_property
     def groups(self) -> list[StageGroup]:
@@ -311,7 +318,17 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
 
     throttle = ThrottleDesign(t_node, t_p, t_T, t_m, t_pmax or t_p)
     steam_path = [c for c in components if isinstance(c, SteamPathComponent)]
-    graph = build_graph(file, design_p, throttle, by_kind[ThrottleValve][0], steam_path,
+    admissions = [c for c in steam_path if c.admits]
+    if len(admissions) != 1:
+        tables = " or ".join(f"[{k.table}]" for k in KINDS.values()
+                             if issubclass(k, SteamPathComponent) and k.admits)
+        raise InputError(
+            (f"give one of {tables}: the steam enters the turbine through one of them"
+             if not admissions else
+             f"give only one of {tables}: {admissions[0].where} and {admissions[1].where} "
+             f"both leave the throttle node"), file=file, table=admissions[-1].table
+            if admissions else "throttle_valve")
+    graph = build_graph(file, design_p, throttle, admissions[0], steam_path,
                         extractions, exhaust_nodes, heaters, pumps, feedwater, problems)
     problems.raise_if_any()
     model = Model(name, description or "", file, text, hashlib.sha256(text.encode()).hexdigest(),

@@ -95,8 +95,8 @@ def build_graph(file, design_p, throttle, valve, steam_path, extractions, exhaus
                 f"or pipe must take the whole flow of its inlet node", file=file,
                 table="nodes", key=n))
     if g.out_degree(throttle.node) != 1 or valve.outlet not in g.successors(throttle.node):
-        problems.add(TopologyError("the throttle valve must be the only component leaving "
-                                   "the throttle node", file=file, table="throttle_valve",
+        problems.add(TopologyError(f"the {valve.title} must be the only component leaving "
+                                   "the throttle node", file=file, table=valve.table,
                                    key="to"))
     for e in extractions.values():
         where = Where(file, f"extraction '{e.name}'", "node")

@@ -72,6 +72,8 @@ class PointEquations:
         self.src = idx[model.source]
         self.exhaust_idx = [idx[n] for n in model.exhaust_nodes]
         self.throttle_fixed = cond.pressure_mode == "fixed" or mode == "wide_open"
+        # the admission (throttle valve or governing stage) takes what the flow leaves
+        self.admission_throttles = self.throttle_fixed and mode == "point"
         # control valves that throttle hold their inlet pressure
         self.holding = [(idx[c.inlet], c) for c in model.control_valves
                         if c.name not in self.wide_open]
@@ -199,7 +201,7 @@ class PointEquations:
             x[-1] = r
         if self.throttle_fixed and self.mode == "point":
             # start below the held throttle pressure, so the valves can pass the flow
-            k_after = self.free.index(self.idx[m.valve.outlet])
+            k_after = self.free.index(self.idx[m.admission.outlet])
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.98))
         return x
 
@@ -220,7 +222,7 @@ class PointEquations:
             if self.flow_unknown:
                 x[-1] *= f
         if self.throttle_fixed and self.mode == "point":
-            k_after = self.free.index(self.idx[self.model.valve.outlet])
+            k_after = self.free.index(self.idx[self.model.admission.outlet])
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.995))
         return x
 
@@ -299,8 +301,8 @@ class PointEquations:
                     out_flow += m
                 else:  # passes the net flow; its pressure-drop law is the node's residual
                     m = net
-                    power = 0.0
-                    h_out, dp, rec = c.evaluate(self, i, j, m)
+                    h_out, dp, power, rec = c.evaluate(self, i, j, m)
+                    shaft += power
                     if dp is not None and row_of[i] >= 0:
                         F[row_of[i]] = (p[i] - p[j] - dp) / p_design[i]
                     out_flow = m
@@ -338,7 +340,7 @@ class PointEquations:
                                           detail=True)
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
                  "steps": by_name, "shaft": shaft, "P_gen": P_gen,
-                 "valve_drop_needed": by_name[self.model.valve.name][6],
+                 "admission": by_name[self.model.admission.name][6],
                  "feedwater": summary, "control_valve_needed": needed}
         return F, state
 

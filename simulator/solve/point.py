@@ -92,6 +92,10 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     except SolveError as exc:
         raise _with_request(exc, cond, eq) from None
     result = build_result(model, cond, steam, eq, nr, st)
+    if eq.admission_throttles:
+        adm = model.admission
+        result.over_capacity = adm.over_capacity(st["admission"], st["p"][eq.src],
+                                                 st["p"][eq.idx[adm.outlet]])
     r = eq.flow_ratio()
     result.flow_ratio = r
     result.wide_open_valves = wide
@@ -250,9 +254,9 @@ def _check_physical(model, cond, steam, eq, st):
             f"{T_sat - 273.15:.1f} degC: the turbine would receive water, not steam")
     for i, outs in enumerate(eq.outs):
         for c, j in outs:
-            if c.sets_flow and p[j] >= p[i]:
+            if c.expands and p[j] >= p[i]:
                 raise InfeasibleError(
-                    f"no pressure ordering exists for this request: stage group {c.name!r} "
+                    f"no pressure ordering exists for this request: {c.title} {c.name!r} "
                     f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
                     f"{names[j]!r}) above its inlet ({p[i] / 1e5:.4g} bar); "
                     f"the exhaust pressure may be too high for this flow")
@@ -270,14 +274,12 @@ def _check_feasible(model, cond, steam, eq, st):
     p = st["p"]
     src = eq.src
     p_T = p[src]
-    after = eq.idx[model.valve.outlet]
+    admission = model.admission
+    after = eq.idx[admission.outlet]
     asked = (f"an output of {cond.output / 1e6:.2f} MW" if cond.output is not None
              else f"a throttle flow of {st['m_T']:.2f} kg/s")
     if cond.pressure_mode == "fixed":
-        available = p_T - p[after]
-        # valves-wide-open drop to 1e-5 of throttle pressure: the design point itself
-        # sits on that limit, and its exact value moves by pascals with the back pressure
-        if available < st["valve_drop_needed"] - 1e-5 * p_T:
+        if admission.over_capacity(st["admission"], p_T, p[after]):
             m_max, P_max = wide_open_capacity(model, cond, steam, p_T)
             raise InfeasibleError(
                 f"{asked} is beyond the valves-wide-open capacity at the held throttle "
@@ -342,6 +344,11 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
         tables[kind.results] = ResultTable(
             [c.name for c in comps], _columns(kind.columns, rows), kind.columns,
             inlet=inlet, outlet=outlet, node=node)
+        if kind.part_results:
+            parts = [row for c in comps for row in c.part_rows(steps[c.name][6])]
+            tables[kind.part_results] = ResultTable(
+                [n for c in comps for n in c.part_names()], _columns(kind.part_columns, parts),
+                kind.part_columns)
     totals = _totals(model, eq, st, tables)
     return PointResult(
         converged=True, iterations=nr.iterations, residual=nr.residual,
@@ -387,7 +394,8 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
     p, h = st["p"], st["h"]
     m_T = st["m_T"]
     src = eq.src
-    after = eq.idx[model.valve.outlet]
+    admission = model.admission
+    after = eq.idx[admission.outlet]
     groups = tables["stage_groups"].columns
     exhaust = [k for k, c in enumerate(model.groups) if c.exhaust is not None]
     exhaust_loss_power = 0.0
@@ -401,7 +409,7 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
         "throttle_flow": m_T,
         "throttle_pressure": p[src],
         "throttle_temperature": eq.T_throttle,
-        "valve_pressure_drop": p[src] - p[after],
+        "valve_pressure_drop": admission.valve_drop(st["admission"], p[src], p[after]),
         "shaft_power": st["shaft"],
         "generator_output": P_gen,
         "generator_and_mechanical_losses": st["shaft"] - P_gen,

@@ -142,6 +142,9 @@ class PointResult:
     unknowns_curvature: np.ndarray = field(repr=False, default=None)
     slope_from: float = math.nan  # flow ratio of the point the slope was taken from
     wide_open_valves: frozenset = frozenset()
+    # at a held throttle pressure, the flow is more than the admitting valves pass wide
+    # open (a what-if solved with the limit checks off)
+    over_capacity: bool = False
 
     @property
     def governing(self) -> str:

@@ -238,10 +238,14 @@ def result_layout(model) -> ResultLayout:
         elif hasattr(comps[0], "node"):
             texts = {"nodes": [c.node for c in comps]}
         groups.append(ResultGroup(kind.results, [c.name for c in comps], kind.columns, texts))
+        if kind.part_results:
+            groups.append(ResultGroup(kind.part_results,
+                                      [n for c in comps for n in c.part_names()],
+                                      kind.part_columns))
     cautions, codes = _cautions_available()
     paths = [(c.name, c.inlet, c.outlet, c.table) for c in model.steam_path
-             if not c.sets_flow and c is not model.valve]
+             if not c.sets_flow and c is not model.admission]
     return ResultLayout(
-        groups=groups, valve=(model.valve.inlet, model.valve.outlet), paths=paths,
+        groups=groups, valve=(model.admission.inlet, model.admission.outlet), paths=paths,
         design_throttle_flow=model.throttle.flow, generator_rating=model.generator.rating,
         cautions=cautions, caution_codes=codes)
