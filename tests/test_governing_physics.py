@@ -4,7 +4,6 @@ published value, a closed form or an identity."""
 import math
 
 import pytest
-
 from partload.physics.governing import (
     critical_ratio,
     flow_function,

@@ -312,7 +312,10 @@ class GoverningStage(SteamPathComponent):
                      else [o * a * g_wo for o, a in zip(openings, arcs)])
             dp = None
         else:  # sliding pressure or valves wide open: the open valves' law sets the flow
-            n_open = n_all if together else march.valves_open(self)
+            # sliding: the case's valves wide open (the design number when not given);
+            # the capacity at a held pressure: every valve unless the case names a number
+            n_open = n_all if together else (march.cond.valves_open or (
+                n_all if march.mode == "wide_open" else self.valves_open_at_design))
             open_arc = sum(arcs[:n_open])
             g = m / open_arc
             p_box = self._box_pressure(steam, g, h_in, p_out, p_in)

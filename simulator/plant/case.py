@@ -28,16 +28,20 @@ __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override", "ap
            "SettingsTarget",
            "VALVE_MODES", "PRESSURE_MODES", "OPERATION_KEYS"]
 
-# how the throttle valves pass the steam: "throttle" (all of it through one set of
-# valves that open together)
-VALVE_MODES = ("throttle",)
-# how the throttle pressure behaves: "sliding" (a result; the valves wide open) or
-# "fixed" (held at the case's throttle_pressure; the valves take the difference)
-PRESSURE_MODES = ("sliding", "fixed")
+# how the valves pass the steam: "throttle" (all of it through valves that open
+# together) or "nozzle_groups" (the control valves of a governing stage open in
+# sequence, each feeding its own nozzle group); the default is the model's own
+VALVE_MODES = ("throttle", "nozzle_groups")
+# how the throttle pressure behaves: "sliding" (a result; the valves wide open),
+# "fixed" (held at the case's throttle_pressure; the valves take the difference) or
+# "program" (sliding between minimum_throttle_pressure and throttle_pressure, held
+# at whichever it would pass)
+PRESSURE_MODES = ("sliding", "fixed", "program")
 # the former single key, still read: governing = "sliding" | "throttle"
 _GOVERNING = {"sliding": "sliding", "throttle": "fixed"}
 OPERATION_KEYS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction",
                   "valve_mode", "pressure_mode", "governing", "throttle_pressure",
+                  "minimum_throttle_pressure", "valves_open",
                   "throttle_temperature", "reheat_temperature", "exhaust_pressure")
 
 
@@ -46,11 +50,15 @@ class Conditions:
     """One operating point, SI units.
 
     Exactly one of ``throttle_flow`` [kg/s] and ``output`` [W] is set.
-    ``valve_mode`` says how the throttle valves pass the steam (``"throttle"``:
-    all of it through one set of valves); ``pressure_mode`` how the throttle
-    pressure behaves: ``"sliding"`` (it follows the load, the valves wide open)
-    or ``"fixed"`` (held at ``throttle_pressure`` [Pa], the design pressure when
-    ``None``; the valves throttle).
+    ``valve_mode`` says how the valves pass the steam (``"throttle"``: all of
+    it through valves that open together; ``"nozzle_groups"``: the control
+    valves of a governing stage in sequence); ``pressure_mode`` how the throttle
+    pressure behaves: ``"sliding"`` (it follows the load, the valves wide open;
+    ``valves_open`` of a governing stage's valves, its design number when
+    ``None``), ``"fixed"`` (held at ``throttle_pressure`` [Pa], the design
+    pressure when ``None``; the valves throttle) or ``"program"`` (sliding,
+    but held at ``throttle_pressure`` where sliding would need more and at
+    ``minimum_throttle_pressure`` [Pa] where it would need less).
     ``extraction_control`` maps an extraction name to ``(control, value)``:
     ``("closed", 0)``, ``("flow", kg/s)`` or ``("fraction", of throttle flow)``.
     """
@@ -67,15 +75,21 @@ class Conditions:
     heaters_out: frozenset = frozenset()
     label: str = ""
     held_pressures: tuple = ()  # (control valve name, held inlet pressure [Pa])
+    valves_open: int | None = None  # governing-stage valves wide open, sliding pressure
+    minimum_throttle_pressure: float | None = None  # [Pa] lowest of a pressure program
     # every other component setting of the case: (settings table, component name,
     # setting, SI value), read by the component's kind when it evaluates
     settings: tuple = ()
 
     @property
     def governing(self) -> str:
-        """The mode in the trade's words: ``"sliding"`` pressure or ``"throttle"``
-        governing (a fixed throttle pressure with throttling valves)."""
-        return "throttle" if self.pressure_mode == "fixed" else "sliding"
+        """The mode in the trade's words: ``"sliding"`` pressure, ``"throttle"``
+        governing (a fixed throttle pressure with valves that open together),
+        ``"nozzle"`` governing (a fixed pressure with valves in sequence) or a
+        pressure ``"program"``."""
+        if self.pressure_mode == "fixed":
+            return "nozzle" if self.valve_mode == "nozzle_groups" else "throttle"
+        return self.pressure_mode
 
     def controls(self) -> dict:
         return dict(self.extraction_control)
@@ -156,7 +170,13 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
         m_T = m_d
     for k in flows[1:]:
         op.raw(k)
-    valve_mode = op.string("valve_mode", default="throttle", choices=VALVE_MODES)
+    gov = model.governing_stage
+    valve_mode = op.string("valve_mode", default="nozzle_groups" if gov else "throttle",
+                           choices=VALVE_MODES)
+    if valve_mode == "nozzle_groups" and gov is None:
+        problems.add(op.where.child("valve_mode").error(
+            "the model has no [governing_stage]: nozzle-group governing needs one; "
+            "this model's valves open together (valve_mode = 'throttle')"))
     pressure_mode = op.string("pressure_mode", default="sliding", choices=PRESSURE_MODES)
     if "governing" in op.data:
         old = op.string("governing", choices=tuple(_GOVERNING))
@@ -169,7 +189,7 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
                 notes.append(f"{file}: [operation] governing = {old!r} is written "
                              f"pressure_mode = {pressure_mode!r} now (valve_mode = 'throttle' "
                              f"is the default)")
-    fixed = pressure_mode == "fixed"
+    fixed = pressure_mode in ("fixed", "program")  # a throttle pressure may be held
     if1997 = "the validity range of IAPWS-IF97"
     p_T = op.quantity("throttle_pressure", "pressure", default=None, lo=P_MIN,
                       hi=model.throttle.max_pressure,
@@ -181,7 +201,16 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
                        reason=if1997)
     p_x = op.quantity("exhaust_pressure", "pressure", default=None, lo=P_MIN, hi=P_MAX,
                       reason=if1997 + ", which ends at the triple point")
+    p_min = op.quantity("minimum_throttle_pressure", "pressure", default=None, lo=P_MIN,
+                        hi=model.throttle.max_pressure,
+                        reason="the model's highest allowed throttle pressure, [throttle] "
+                               "max_pressure")
+    n_open = op.number("valves_open", default=None, lo=1,
+                       hi=len(gov.valves) if gov is not None else None)
     op.finish(also_valid=OPERATION_KEYS)
+    _check_program(op, problems, model, pressure_mode, valve_mode, p_T, p_min, n_open)
+    if n_open is not None:
+        n_open = int(n_open)
     if fixed and T_T is not None and (p_T is not None or "throttle_pressure"
                                                           not in op.data):
         p_held = p_T if p_T is not None else model.throttle.pressure
@@ -221,7 +250,40 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
     problems.raise_if_any()
     return Conditions(m_T, out, valve_mode=valve_mode, pressure_mode=pressure_mode,
                       throttle_pressure=p_T, throttle_temperature=T_T, reheat_temperature=T_rh,
-                      exhaust_pressure=p_x, **target.fields())
+                      exhaust_pressure=p_x, valves_open=n_open,
+                      minimum_throttle_pressure=p_min, **target.fields())
+
+
+def _check_program(op, problems, model, pressure_mode, valve_mode, p_T, p_min, n_open):
+    """The keys of a pressure program and of valves wide open fit the modes."""
+    if pressure_mode == "program" and p_min is None and "minimum_throttle_pressure" \
+            not in op.data:
+        problems.add(op.where.child("minimum_throttle_pressure").error(
+            "a pressure program needs the lowest throttle pressure it slides to "
+            "(minimum_throttle_pressure); throttle_pressure, the held one above it, is the "
+            "design pressure when not given"))
+    if p_min is not None:
+        upper = p_T if p_T is not None else model.throttle.pressure
+        if pressure_mode != "program":
+            problems.add(op.where.child("minimum_throttle_pressure").error(
+                "a minimum throttle pressure belongs to pressure_mode = 'program'"))
+        elif p_min >= upper:
+            problems.add(op.where.child("minimum_throttle_pressure").error(
+                f"must be below the held throttle pressure of the program "
+                f"({upper / 1e5:.5g} bar)"))
+    if "valves_open" in op.data and n_open is not None:
+        if n_open != int(n_open):
+            problems.add(op.where.child("valves_open").error(
+                f"expected a whole number of valves, got {n_open!r}"))
+        elif valve_mode != "nozzle_groups":
+            problems.add(op.where.child("valves_open").error(
+                "valves wide open are counted under nozzle-group governing "
+                "(valve_mode = 'nozzle_groups'); with valves that open together all are "
+                "wide open at sliding pressure"))
+        elif pressure_mode == "fixed":
+            problems.add(op.where.child("valves_open").error(
+                "at a held throttle pressure the valves open as the flow needs; valves_open "
+                "belongs to pressure_mode = 'sliding' or 'program'"))
 
 
 def apply_setting(cond: Conditions, model: Model, key: str, value) -> Conditions:

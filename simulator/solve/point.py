@@ -70,6 +70,8 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     """
     if steam is None or isinstance(steam, str):
         steam = get_backend(steam or "seuif97")
+    if cond.pressure_mode == "program":
+        return _solve_program(model, cond, steam, broyden, check_limits, neighbour)
     # Control valves hold their inlet pressure unless they would need less than their
     # wide-open drop; then they are wide open and that pressure floats above its
     # setting.  Start from the neighbour's valve states and switch until consistent.
@@ -106,6 +108,39 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
             # second divided difference, for a quadratic predictor at the next point
             result.unknowns_curvature = ((result.unknowns_slope - neighbour.unknowns_slope)
                                          / (r - neighbour.slope_from))
+    return result
+
+
+def _solve_program(model, cond, steam, broyden, check_limits, neighbour) -> PointResult:
+    """A point under a throttle-pressure program: sliding pressure (with the case's
+    valves wide open) where that lies between the program's lowest and held
+    pressures; held at the nearer of the two where it does not."""
+    upper = cond.throttle_pressure if cond.throttle_pressure is not None else \
+        model.throttle.pressure
+    lower = cond.minimum_throttle_pressure
+    sliding = override(cond, pressure_mode="sliding", throttle_pressure=None,
+                       minimum_throttle_pressure=None)
+    near = neighbour if neighbour is not None and neighbour.pressure_mode == "program" else None
+    held = None
+    try:
+        result = solve_point(model, sliding, steam, broyden=broyden, check_limits=False,
+                             neighbour=near if near is not None and not near.program_held
+                             else None)
+        p_T = result.totals["throttle_pressure"]
+        if p_T > upper:
+            held = upper
+        elif lower is not None and p_T < lower:
+            held = lower
+    except SolveError:  # sliding cannot reach this load: the held pressure can
+        held = upper
+    if held is not None:
+        fixed = override(cond, pressure_mode="fixed", throttle_pressure=held, valves_open=None,
+                         minimum_throttle_pressure=None)
+        result = solve_point(model, fixed, steam, broyden=broyden, check_limits=check_limits,
+                             neighbour=near if near is not None and near.program_held
+                             and near.totals["throttle_pressure"] == held else None)
+    result.pressure_mode = "program"
+    result.program_held = held is not None
     return result
 
 
@@ -220,7 +255,7 @@ def _asked(cond: Conditions, eq: PointEquations) -> str:
         what = f"a throttle flow of {cond.throttle_flow:.2f} kg/s"
     else:
         what = "this point"
-    if cond.pressure_mode == "fixed":
+    if cond.pressure_mode == "fixed" and eq is not None:
         what += f" at a held throttle pressure of {eq.p_fix[eq.src] / 1e5:.2f} bar"
     return what
 

@@ -145,6 +145,7 @@ class PointResult:
     # at a held throttle pressure, the flow is more than the admitting valves pass wide
     # open (a what-if solved with the limit checks off)
     over_capacity: bool = False
+    program_held: bool = False  # pressure program: the throttle pressure held at a bound
 
     @property
     def governing(self) -> str:

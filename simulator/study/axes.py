@@ -35,6 +35,7 @@ __all__ = [
     "check_range",
     "read_sweep",
     "switch_names",
+    "unused_with",
     "validate_value",
 ]
 
@@ -49,8 +50,9 @@ class AxisKind:
     ----------
     dimension : dimension for :func:`simulator.units.parse` (``None``: names)
     unit : SI unit of the stored values (``"-"`` dimensionless, ``""`` names)
-    role : ``"load"``, ``"state"`` (another scalar input) or ``"switch"``
-        (heaters or extractions out of service)
+    role : ``"load"``, ``"state"`` (another scalar input), ``"switch"``
+        (heaters or extractions out of service) or ``"mode"`` (a word: the
+        valve or pressure mode)
     lo, hi : allowed range in SI units (``None``: open)
     lo_open : ``lo`` itself is not allowed
     description : one line for the result file
@@ -77,7 +79,16 @@ AXES: dict[str, AxisKind] = {
     "exhaust_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
                                  "exhaust (condenser or back) pressure"),
     "throttle_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
-                                  "throttle pressure held (pressure mode 'fixed')"),
+                                  "throttle pressure held (pressure mode 'fixed'; the "
+                                  "highest of a program)"),
+    "minimum_throttle_pressure": AxisKind("pressure", "Pa", "state", P_MIN, P_MAX, False,
+                                          "lowest throttle pressure of a pressure program"),
+    "valves_open": AxisKind("number", "-", "state", 1.0, None, False,
+                            "governing-stage valves wide open at sliding pressure"),
+    "valve_mode": AxisKind("choice", "", "mode", None, None, False,
+                           "how the valves pass the steam: 'throttle' or 'nozzle_groups'"),
+    "pressure_mode": AxisKind("choice", "", "mode", None, None, False,
+                              "throttle pressure 'sliding', 'fixed' or 'program'"),
     "throttle_temperature": AxisKind("temperature", "K", "state", T_MIN, T_MAX, False,
                                      "throttle steam temperature"),
     "reheat_temperature": AxisKind("temperature", "K", "state", T_MIN, T_MAX, False,
@@ -106,7 +117,7 @@ class Axis:
     ----------
     key : axis name, ``"extraction_flow.NAME"`` for an extraction flow
     kind : what it sets
-    values : SI floats, or sorted tuples of names for switches
+    values : SI floats, sorted tuples of names for switches, words for modes
     texts : the values as the user wrote them (for point labels)
     """
 
@@ -212,11 +223,25 @@ def validate_value(case: Case, key: str, value, w: Where) -> None:
         if key in _LOAD_KEYS:
             for k in _LOAD_KEYS:
                 op.pop(k, None)
+        for k in unused_with(key, value):
+            op.pop(k, None)
         op[key] = value
     try:
         read_conditions(data, case.model, case.file)
     except InputError as exc:
         raise w.error(getattr(exc, "message", str(exc))) from None
+
+
+def unused_with(key: str, value) -> tuple[str, ...]:
+    """The ``[operation]`` keys a mode axis's ``value`` has no use for: a sweep of
+    the pressure or valve mode takes the case's held and program pressures and
+    its valves wide open only where the mode needs them."""
+    if key == "pressure_mode":
+        return {"sliding": ("throttle_pressure", "minimum_throttle_pressure"),
+                "fixed": ("minimum_throttle_pressure", "valves_open")}.get(value, ())
+    if key == "valve_mode" and value == "throttle":
+        return ("valves_open",)
+    return ()
 
 
 def switch_names(kind_key: str, value, w: Where, model: Model) -> tuple[str, ...]:
@@ -312,6 +337,20 @@ def _read_axis(key: str, value, wk: Where, case: Case) -> Axis:
         items = value if isinstance(value, list) else [value]
         values = [switch_names(key, v, wk, case.model) for v in items]
         texts = [" ".join(v) if v else "none" for v in values]
+    elif kind.role == "mode":
+        items = value if isinstance(value, list) else [value]
+        if not items or not all(isinstance(v, str) for v in items):
+            raise wk.error("expected a list of words, such as ['fixed', 'sliding']")
+        for v in items:
+            check(v)
+        values, texts = list(items), list(items)
+    elif kind.dimension == "number":
+        items = value if isinstance(value, list) else [value]
+        if not items or not all(isinstance(v, int) and not isinstance(v, bool) for v in items):
+            raise wk.error("expected a list of whole numbers")
+        for v in items:
+            check(v)
+        values, texts = [int(v) for v in items], [str(v) for v in items]
     elif isinstance(value, dict):
         values, texts = _range(kind, value, wk, check)
     else:

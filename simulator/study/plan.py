@@ -17,7 +17,7 @@ from ..errors import InputError
 from ..plant.case import Case, Conditions, apply_setting, read_conditions
 from ..plant.model import Model
 from ..units import Where
-from .axes import CONTINUATION_ORDER, MAX_POINTS, Axis, read_sweep
+from .axes import CONTINUATION_ORDER, MAX_POINTS, Axis, read_sweep, unused_with
 from .profile import ProfileSource, read_profile
 
 __all__ = [
@@ -188,7 +188,8 @@ def _apply(cond: Conditions, key: str, value: float, model: Model) -> Conditions
         return dataclasses.replace(cond, extraction_control=tuple(sorted(controls.items())))
     if "." in key:  # a component setting TABLE.NAME.SETTING (see axes.setting_axis)
         return apply_setting(cond, model, key, value)
-    return dataclasses.replace(cond, **{key: value})
+    unused = {k: None for k in unused_with(key, value)}
+    return dataclasses.replace(cond, **unused, **{key: value})
 
 
 def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
@@ -233,9 +234,19 @@ def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, In
             col(lambda c: c.output if c.output is not None else nan), "W",
             "generator output demanded (NaN when the throttle flow is given)"),
         "valve_mode": InputColumn([c.valve_mode for c in conds], "",
-                                  "how the throttle valves pass the steam: 'throttle'"),
+                                  "how the valves pass the steam: 'throttle' (together) or "
+                                  "'nozzle_groups' (a governing stage's valves in sequence)"),
         "pressure_mode": InputColumn([c.pressure_mode for c in conds], "",
-                                     "throttle pressure 'sliding' (a result) or 'fixed' (held)"),
+                                     "throttle pressure 'sliding' (a result), 'fixed' (held) "
+                                     "or 'program' (sliding between two held pressures)"),
+        "valves_open": InputColumn(
+            col(lambda c: c.valves_open if c.valves_open is not None else nan), "-",
+            "governing-stage valves wide open at sliding pressure (NaN: the design number, "
+            "or not used)"),
+        "minimum_throttle_pressure": InputColumn(
+            col(lambda c: c.minimum_throttle_pressure
+                if c.minimum_throttle_pressure is not None else nan), "Pa",
+            "lowest throttle pressure of a pressure program (NaN: no program)"),
         "throttle_pressure": InputColumn(
             col(lambda c: c.throttle_pressure if c.throttle_pressure is not None else nan), "Pa",
             "held throttle pressure (pressure mode 'fixed'; NaN: sliding pressure, see "

@@ -109,7 +109,8 @@ def _boundary(cond: Conditions) -> tuple:
     """Everything of ``cond`` but the load: points that share it lie on one load line."""
     return (cond.valve_mode, cond.pressure_mode, cond.output is None, cond.throttle_pressure,
             cond.throttle_temperature, cond.reheat_temperature, cond.exhaust_pressure,
-            cond.extraction_control, cond.heaters_out, cond.held_pressures)
+            cond.extraction_control, cond.heaters_out, cond.held_pressures, cond.valves_open,
+            cond.minimum_throttle_pressure)
 
 
 class Continuation:
