@@ -234,24 +234,35 @@ class GoverningStage(SteamPathComponent):
             p_in, p_out, p_in)
         return self._flux(steam, p_box, h, p_out), p_box
 
-    def _streams(self, steam, h_in, p_out, boxes, flows, admitted):
-        """Power [W] and isentropic power [W] of the streams from ``boxes`` [Pa]
-        carrying ``flows`` [kg/s]."""
+    def _streams(self, steam, h_in, p_out, boxes, flows):
+        """``(power [W], isentropic power [W], admitted arc [-])`` of the streams
+        from ``boxes`` [Pa] carrying ``flows`` [kg/s].
+
+        A group counts in the admitted arc by its isentropic drop over the largest
+        one: fully when its valve is as open as any, nothing as its valve closes
+        (so the admitted arc, and with it the pumping loss, change continuously
+        as a valve cracks open; all valves together admit the whole arc).
+        """
+        drops: dict[float, float] = {}
+        for p_box, m in zip(boxes, flows):
+            if m > 0.0 and p_box not in drops:
+                drops[p_box] = max(h_in - steam.h_ps(p_out, steam.s_ph(p_box, h_in)), 0.0)
+        top = max(drops.values(), default=0.0)
+        if top <= 0.0:
+            return 0.0, 0.0, 0.0
+        admitted = sum(a * drops[p] / top for a, p, m in zip(self.arcs, boxes, flows)
+                       if m > 0.0)
         power = iso = 0.0
-        done: dict[float, tuple[float, float]] = {}
         for p_box, m in zip(boxes, flows):
             if m <= 0.0:
                 continue
-            if p_box not in done:
-                dh = h_in - steam.h_ps(p_out, steam.s_ph(p_box, h_in))
-                r = self.speed_ratio * math.sqrt(self.dh_design / dh) if dh > 0.0 else math.inf
-                eta = (governing_efficiency(r, self.eta_peak, admitted, self.loss_coefficient)
-                       if math.isfinite(r) else 0.0)
-                done[p_box] = (eta * dh, dh)
-            w, dh = done[p_box]
-            power += m * w
+            dh = drops[p_box]
+            if dh > 0.0:
+                r = self.speed_ratio * math.sqrt(self.dh_design / dh)
+                power += m * dh * governing_efficiency(r, self.eta_peak, admitted,
+                                                       self.loss_coefficient)
             iso += m * dh
-        return power, iso
+        return power, iso, admitted
 
     # ---------------------------------------------------------- calibration
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
@@ -323,8 +334,7 @@ class GoverningStage(SteamPathComponent):
             openings = [1.0] * n_open + [0.0] * (n_all - n_open)
             boxes = [p_box] * n_open + [math.nan] * (n_all - n_open)
             flows = [g * a for a in arcs[:n_open]] + [0.0] * (n_all - n_open)
-        admitted = 1.0 if together else sum(a for a, o in zip(arcs, openings) if o > 0.0)
-        power, iso = self._streams(steam, h_in, p_out, boxes, flows, admitted)
+        power, iso, admitted = self._streams(steam, h_in, p_out, boxes, flows)
         full = m * (h_in - steam.h_ps(p_out, steam.s_ph(p_in, h_in)))
         state = GoverningState(openings, boxes, flows, power, iso, full - iso, admitted,
                                capacity)
