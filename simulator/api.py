@@ -109,14 +109,18 @@ def load_case(path: str | Path) -> Case:
 # ------------------------------------------------------------------ one point
 _LOADS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction")
 _SETTINGS = ("valve_mode", "pressure_mode", "throttle_pressure", "throttle_temperature",
-             "reheat_temperature", "exhaust_pressure")
+             "reheat_temperature", "exhaust_pressure", "minimum_throttle_pressure",
+             "valves_open")
 _MODES = ("valve_mode", "pressure_mode")
 #: keyword arguments of :func:`point`, with their units
 CONDITION_KEYS = {
     "throttle_flow": "kg/s", "throttle_flow_fraction": "- (of design throttle flow)",
     "output": "W", "output_fraction": "- (of the generator rating)",
-    "valve_mode": "'throttle'", "pressure_mode": "'sliding' or 'fixed'",
-    "throttle_pressure": "Pa (held, pressure_mode 'fixed')",
+    "valve_mode": "'throttle' or 'nozzle_groups'",
+    "pressure_mode": "'sliding', 'fixed' or 'program'",
+    "throttle_pressure": "Pa (held, pressure_mode 'fixed'; the top of a 'program')",
+    "minimum_throttle_pressure": "Pa (the bottom of a pressure 'program')",
+    "valves_open": "governing-stage valves wide open at sliding pressure",
     "throttle_temperature": "K", "reheat_temperature": "K", "exhaust_pressure": "Pa",
     "heaters_out": "heater names", "check_limits": "bool", "backend": "'seuif97' or 'iapws'",
 }
@@ -124,7 +128,7 @@ CONDITION_KEYS = {
 
 def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
     """The model, the base conditions and the default backend of what was given."""
-    from .plant.case import Case, Conditions, load_case
+    from .plant.case import Case, design_conditions, load_case
     from .plant.model import Model, load_model
 
     if isinstance(model_or_case, (str, Path)):
@@ -136,7 +140,7 @@ def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
     if isinstance(model_or_case, Case):
         return model_or_case.model, model_or_case.conditions, model_or_case.backend
     if isinstance(model_or_case, Model):
-        return model_or_case, Conditions(throttle_flow=model_or_case.throttle.flow), "seuif97"
+        return model_or_case, design_conditions(model_or_case), "seuif97"
     raise InputError(f"expected a model, a case, or the path of a model or case file; got "
                      f"{type(model_or_case).__name__}", key="model_or_case")
 
@@ -144,6 +148,7 @@ def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
 def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Conditions:
     """``base`` with the keyword changes of :func:`point` applied (SI values)."""
     from .plant.case import PRESSURE_MODES, VALVE_MODES, override
+    from .study.axes import unused_with
 
     unknown = sorted(set(changes) - set(_LOADS) - set(_SETTINGS) - {"heaters_out"})
     if unknown:
@@ -169,7 +174,8 @@ def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Co
     for key in _SETTINGS:
         if key in changes:
             value = changes[key]
-            new[key] = value if key in _MODES or value is None else float(value)
+            new[key] = (value if key in _MODES or value is None
+                        else int(value) if key == "valves_open" else float(value))
     for key, allowed in (("valve_mode", VALVE_MODES), ("pressure_mode", PRESSURE_MODES)):
         if new.get(key, getattr(base, key)) not in allowed:
             raise InputError(f"{key} must be one of {', '.join(allowed)}, not {new[key]!r}",
@@ -178,8 +184,10 @@ def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Co
     if mode == "sliding" and new.get("throttle_pressure") is not None:
         raise InputError("a held throttle pressure needs pressure_mode='fixed'; with sliding "
                          "pressure the throttle pressure is a result", key="throttle_pressure")
-    if mode == "sliding" and "pressure_mode" in new:
-        new.setdefault("throttle_pressure", None)
+    for key in _MODES:
+        if key in new:  # the case's keys the new mode has no use for
+            for k in unused_with(key, new[key]):
+                new.setdefault(k, None)
     if "heaters_out" in changes:
         new.update(_heaters_out(model, base, changes["heaters_out"]))
     return override(base, **new)
@@ -187,6 +195,7 @@ def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Co
 
 # SI unit of each keyword of point() that a case file writes with a unit
 _SI_UNITS = {"throttle_flow": "kg/s", "output": "W", "throttle_pressure": "Pa",
+             "minimum_throttle_pressure": "Pa",
              "throttle_temperature": "K", "reheat_temperature": "K", "exhaust_pressure": "Pa"}
 
 
@@ -198,6 +207,7 @@ def _check_as_a_case_would(model: Model, base: Conditions, data: dict | None,
     import copy
 
     from .plant.case import read_conditions
+    from .study.axes import unused_with
 
     data = copy.deepcopy(data) if data else {}
     op = data.setdefault("operation", {})
@@ -216,8 +226,13 @@ def _check_as_a_case_would(model: Model, base: Conditions, data: dict | None,
             op[key] = value
             if key == "pressure_mode":
                 op.pop("governing", None)
+            for k in unused_with(key, value):
+                if k not in changes:
+                    op.pop(k, None)
         elif key in _SI_UNITS:
             op[key] = f"{float(value)!r} {_SI_UNITS[key]}"
+        elif key == "valves_open":
+            op[key] = value
         else:
             op[key] = float(value)
     read_conditions(data, model, file="partload.point keywords")
@@ -265,8 +280,11 @@ def point(model_or_case, conditions: Conditions | None = None, *, backend: str |
     **changes : conditions changed from the above, SI values:
         ``throttle_flow`` [kg/s] or ``throttle_flow_fraction`` [-] or
         ``output`` [W] or ``output_fraction`` [-] (one load replaces the other);
-        ``valve_mode`` (``"throttle"``) and ``pressure_mode`` (``"sliding"`` or
-        ``"fixed"``) [-]; ``throttle_pressure`` (held, pressure mode fixed) [Pa];
+        ``valve_mode`` (``"throttle"`` or ``"nozzle_groups"``) and
+        ``pressure_mode`` (``"sliding"``, ``"fixed"`` or ``"program"``) [-];
+        ``throttle_pressure`` (held, pressure mode fixed; the top of a program)
+        [Pa]; ``minimum_throttle_pressure`` (the bottom of a program) [Pa];
+        ``valves_open`` (governing-stage valves wide open at sliding pressure) [-];
         ``throttle_temperature`` [K]; ``reheat_temperature`` [K];
         ``exhaust_pressure`` [Pa]; ``heaters_out`` (the heater names out of
         service, replacing the case's; their extractions close) [-]

@@ -22,13 +22,13 @@ __all__ = ["main"]
 
 
 def _cmd_check(args) -> int:
-    from ..plant.case import Conditions
+    from ..plant.case import design_conditions
     from ..plant.model import load_model
     from ..present.tables import format_model, format_point, point_to_dict
     from ..solve.point import solve_point
 
     model = load_model(args.model)
-    result = solve_point(model, Conditions(throttle_flow=model.throttle.flow), args.backend)
+    result = solve_point(model, design_conditions(model), args.backend)
     if args.json:
         print(json.dumps({"model": model.name, "file": model.file,
                           "warnings": list(model.warnings),

@@ -213,6 +213,12 @@ class Component:
         ``point`` is a :class:`simulator.solve.point.PointView`."""
         return ()
 
+    def describe(self) -> list[str]:
+        """Lines for ``partload check``: the constants this component works with
+        beyond those of its kind's table of results (calibrated values and the
+        defaults it took), so nothing it assumes is hidden."""
+        return []
+
     def part_names(self) -> list[str]:
         """Row names of :attr:`part_results` (the parts of this component)."""
         return []

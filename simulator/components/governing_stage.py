@@ -350,6 +350,24 @@ class GoverningStage(SteamPathComponent):
         """Drop [Pa] from the throttle to the highest nozzle-box pressure."""
         return p_in - max(p for p in record.box_pressures if not math.isnan(p))
 
+    def describe(self) -> list[str]:
+        from ..physics.governing import critical_ratio
+
+        arcs = ", ".join(f"{v} {100 * a:.4g} %" for v, a in zip(self.valves, self.arcs))
+        law = (f"isentropic nozzle law, real-steam exponent {self.kappa:.4f} (critical pressure "
+               f"ratio {critical_ratio(self.kappa):.4f})" if self.law == "isentropic"
+               else "Stodola's ellipse")
+        return [
+            f"governing stage, {self.inlet} -> {self.outlet}: valves in opening order {arcs}; "
+            f"{self.valves_open_at_design} wide open at design, overlap "
+            f"{100 * self.overlap:.3g} %, minimum opening {100 * self.minimum_opening:.3g} %",
+            f"  {law}; design efficiency {100 * self.eta_design:.4g} % from the nozzle boxes, "
+            f"peak blading efficiency {100 * self.eta_peak:.4g} %, velocity ratio at design "
+            f"{self.speed_ratio:g} of the best, partial-admission loss coefficient "
+            f"{self.loss_coefficient:g}; design isentropic drop {self.dh_design / 1e3:.4g} "
+            f"kJ/kg, wide-open valve drop {self.dp_design / 1e5:.4g} bar",
+        ]
+
     # ----------------------------------------------------------------- results
     def result_row(self, record: GoverningState, m, p_in, h_in, p_out, h_out) -> tuple:
         eff = record.power / record.isentropic_power if record.isentropic_power > 0 else 0.0

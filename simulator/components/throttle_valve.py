@@ -61,6 +61,10 @@ class ThrottleValve(WideOpenValve, SteamPathComponent):
         dp = self.wide_open_drop(m_net, march.steam.v_ph(march.p[i], hi))
         return hi, dp, 0.0, dp
 
+    def describe(self) -> list[str]:
+        return [f"throttle valve: wide-open drop {self.dp_wide_open / 1e5:.3f} bar at design "
+                f"flow"]
+
     def over_capacity(self, record, p_in, p_out) -> bool:
         # record: the wide-open drop at this flow; within 1e-5 of the throttle
         # pressure, since the design point itself sits on that limit and its exact

@@ -25,6 +25,7 @@ from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, g
 from ..units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override", "apply_setting",
+           "design_conditions",
            "SettingsTarget",
            "VALVE_MODES", "PRESSURE_MODES", "OPERATION_KEYS"]
 
@@ -284,6 +285,13 @@ def _check_program(op, problems, model, pressure_mode, valve_mode, p_T, p_min, n
             problems.add(op.where.child("valves_open").error(
                 "at a held throttle pressure the valves open as the flow needs; valves_open "
                 "belongs to pressure_mode = 'sliding' or 'program'"))
+
+
+def design_conditions(model: Model) -> Conditions:
+    """The design point of ``model``: design throttle flow, sliding pressure and the
+    model's own valves (a governing stage's in sequence, its design valves wide open)."""
+    return Conditions(throttle_flow=model.throttle.flow,
+                      valve_mode="nozzle_groups" if model.governing_stage else "throttle")
 
 
 def apply_setting(cond: Conditions, model: Model, key: str, value) -> Conditions:

@@ -179,10 +179,8 @@ def format_model(model) -> str:
     th = model.throttle
     lines.append(f"throttle: {th.pressure / 1e5:.2f} bar, {th.temperature - 273.15:.1f} degC, "
                  f"{th.flow:.3f} kg/s (highest allowed pressure {th.max_pressure / 1e5:.2f} bar)")
-    adm = model.admission
-    lines.append(f"{adm.title}: wide-open valve drop "
-                 f"{getattr(adm, 'dp_wide_open', getattr(adm, 'dp_design', 0.0)) / 1e5:.3f} bar "
-                 f"at design flow")
+    for c in model.components:
+        lines += c.describe()
     lines.append("")
     rows = []
     for c in model.groups:
