@@ -18,7 +18,7 @@ from pathlib import Path
 from ..api import default_workers, run_study_file
 from ..errors import InputError
 
-__all__ = ["add_commands", "run_study_command", "default_workers", "DEMO_CASE"]
+__all__ = ["add_commands", "cap_workers", "run_study_command", "default_workers", "DEMO_CASE"]
 
 DEMO_CASE = "reheat_load_sweep.toml"
 
@@ -32,6 +32,20 @@ def _workers(text: str) -> int:
     if n < 1:
         raise argparse.ArgumentTypeError("at least 1")
     return n
+
+
+def cap_workers(workers: int | None, scheduler: str | None = None) -> int | None:
+    """``workers`` [-], at most the CPUs this process may use; a note on stderr when cut.
+
+    More processes than CPUs only share them (and each holds a model and its
+    arrays); a scheduler's cluster has its own workers, so nothing is cut then.
+    """
+    cpus = default_workers()
+    if workers is None or scheduler or workers <= cpus:
+        return workers
+    print(f"partload: note: --workers {workers} is more than the {cpus} CPUs available; "
+          f"using {cpus}", file=sys.stderr)
+    return cpus
 
 
 def _loads(text: str) -> list[float]:
@@ -62,6 +76,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     of recording them as failed.
     """
     out = out or sys.stdout
+    workers = cap_workers(workers, scheduler)
 
     def heading(run) -> None:
         plan, case, path = run.plan, run.case, run.path
@@ -179,8 +194,8 @@ def add_commands(sub) -> None:
                "(Ctrl-C or SIGTERM: every finished point is kept; continue with --resume).")
     c.add_argument("case", help="case file (TOML) with a [sweep] or [profile] table")
     c.add_argument("--workers", type=_workers, default=None,
-                   help=f"local worker processes (default: the CPUs available, here "
-                        f"{default_workers()}); 1 solves in this process")
+                   help=f"local worker processes (default and most: the CPUs available, "
+                        f"here {default_workers()}); 1 solves in this process")
     c.add_argument("--scheduler", default=None, metavar="ADDR",
                    help="address of a running Dask scheduler, e.g. tcp://127.0.0.1:8786 "
                         "(needs pip install 'partload[cluster]'); replaces --workers")
