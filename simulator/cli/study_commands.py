@@ -4,7 +4,8 @@ Added to ``partload`` by :func:`add_commands`.  Exit codes are those of
 :mod:`simulator.cli`: 0 the study ran to its end (points that could not be
 solved are recorded in the file and counted in the summary, not errors of the
 command); 2 a mistake in the case, sweep, profile or command line; 3 a result
-file that is damaged, another program's, or in the way; 130 interrupted
+file that is damaged, read-only on resume, another program's, or in the way, or
+too little disk space for a new one; 130 interrupted
 (Ctrl-C or SIGTERM; the file holds every finished point, continue with
 ``--resume``).
 """
@@ -189,8 +190,10 @@ def add_commands(sub) -> None:
                     "be solved are recorded with their reason; the study goes on. An existing "
                     "result is never overwritten without --force.",
         epilog="Exit status: 0 the study ran to its end (failed points are recorded, not "
-               "errors); 2 a mistake in the case, sweep or profile; 3 a result file in the way, "
-               "damaged or another program's, or a changed model on --resume; 130 interrupted "
+               "errors); 2 a mistake in the case, sweep or profile (more than 1,000,000 points "
+               "included); 3 a result file in the way, damaged, read-only or another program's, "
+               "a changed model on --resume, or too little disk space for the file (sizes "
+               "named); 130 interrupted "
                "(Ctrl-C or SIGTERM: every finished point is kept; continue with --resume).")
     c.add_argument("case", help="case file (TOML) with a [sweep] or [profile] table")
     c.add_argument("--workers", type=_workers, default=None,

@@ -195,7 +195,7 @@ TEXT = h5py.string_dtype("utf-8")  # variable-length UTF-8 text
 # what h5py raises for a file it cannot read or write (damaged, full disk, ...)
 H5_ERRORS = (OSError, RuntimeError, ValueError)
 # and what reading a damaged file raises besides (an object or attribute gone, a wrong kind)
-READ_ERRORS = (*H5_ERRORS, KeyError, TypeError, IndexError)
+READ_ERRORS = (*H5_ERRORS, KeyError, TypeError, IndexError, AttributeError)
 # text datasets of a result group naming its items (one per column of its datasets)
 NAME_LISTS = ("names", "inlet", "outlet", "nodes", "kind")
 OUR_MARK = FORMAT.encode()  # the root attribute 'format', stored near the start
