@@ -169,6 +169,29 @@ def test_interrupt_during_creation_leaves_nothing(tmp_path, monkeypatch, capsys)
     assert list(out.parent.iterdir()) == []
 
 
+def test_abandoned_temporary_files_are_removed_and_live_ones_kept(tmp_path, capsys):
+    import fcntl
+
+    case = write_case(tmp_path, SMALL)
+    out = tmp_path / "small.h5"
+    time_ago = 3600.0  # [s] older than the 600 s after which one is abandoned
+    abandoned = tmp_path / ".small.h5.0123456789ab.creating"  # a creation killed long ago
+    held = tmp_path / ".small.h5.ba9876543210.creating"  # old, but a process holds it
+    fresh = tmp_path / ".small.h5.00000000aaaa.creating"  # just made
+    for p in (abandoned, held, fresh):
+        p.write_bytes(b"x" * 100)
+    for p in (abandoned, held):
+        t = os.stat(p).st_mtime - time_ago
+        os.utime(p, (t, t))
+    fd = os.open(held, os.O_RDONLY)
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        assert cli("study", case, "--workers", "1", "--output", out, "-q") == 0
+    finally:
+        os.close(fd)
+    assert not abandoned.exists() and held.exists() and fresh.exists()
+
+
 # ------------------------------------------------------------------ races (item 7)
 def test_a_file_appearing_during_creation_is_never_replaced(small_result, tmp_path,
                                                              monkeypatch, capsys):
@@ -179,7 +202,7 @@ def test_a_file_appearing_during_creation_is_never_replaced(small_result, tmp_pa
     out = tmp_path / "shared.h5"
 
     def other_study_arrives(step):  # after this study found no file at `out`
-        if step == "locked":
+        if step == "built":
             shutil.copy(other, out)
 
     monkeypatch.setattr(writer, "between_steps", other_study_arrives)
@@ -199,7 +222,7 @@ def test_force_does_not_replace_a_file_a_study_started_writing(small_result, tmp
     holders = []
 
     def study_starts(step):  # another study opens the file between the checks and the rename
-        if step == "locked":
+        if step == "built":
             holders.append(h5py.File(out, "r+"))
 
     monkeypatch.setattr(writer, "between_steps", study_starts)

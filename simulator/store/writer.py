@@ -25,7 +25,9 @@ import fcntl
 import os
 import secrets
 import sys
+import time
 from collections.abc import Callable
+from glob import escape as glob_escape
 from pathlib import Path
 
 import h5py
@@ -58,14 +60,15 @@ from .format import (
 __all__ = ["LARGE_FILE", "StudyFile", "between_steps", "check_target", "study_file_size"]
 
 LARGE_FILE = 1 << 30  # [B] a result file this large is announced before it is allocated
+ABANDONED_AFTER = 600.0  # [s] a temporary file unchanged this long, and unlocked, is abandoned
 
 
 def between_steps(step: str) -> None:
     """Called by :meth:`StudyFile.create` after each of its steps: ``"checked"``
     (free space checked), ``"built"`` (the whole layout written under its
-    temporary name), ``"locked"`` (reopened for writing, just before it is put
-    at the result path).  It does nothing; tests replace it to force a race, a
-    full disk or an interrupt between two steps.
+    temporary name and reopened for writing, so locked, just before it is put
+    at the result path).  It does nothing; tests replace it to force a race, a full disk or
+    an interrupt between two steps.
 
     Parameters
     ----------
@@ -227,6 +230,28 @@ def _put_in_place(tmp: Path, path: Path, replace: bool) -> None:
         tmp.unlink()
 
 
+def _remove_abandoned(path: Path) -> None:
+    """Remove the temporary files of ``path`` [-] that no process holds and that
+    have not changed for :data:`ABANDONED_AFTER` seconds: those of a creation
+    killed with SIGKILL or a power cut (a creation under way holds the HDF5
+    lock of its file, but for an instant between its build and its reopening,
+    which the age covers)."""
+    for old in path.parent.glob(f".{glob_escape(path.name)}.*.creating"):
+        try:
+            if time.time() - old.stat().st_mtime < ABANDONED_AFTER:
+                continue
+            fd = os.open(old, os.O_RDONLY)
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            old.unlink()
+        except OSError:  # held by a creation under way, or already gone
+            pass
+        finally:
+            os.close(fd)
+
+
 def _unique_temporary(path: Path) -> Path:
     """A new empty file ``.<name>.<random>.creating`` next to ``path`` [-], made with
     ``O_EXCL`` (never another study's) and the usual permissions (umask)."""
@@ -355,19 +380,18 @@ class StudyFile:
             (note or _note)(f"{path} takes about {size_text(needed)} for {plan.n_points} "
                             f"points, allocated now ({size_text(free)} free on {folder})")
         between_steps("checked")
+        _remove_abandoned(path)
         tmp = _unique_temporary(path)
         f = None
         try:
             f = h5py.File(tmp, "w", track_order=True)
             _write_structure(f, plan, layout)
             f.attrs["check_limits"] = int(check_limits)
-            f.flush()
-            between_steps("built")
-            f.close()
+            f.close()  # closed once, so that its structure is final on disk
             # reopened for writing (HDF5 locks it) before it appears at path: a second
             # study finds it in use from its first moment there
             f = h5py.File(tmp, "r+")
-            between_steps("locked")
+            between_steps("built")
             _put_in_place(tmp, path, replace)
         except ResultFileError:
             _discard(f, tmp)
