@@ -416,7 +416,8 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
         if action == "resume":
             sf = store.StudyFile.resume(path, plan, layout, check_limits=check)
         else:
-            sf = store.StudyFile.create(path, plan, layout, check_limits=check)
+            sf = store.StudyFile.create(path, plan, layout, check_limits=check,
+                                        replace=action == "replace")
         try:
             skip = sf.done_chunks(plan) if action == "resume" else set()
             run.n_done_before = sum(c.size for c in plan.chunks if c.index in skip)

@@ -2,8 +2,10 @@
 
 Exit codes: 0 success; 1 a point that cannot be solved (convergence, a limit of
 the machine, a property range); 2 a mistake in the input (file, table and key
-named) or in the command line; 3 a result file that is damaged or in the way, or a
-file or folder the command cannot read or write.
+named) or in the command line, a study too large included; 3 a result file that
+is damaged, read-only on resume or in the way, a disk without the space a study
+needs, or a file or folder the command cannot read or write (the README's table
+lists each failure).
 ``--debug`` shows the traceback of any error.
 """
 

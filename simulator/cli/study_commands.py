@@ -4,7 +4,8 @@ Added to ``partload`` by :func:`add_commands`.  Exit codes are those of
 :mod:`simulator.cli`: 0 the study ran to its end (points that could not be
 solved are recorded in the file and counted in the summary, not errors of the
 command); 2 a mistake in the case, sweep, profile or command line; 3 a result
-file that is damaged, another program's, or in the way; 130 interrupted
+file that is damaged, read-only on resume, another program's, or in the way, or
+too little disk space for a new one; 130 interrupted
 (Ctrl-C or SIGTERM; the file holds every finished point, continue with
 ``--resume``).
 """
@@ -18,7 +19,7 @@ from pathlib import Path
 from ..api import default_workers, run_study_file
 from ..errors import InputError
 
-__all__ = ["add_commands", "run_study_command", "default_workers", "DEMO_CASE"]
+__all__ = ["add_commands", "cap_workers", "run_study_command", "default_workers", "DEMO_CASE"]
 
 DEMO_CASE = "reheat_load_sweep.toml"
 
@@ -32,6 +33,20 @@ def _workers(text: str) -> int:
     if n < 1:
         raise argparse.ArgumentTypeError("at least 1")
     return n
+
+
+def cap_workers(workers: int | None, scheduler: str | None = None) -> int | None:
+    """``workers`` [-], at most the CPUs this process may use; a note on stderr when cut.
+
+    More processes than CPUs only share them (and each holds a model and its
+    arrays); a scheduler's cluster has its own workers, so nothing is cut then.
+    """
+    cpus = default_workers()
+    if workers is None or scheduler or workers <= cpus:
+        return workers
+    print(f"partload: note: --workers {workers} is more than the {cpus} CPUs available; "
+          f"using {cpus}", file=sys.stderr)
+    return cpus
 
 
 def _loads(text: str) -> list[float]:
@@ -62,6 +77,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     of recording them as failed.
     """
     out = out or sys.stdout
+    workers = cap_workers(workers, scheduler)
 
     def heading(run) -> None:
         plan, case, path = run.plan, run.case, run.path
@@ -174,13 +190,15 @@ def add_commands(sub) -> None:
                     "be solved are recorded with their reason; the study goes on. An existing "
                     "result is never overwritten without --force.",
         epilog="Exit status: 0 the study ran to its end (failed points are recorded, not "
-               "errors); 2 a mistake in the case, sweep or profile; 3 a result file in the way, "
-               "damaged or another program's, or a changed model on --resume; 130 interrupted "
+               "errors); 2 a mistake in the case, sweep or profile (more than 1,000,000 points "
+               "included); 3 a result file in the way, damaged, read-only or another program's, "
+               "a changed model on --resume, or too little disk space for the file (sizes "
+               "named); 130 interrupted "
                "(Ctrl-C or SIGTERM: every finished point is kept; continue with --resume).")
     c.add_argument("case", help="case file (TOML) with a [sweep] or [profile] table")
     c.add_argument("--workers", type=_workers, default=None,
-                   help=f"local worker processes (default: the CPUs available, here "
-                        f"{default_workers()}); 1 solves in this process")
+                   help=f"local worker processes (default and most: the CPUs available, "
+                        f"here {default_workers()}); 1 solves in this process")
     c.add_argument("--scheduler", default=None, metavar="ADDR",
                    help="address of a running Dask scheduler, e.g. tcp://127.0.0.1:8786 "
                         "(needs pip install 'partload[cluster]'); replaces --workers")

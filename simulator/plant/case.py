@@ -130,8 +130,14 @@ def load_case(path: str | Path, model: Model | None = None) -> Case:
                + tuple(k.settings_table for k in KINDS.values() if k.settings_table))
     problems.raise_if_any()
     if model is None:
-        model_path = (path.parent / model_ref).resolve()
-        if not model_path.exists():
+        try:
+            model_path = (path.parent / model_ref).resolve()
+            found = model_path.exists()
+        except OSError as exc:  # a path the system refuses (too long, ...)
+            raise InputError(f"the model path cannot be used: {exc.strerror or exc} "
+                             f"({len(model_ref)} characters)", file=str(path),
+                             key="model") from None
+        if not found:
             raise InputError(f"model file {model_ref!r} not found (looked at {model_path})",
                              file=str(path), key="model")
         model = load_model(model_path)

@@ -42,7 +42,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from ..errors import InputError, ResultFileError
-from ..store import StudyData, read_study, to_display
+from ..store import StudyData, read_study, to_display, write_whole
 from ..units import to_display_unit
 
 __all__ = ["CHARTS", "FIGSIZE", "DPI", "plot_study", "plot_willans", "plot_heat_rate",
@@ -412,9 +412,6 @@ def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
             continue
         fig = (CHARTS[c](studies, loads) if c == "expansion" else CHARTS[c](studies))
         out = out_dir / f"{stem}_{c}.png"
-        try:
-            fig.savefig(out, dpi=DPI)
-        except OSError as exc:
-            raise ResultFileError(f"cannot write {out}: {exc}") from None
+        write_whole(out, lambda tmp, fig=fig: fig.savefig(tmp, dpi=DPI))
         written.append(out)
     return written

@@ -12,13 +12,14 @@ One module per job:
 :mod:`~partload.store.reader`
     :func:`open_result`, :func:`read_study` and :class:`StudyData`.
 :mod:`~partload.store.export`
-    :func:`to_display` (the engineer's units) and :func:`export_csv`.
+    :func:`to_display` (the engineer's units), :func:`export_csv` and
+    :func:`write_whole` (a file written whole or not at all).
 
 Importing the store loads h5py and numpy, not the solver: the plan and
 layout a study hands to :class:`StudyFile` are only used, never imported.
 """
 
-from .export import export_csv, to_display
+from .export import export_csv, to_display, write_whole
 from .format import FORMAT, FORMAT_VERSION
 from .reader import StudyData, open_result, read_study
 from .writer import StudyFile, check_target
@@ -33,4 +34,5 @@ __all__ = [
     "read_study",
     "export_csv",
     "to_display",
+    "write_whole",
 ]

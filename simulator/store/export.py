@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import csv
 import math
+import os
+from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
@@ -19,7 +21,7 @@ from ..errors import ResultFileError
 from ..units import to_display_unit
 from .reader import read_study
 
-__all__ = ["to_display", "export_csv"]
+__all__ = ["to_display", "export_csv", "write_whole"]
 
 # display rules of files of format version 1, which do not store them
 _V1_DISPLAY = {"heaters/ttd": "K", "heaters/dca": "K", "stage_groups/efficiency": "%",
@@ -134,13 +136,44 @@ def export_csv(path: str | Path, out_dir: str | Path | None = None, si: bool = F
     return files
 
 
+def write_whole(path: Path, write: Callable[[Path], None]) -> Path:
+    """Write a file whole or not at all: ``write`` fills a temporary file in the
+    same folder, which then replaces ``path`` [-]; on any failure (a full disk,
+    Ctrl-C) the temporary file is removed and ``path`` is left as it was, so no
+    empty or cut file is ever left under the name.
+
+    Parameters
+    ----------
+    path : the file to write [-]
+    write : called with the temporary path (same suffix as ``path``) [-]
+
+    Raises
+    ------
+    ResultFileError
+        When the file cannot be written (the reason named).
+    """
+    tmp = path.with_name(f".{path.stem}.{os.getpid()}.partial{path.suffix}")
+    try:
+        write(tmp)
+        os.replace(tmp, path)
+    except BaseException as exc:
+        try:
+            tmp.unlink()
+        except OSError:
+            pass
+        if isinstance(exc, OSError):
+            raise ResultFileError(f"cannot write {path}: {exc.strerror or exc}") from None
+        raise
+    return path
+
+
 def _write_csv(path: Path, cols: list[tuple[str, np.ndarray]]) -> Path:
     texts = [_fmt(c) for _, c in cols]
-    try:
-        with open(path, "w", newline="", encoding="utf-8") as fh:
+
+    def write(tmp: Path) -> None:
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow([name for name, _ in cols])
             w.writerows(zip(*texts))
-    except OSError as exc:
-        raise ResultFileError(f"cannot write {path}: {exc}") from None
-    return path
+
+    return write_whole(path, write)

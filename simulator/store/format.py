@@ -148,13 +148,19 @@ Safety
 Checks
     :func:`check_format` says whether an open file is a partload result this
     software reads (format name, format version, core datasets);
-    :func:`open_hdf5` opens a path as HDF5 or says why not (missing, not
-    HDF5, damaged, locked by a running study); :func:`in_use` tells whether a
-    study holds the file for writing.
+    :func:`check_shapes` that its datasets agree with each other (every
+    dataset of a group has the file's row count, name lists match the
+    columns, the status has one value a point), so a damaged file is called
+    damaged instead of being read wrong; :func:`open_hdf5` opens a path as
+    HDF5 or says why not (missing, not HDF5, damaged, read-only, locked by a
+    running study); :func:`in_use` tells whether a study holds the file for
+    writing; :func:`looks_ours` recognises a damaged result of ours, which
+    ``--force`` may replace.
 """
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import h5py
@@ -172,7 +178,13 @@ __all__ = [
     "in_use",
     "format_name",
     "check_format",
+    "check_shapes",
+    "damaged",
+    "looks_ours",
     "attr_value",
+    "H5_ERRORS",
+    "READ_ERRORS",
+    "NAME_LISTS",
 ]
 
 FORMAT = "partload-study"
@@ -180,6 +192,48 @@ FORMAT_VERSION = 2  # the version this software writes
 READABLE_VERSIONS = (1, 2)  # the versions this software reads
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
 TEXT = h5py.string_dtype("utf-8")  # variable-length UTF-8 text
+# what h5py raises for a file it cannot read or write (damaged, full disk, ...)
+H5_ERRORS = (OSError, RuntimeError, ValueError)
+# and what reading a damaged file raises besides (an object or attribute gone, a wrong kind)
+READ_ERRORS = (*H5_ERRORS, KeyError, TypeError, IndexError, AttributeError)
+# text datasets of a result group naming its items (one per column of its datasets)
+NAME_LISTS = ("names", "inlet", "outlet", "nodes", "kind")
+OUR_MARK = FORMAT.encode()  # the root attribute 'format', stored near the start
+HEAD_BYTES = 1 << 16  # [B] the part of a file searched for it
+
+
+def damaged(path: Path, exc: BaseException | str) -> ResultFileError:
+    """The error for a result file that cannot be read as it should (``exc``: what failed)."""
+    return ResultFileError(f"{path} is damaged and cannot be read ({exc}); run its study "
+                           f"again with --force to replace it")
+
+
+def looks_ours(path: Path) -> bool:
+    """Whether the file at ``path`` [-] is a partload result, even a damaged one.
+
+    Its first 64 KiB hold the text of the root attribute ``format`` and an
+    HDF5 object header (``OHDR``): a file of ours whose other bytes are
+    damaged (a study killed while writing, a bad copy) still has them, a
+    foreign file or a text file does not.
+    """
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(HEAD_BYTES)
+    except OSError:
+        return False
+    return OUR_MARK in head and b"OHDR" in head
+
+
+def _read_only_reason(path: Path) -> str | None:
+    """Why ``path`` [-] cannot be written, when it is read-only; else ``None``."""
+    if os.access(path, os.W_OK):
+        return None
+    try:
+        if os.statvfs(path).f_flag & os.ST_RDONLY:
+            return "it is on a read-only file system"
+    except OSError:
+        pass
+    return "it is read-only (no write permission)"
 
 
 def is_hdf5(path: Path) -> bool:
@@ -206,6 +260,12 @@ def open_hdf5(path: Path, mode: str) -> h5py.File:
     if not is_hdf5(path):
         raise ResultFileError(f"{path} is not an HDF5 file, so not a partload result "
                               f"(another program's file, or damaged)")
+    if mode != "r":
+        why = _read_only_reason(path)
+        if why is not None:
+            raise ResultFileError(f"cannot write to {path}: {why}; the file is not damaged. "
+                                  f"Plot or export it as it is, or copy it to a writable "
+                                  f"folder and continue it there")
     try:
         if mode == "r":
             # the layout never changes after creation, so reading needs no lock: the
@@ -217,6 +277,9 @@ def open_hdf5(path: Path, mode: str) -> h5py.File:
         if "unable to lock file" in text.lower():
             raise ResultFileError(f"{path} is in use by another process (a study still "
                                   f"running?): {text}") from None
+        if "errno = 30," in text or "errno = 13," in text:
+            raise ResultFileError(f"cannot open {path} for writing: it is read-only ({text}); "
+                                  f"the file is not damaged") from None
         raise ResultFileError(f"{path} cannot be read as HDF5; it is damaged ({text})") from None
 
 
@@ -255,25 +318,103 @@ def check_format(f: h5py.File, path: Path) -> None:
         (the message names the file, the version found and the versions
         read); when a core dataset is missing (damaged).
     """
-    fmt = format_name(f)
+    try:
+        fmt = format_name(f)
+        has_version = "format_version" in f.attrs
+        found = attr_value(f.attrs["format_version"]) if has_version else None
+        missing = [k for k in ("points/done", "solver/status", "model_file", "case_file")
+                   if k not in f]
+    except READ_ERRORS as exc:
+        raise damaged(path, exc) from None
     if fmt != FORMAT:
         raise ResultFileError(f"{path} is an HDF5 file from another program, not a partload "
                               f"study result (its root attribute 'format' is {fmt!r}, "
                               f"expected {FORMAT!r})")
-    if "format_version" not in f.attrs:
+    if not has_version:
         raise ResultFileError(f"{path} is marked as a partload result but has no root "
                               f"attribute 'format_version'; this partload reads result format "
                               f"version {_versions()}")
-    found = attr_value(f.attrs["format_version"])
     if not (isinstance(found, int) and found in READABLE_VERSIONS):
         newer = (", newer than this partload knows (a newer partload wrote it)"
                  if isinstance(found, int) and found > max(READABLE_VERSIONS) else "")
         raise ResultFileError(f"{path} has result format version {found!r}{newer}; this "
                               f"partload reads result format version {_versions()}")
-    for name in ("points/done", "solver/status", "model_file", "case_file"):
-        if name not in f:
-            raise ResultFileError(f"{path} is a partload result but lacks {name!r}; it is "
-                                  f"damaged")
+    if missing:
+        raise ResultFileError(f"{path} is a partload result but lacks {missing[0]!r}; it is "
+                              f"damaged")
+
+
+def check_shapes(f: h5py.File, path: Path) -> None:
+    """Refuse a result whose datasets disagree with each other (damaged).
+
+    Every dataset of ``/points``, ``/inputs``, ``/solver``, ``/totals`` and the
+    result groups has one row a point (the length of ``/points/done`` and the
+    root attribute ``n_points``); the name lists of a group (``names``,
+    ``inlet``, ``outlet``, ``nodes``) have one entry a column of its 2-D
+    datasets; ``/paths`` has lists of one length; ``/points/series`` points
+    into ``/points/series_labels``.
+
+    Parameters
+    ----------
+    f : the open file, already checked by :func:`check_format`
+    path : its path, for the messages [-]
+
+    Raises
+    ------
+    ResultFileError
+        Naming the first dataset that disagrees, and calling the file damaged.
+    """
+    try:
+        done = f["points/done"]
+        if done.ndim != 1:
+            raise damaged(path, f"/points/done has shape {done.shape}, not one row a point")
+        n = done.shape[0]
+        if "n_points" in f.attrs and int(attr_value(f.attrs["n_points"])) != n:
+            raise damaged(path, f"the root attribute n_points is "
+                                f"{attr_value(f.attrs['n_points'])}, and /points/done has "
+                                f"{n} rows")
+        status = f["solver/status"]
+        if status.shape != (n,):
+            raise damaged(path, f"/solver/status has shape {status.shape}, the file has "
+                                f"{n} points")
+        for gname, g in f.items():
+            if not isinstance(g, h5py.Group):
+                continue
+            lists = {k: g[k] for k in NAME_LISTS if k in g and isinstance(g[k], h5py.Dataset)}
+            if gname == "paths":
+                lengths = {k: ds.shape for k, ds in lists.items()}
+                if len(set(lengths.values())) > 1:
+                    raise damaged(path, f"the lists of /paths differ in length ({lengths})")
+                continue
+            if gname == "totals":
+                lists = {}
+            width = lists["names"].shape[0] if "names" in lists else None
+            for k, ds in lists.items():
+                if ds.ndim != 1 or (width is not None and ds.shape[0] != width):
+                    raise damaged(path, f"/{gname}/{k} has shape {ds.shape}, and "
+                                        f"/{gname}/names has {width} entries")
+            for dname, ds in g.items():
+                if not isinstance(ds, h5py.Dataset) or dname in lists:
+                    continue
+                if gname == "points" and dname == "series_labels":
+                    continue
+                if ds.ndim == 0 or ds.shape[0] != n:
+                    rows = ds.shape[0] if ds.ndim else "no"
+                    raise damaged(path, f"/{gname}/{dname} has {rows} rows, and the file has "
+                                        f"{n} points")
+                if ds.ndim > 2 or (ds.ndim == 2 and ds.shape[1] != width):
+                    raise damaged(path, f"/{gname}/{dname} has shape {ds.shape}, and "
+                                        f"/{gname}/names names {width} columns")
+        if "points/series" in f and "points/series_labels" in f and n:
+            series = f["points/series"][:]
+            n_labels = f["points/series_labels"].shape[0]
+            if series.min() < 0 or series.max() >= n_labels:
+                raise damaged(path, f"/points/series refers to series {int(series.max())}, "
+                                    f"and /points/series_labels has {n_labels}")
+    except ResultFileError:
+        raise
+    except READ_ERRORS as exc:
+        raise damaged(path, exc) from None
 
 
 def attr_value(v):

@@ -16,7 +16,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultFileError
-from .format import attr_value, check_format, open_hdf5
+from .format import READ_ERRORS, attr_value, check_format, check_shapes, damaged, open_hdf5
 
 __all__ = ["StudyData", "open_result", "read_study"]
 
@@ -31,12 +31,15 @@ def open_result(path: str | Path) -> h5py.File:
     Raises
     ------
     ResultFileError
-        When the file is missing, not HDF5, damaged, or from another program.
+        When the file is missing, not HDF5, damaged (datasets that disagree
+        with each other included, see :func:`check_shapes`), or from another
+        program.
     """
     path = Path(path)
     f = open_hdf5(path, "r")
     try:
         check_format(f, path)
+        check_shapes(f, path)
     except ResultFileError:
         f.close()
         raise
@@ -117,40 +120,48 @@ def read_study(path: str | Path) -> StudyData:
     """
     path = Path(path)
     with open_result(path) as f:
-        attrs = {k: attr_value(v) for k, v in f.attrs.items()}
-        # every group of per-point results: the solver record, the totals, the
-        # cautions and one group per result group of the point (nodes, each kind)
-        result_groups = [g for g, obj in f.items() if isinstance(obj, h5py.Group)
-                         and g not in ("points", "inputs", "paths")]
-        names = {g: list(f[g]["names"].asstr()[:]) for g in result_groups
-                 if "names" in f[g] and g != "cautions"}
-        data, units, desc, display = {}, {}, {}, {}
-        for gname in result_groups:
-            for dname, ds in f[gname].items():
-                if dname in ("names", "inlet", "outlet", "nodes", "kind") and gname != "totals":
-                    continue
-                key = f"{gname}/{dname}"
-                data[key] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
-                units[key] = attr_value(ds.attrs.get("unit", ""))
-                desc[key] = attr_value(ds.attrs.get("description", ""))
-                if "display" in ds.attrs:
-                    display[key] = attr_value(ds.attrs["display"])
-        inputs = {}
-        for name, ds in f["inputs"].items():
-            inputs[name] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
-            units[f"inputs/{name}"] = attr_value(ds.attrs.get("unit", ""))
-            desc[f"inputs/{name}"] = attr_value(ds.attrs.get("description", ""))
-        texts = {k: f[k].asstr()[()] for k in ("model_file", "case_file", "profile_file")
-                 if k in f}
-        topo = {"group_inlet": list(f["stage_groups/inlet"].asstr()[:]),
-                "group_outlet": list(f["stage_groups/outlet"].asstr()[:])}
-        if "paths" in f:
-            for k in ("names", "inlet", "outlet", "kind"):
-                topo[f"path_{k}"] = list(f["paths"][k].asstr()[:])
-        return StudyData(
-            path=path, attrs=attrs, labels=list(f["points/label"].asstr()[:]),
-            series=f["points/series"][:], series_labels=list(f["points/series_labels"].asstr()[:]),
-            done=f["points/done"][:].astype(bool), status=f["solver/status"][:],
-            names=names, data=data, units=units, descriptions=desc, display=display,
-            inputs=inputs, texts=texts,
-            topology=topo)
+        try:
+            return _read(f, path)
+        except READ_ERRORS as exc:  # bytes damaged inside a dataset or a header
+            raise damaged(path, exc) from None
+
+
+def _read(f: h5py.File, path: Path) -> StudyData:
+    """Everything of an open, checked result file (see :func:`read_study`)."""
+    attrs = {k: attr_value(v) for k, v in f.attrs.items()}
+    # every group of per-point results: the solver record, the totals, the
+    # cautions and one group per result group of the point (nodes, each kind)
+    result_groups = [g for g, obj in f.items() if isinstance(obj, h5py.Group)
+                     and g not in ("points", "inputs", "paths")]
+    names = {g: list(f[g]["names"].asstr()[:]) for g in result_groups
+             if "names" in f[g] and g != "cautions"}
+    data, units, desc, display = {}, {}, {}, {}
+    for gname in result_groups:
+        for dname, ds in f[gname].items():
+            if dname in ("names", "inlet", "outlet", "nodes", "kind") and gname != "totals":
+                continue
+            key = f"{gname}/{dname}"
+            data[key] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
+            units[key] = attr_value(ds.attrs.get("unit", ""))
+            desc[key] = attr_value(ds.attrs.get("description", ""))
+            if "display" in ds.attrs:
+                display[key] = attr_value(ds.attrs["display"])
+    inputs = {}
+    for name, ds in f["inputs"].items():
+        inputs[name] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
+        units[f"inputs/{name}"] = attr_value(ds.attrs.get("unit", ""))
+        desc[f"inputs/{name}"] = attr_value(ds.attrs.get("description", ""))
+    texts = {k: f[k].asstr()[()] for k in ("model_file", "case_file", "profile_file")
+             if k in f}
+    topo = {"group_inlet": list(f["stage_groups/inlet"].asstr()[:]),
+            "group_outlet": list(f["stage_groups/outlet"].asstr()[:])}
+    if "paths" in f:
+        for k in ("names", "inlet", "outlet", "kind"):
+            topo[f"path_{k}"] = list(f["paths"][k].asstr()[:])
+    return StudyData(
+        path=path, attrs=attrs, labels=list(f["points/label"].asstr()[:]),
+        series=f["points/series"][:], series_labels=list(f["points/series_labels"].asstr()[:]),
+        done=f["points/done"][:].astype(bool), status=f["solver/status"][:],
+        names=names, data=data, units=units, descriptions=desc, display=display,
+        inputs=inputs, texts=texts,
+        topology=topo)

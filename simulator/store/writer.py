@@ -2,18 +2,32 @@
 
 :func:`check_target` decides what to do with the result path of a study
 (create, resume or replace) and refuses to overwrite anything that is not an
-earlier partload result.  :class:`StudyFile` builds the whole layout (see
-:mod:`partload.store.format`) in ``<path>.creating``, moves it into place
-when complete, and then only writes numbers into space already allocated:
-each chunk's results, flushed, then its ``done`` flags, flushed.  On
-``--resume`` it checks that the model, case, profile, property backend,
-software version and plan are the ones the file was made with.
+earlier partload result.  :class:`StudyFile` checks the free space against
+the size the plan needs (:func:`study_file_size`), builds the whole layout
+(see :mod:`partload.store.format`) under a unique temporary name in the
+result's folder, opens it for writing (which takes its lock) and only then
+puts it at the result path: a new result by a hard link that never replaces
+a file (a file that appeared meanwhile, another study's, is left alone and
+the study stops), a ``--force`` replacement by a rename while holding the
+old file's lock (a study running on it stops this one).  Every failure on
+the way, Ctrl-C included, removes the temporary file.  The file then only
+receives numbers into space already allocated: each chunk's results,
+flushed, then its ``done`` flags, flushed.  On ``--resume`` it checks that
+the model, case, profile, property backend, software version and plan are
+the ones the file was made with.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
+import errno
+import fcntl
 import os
+import secrets
+import sys
+import time
+from collections.abc import Callable
+from glob import escape as glob_escape
 from pathlib import Path
 
 import h5py
@@ -24,12 +38,17 @@ from ..version import __version__
 from .format import (
     FORMAT,
     FORMAT_VERSION,
+    H5_ERRORS,
+    READ_ERRORS,
     TEXT,
     attr_value,
     check_format,
+    check_shapes,
+    damaged,
     format_name,
     in_use,
     is_hdf5,
+    looks_ours,
     open_hdf5,
 )
 
@@ -38,7 +57,23 @@ from .format import (
 # over are used by their attributes only: the store sits below the study and
 # never imports it, and reading results never loads the layout's declarations.
 
-__all__ = ["StudyFile", "check_target"]
+__all__ = ["LARGE_FILE", "StudyFile", "between_steps", "check_target", "study_file_size"]
+
+LARGE_FILE = 1 << 30  # [B] a result file this large is announced before it is allocated
+ABANDONED_AFTER = 600.0  # [s] a temporary file unchanged this long, and unlocked, is abandoned
+
+
+def between_steps(step: str) -> None:
+    """Called by :meth:`StudyFile.create` after each of its steps: ``"checked"``
+    (free space checked), ``"built"`` (the whole layout written under its
+    temporary name and reopened for writing, so locked, just before it is put
+    at the result path).  It does nothing; tests replace it to force a race, a full disk or
+    an interrupt between two steps.
+
+    Parameters
+    ----------
+    step : the name of the step just finished [-]
+    """
 
 
 def check_target(path: str | Path, *, resume: bool = False, force: bool = False) -> str:
@@ -63,6 +98,8 @@ def check_target(path: str | Path, *, resume: bool = False, force: bool = False)
     if path.is_dir():
         raise ResultFileError(f"{path} is a folder; give a file name ending in .h5")
     if not is_hdf5(path):
+        if force and looks_ours(path):  # a result of ours with a damaged beginning
+            return "replace"
         raise ResultFileError(f"{path} exists and is not an HDF5 file; partload will not "
                               f"overwrite it, even with --force (move or delete it, or choose "
                               f"another --output)")
@@ -73,11 +110,17 @@ def check_target(path: str | Path, *, resume: bool = False, force: bool = False)
     try:
         f = open_hdf5(path, "r")
     except ResultFileError:
-        if force:  # a damaged file of ours (killed while being created): replace it
+        if force and looks_ours(path):  # a damaged file of ours (killed while being created)
             return "replace"
         raise
     with f:
-        if format_name(f) != FORMAT:
+        try:
+            fmt = format_name(f)
+        except READ_ERRORS as exc:
+            if force and looks_ours(path):
+                return "replace"
+            raise damaged(path, exc) from None
+        if fmt != FORMAT:
             raise ResultFileError(f"{path} is an HDF5 file from another program (no "
                                   f"'format = {FORMAT}' attribute); partload will not "
                                   f"overwrite it, even with --force")
@@ -85,12 +128,161 @@ def check_target(path: str | Path, *, resume: bool = False, force: bool = False)
             return "replace"
         if resume:
             return "resume"
-        done = int(np.sum(f["points/done"][:])) if "points/done" in f else 0
-        n = int(f.attrs.get("n_points", 0))
-        case = f.attrs.get("case_name", "?")
+        try:
+            done = int(np.sum(f["points/done"][:])) if "points/done" in f else 0
+            n = int(f.attrs.get("n_points", 0))
+            case = attr_value(f.attrs.get("case_name", "?"))
+        except READ_ERRORS as exc:
+            raise ResultFileError(f"{path} already exists and is damaged ({exc}); use --force "
+                                  f"to replace it, or --output to write elsewhere") from None
         raise ResultFileError(f"{path} already exists (study of case {case!r}, {done} of {n} "
                               f"points done); use --resume to continue it, --force to replace "
                               f"it, or --output to write elsewhere")
+
+
+def study_file_size(plan, layout) -> int:
+    """The size [B] the result file of ``plan`` takes on disk, from the plan alone.
+
+    Every per-point dataset is allocated at creation, so the size is known
+    before anything is written: the declared columns (points x items x the
+    bytes of their type), the inputs, labels and texts, and an allowance for
+    HDF5's own structure (object headers, heaps; 256 KiB plus 1 KiB a
+    dataset and 32 B a text, a generous estimate, not a measured bound).
+
+    Parameters
+    ----------
+    plan : the study plan (``partload.study.StudyPlan``) [-]
+    layout : its result layout (``partload.store.layout.ResultLayout``) [-]
+    """
+    n = plan.n_points
+
+    def text(values) -> int:
+        return sum(len(str(v).encode()) + 32 for v in values)
+
+    size = 256 * 1024
+    for fl in layout.fields():
+        size += n * max(fl.width, 1) * np.dtype(fl.dtype).itemsize + 1024
+    size += n * (1 + 4 + 4)  # points/done, series, chunk
+    size += text(plan.labels) + text(plan.series_labels)
+    for col in plan.inputs.values():
+        size += (col.values.nbytes if isinstance(col.values, np.ndarray)
+                 else text(col.values)) + 1024
+    size += len(plan.case.text.encode()) + len(plan.case.model.text.encode())
+    if plan.profile is not None:
+        size += len(plan.profile.text.encode())
+    return int(size)
+
+
+def size_text(size: float) -> str:
+    """A size in bytes [B] as text in kB, MB or GB (powers of 1000)."""
+    for unit, scale in (("GB", 1e9), ("MB", 1e6), ("kB", 1e3)):
+        if size >= scale:
+            return f"{size / scale:.1f} {unit}"
+    return f"{int(size)} B"
+
+
+def _free_space(folder: Path) -> int:
+    st = os.statvfs(folder)
+    return int(st.f_bavail * st.f_frsize)
+
+
+def _no_space(exc: BaseException) -> bool:
+    return (getattr(exc, "errno", None) == errno.ENOSPC or "errno = 28" in str(exc)
+            or "No space left" in str(exc))
+
+
+def _put_in_place(tmp: Path, path: Path, replace: bool) -> None:
+    """Put the finished file ``tmp`` at ``path`` [-]: a link that never replaces
+    anything for a new result, a rename under the old file's lock for ``replace``."""
+    if replace:
+        try:
+            fd = os.open(path, os.O_RDONLY)
+        except FileNotFoundError:  # gone meanwhile: nothing to hold
+            fd = None
+        try:
+            if fd is not None:
+                try:
+                    fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                except OSError:
+                    raise ResultFileError(
+                        f"cannot replace {path}: a study started writing to it meanwhile; it "
+                        f"was left as it is") from None
+            os.replace(tmp, path)
+        finally:
+            if fd is not None:
+                os.close(fd)
+        return
+    appeared = ResultFileError(
+        f"cannot create {path}: a file of that name appeared while this study was being "
+        f"prepared (another study writing to the same file?); it was left as it is. Use "
+        f"--output to write elsewhere, or --force to replace it once that study is done")
+    try:
+        os.link(tmp, path)
+    except FileExistsError:
+        raise appeared from None
+    except OSError:  # a file system without hard links: reserve the name, then rename
+        try:
+            os.close(os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644))
+        except FileExistsError:
+            raise appeared from None
+        os.replace(tmp, path)
+    else:
+        tmp.unlink()
+
+
+def _remove_abandoned(path: Path) -> None:
+    """Remove the temporary files of ``path`` [-] that no process holds and that
+    have not changed for :data:`ABANDONED_AFTER` seconds: those of a creation
+    killed with SIGKILL or a power cut (a creation under way holds the HDF5
+    lock of its file, but for an instant between its build and its reopening,
+    which the age covers)."""
+    for old in path.parent.glob(f".{glob_escape(path.name)}.*.creating"):
+        try:
+            if time.time() - old.stat().st_mtime < ABANDONED_AFTER:
+                continue
+            fd = os.open(old, os.O_RDONLY)
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            old.unlink()
+        except OSError:  # held by a creation under way, or already gone
+            pass
+        finally:
+            os.close(fd)
+
+
+def _unique_temporary(path: Path) -> Path:
+    """A new empty file ``.<name>.<random>.creating`` next to ``path`` [-], made with
+    ``O_EXCL`` (never another study's) and the usual permissions (umask)."""
+    for _ in range(100):
+        tmp = path.with_name(f".{path.name}.{secrets.token_hex(6)}.creating")
+        try:
+            os.close(os.open(tmp, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666))
+        except FileExistsError:
+            continue
+        except OSError as exc:
+            raise ResultFileError(f"cannot create a file in {path.parent}: "
+                                  f"{exc.strerror or exc}") from None
+        return tmp
+    raise ResultFileError(f"cannot find a free temporary name in {path.parent}")
+
+
+def _discard(f, tmp: Path) -> None:
+    """Close ``f`` (if open) and remove ``tmp`` [-], whatever state they are in."""
+    if f is not None:
+        try:
+            f.close()
+        except Exception:  # noqa: BLE001 - a full disk may fail the close; the file goes anyway
+            pass
+    try:
+        tmp.unlink()
+    except OSError:
+        pass
+
+
+def _note(text: str) -> None:
+    print(f"partload: note: {text}", file=sys.stderr, flush=True)
 
 
 def _utc_now() -> str:
@@ -144,28 +336,78 @@ class StudyFile:
 
     # ---------------------------------------------------------------- create
     @classmethod
-    def create(cls, path: str | Path, plan, layout,
-               check_limits: bool = True) -> StudyFile:
-        """Write the file's whole structure, then move it to ``path``.
+    def create(cls, path: str | Path, plan, layout, check_limits: bool = True,
+               replace: bool = False,
+               note: Callable[[str], None] | None = None) -> StudyFile:
+        """Write the file's whole structure, then put it at ``path``, open for writing.
 
-        The structure is built in ``<path>.creating`` and renamed into place
-        when complete, so ``path`` (or the earlier result it replaces) is never
-        half-made.
+        The structure is built under a unique temporary name in the same
+        folder and put at ``path`` only when complete and locked, so ``path``
+        (or the earlier result it replaces) is never half-made and a file that
+        appears at ``path`` meanwhile is never replaced.
+
+        Parameters
+        ----------
+        path : the result file [-]
+        plan : the study plan [-]
+        layout : its result layout [-]
+        check_limits : stored as the root attribute ``check_limits`` [-]
+        replace : ``True`` replaces the earlier result at ``path`` (``--force``);
+            ``False`` refuses any file found there [-]
+        note : called with a line of text when the file is larger than
+            :data:`LARGE_FILE` (default: printed to stderr) [-]
+
+        Raises
+        ------
+        ResultFileError
+            When the free space is less than the file needs (both named), a
+            file appeared at ``path`` meanwhile, a study holds the file being
+            replaced, or HDF5 fails (full disk, ...); the temporary file is
+            removed first.  Ctrl-C (KeyboardInterrupt) removes it too.
         """
         path = Path(path)
         path.parent.mkdir(parents=True, exist_ok=True)
-        tmp = path.with_name(path.name + ".creating")
-        if tmp.exists():
-            tmp.unlink()
+        needed = study_file_size(plan, layout)
+        folder = path.parent.resolve()
+        free = _free_space(folder)
+        if needed > free:
+            raise ResultFileError(
+                f"cannot create {path}: the study needs about {size_text(needed)} for its "
+                f"{plan.n_points} points (allocated when the file is made) and only "
+                f"{size_text(free)} is free on {folder}; free some space, write elsewhere "
+                f"with --output, or run fewer points")
+        if needed >= LARGE_FILE:
+            (note or _note)(f"{path} takes about {size_text(needed)} for {plan.n_points} "
+                            f"points, allocated now ({size_text(free)} free on {folder})")
+        between_steps("checked")
+        _remove_abandoned(path)
+        tmp = _unique_temporary(path)
+        f = None
         try:
-            with h5py.File(tmp, "w", track_order=True) as f:
-                _write_structure(f, plan, layout)
-                f.attrs["check_limits"] = int(check_limits)
-                f.flush()
-            os.replace(tmp, path)
-        except OSError as exc:
+            f = h5py.File(tmp, "w", track_order=True)
+            _write_structure(f, plan, layout)
+            f.attrs["check_limits"] = int(check_limits)
+            f.close()  # closed once, so that its structure is final on disk
+            # reopened for writing (HDF5 locks it) before it appears at path: a second
+            # study finds it in use from its first moment there
+            f = h5py.File(tmp, "r+")
+            between_steps("built")
+            _put_in_place(tmp, path, replace)
+        except ResultFileError:
+            _discard(f, tmp)
+            raise
+        except H5_ERRORS as exc:
+            _discard(f, tmp)
+            if _no_space(exc):
+                free = _free_space(folder) if folder.exists() else 0
+                raise ResultFileError(
+                    f"cannot create {path}: the disk is full; the study needs about "
+                    f"{size_text(needed)} and {size_text(free)} is free on {folder}") from None
             raise ResultFileError(f"cannot create {path}: {exc}") from None
-        return cls(path, open_hdf5(path, "r+"), layout)
+        except BaseException:  # Ctrl-C, SIGTERM: nothing is left behind
+            _discard(f, tmp)
+            raise
+        return cls(path, f, layout)
 
     # ---------------------------------------------------------------- resume
     @classmethod
@@ -184,6 +426,7 @@ class StudyFile:
         f = open_hdf5(path, "r+")
         try:
             check_format(f, path)
+            check_shapes(f, path)
             found = attr_value(f.attrs.get("format_version"))
             if found != FORMAT_VERSION:
                 raise ResultFileError(
@@ -205,6 +448,12 @@ class StudyFile:
                 raise ResultFileError(f"{path} lacks {missing[0]!r}; it was written with "
                                       f"another layout and cannot be resumed")
             return cls(path, f, layout)
+        except ResultFileError:
+            f.close()
+            raise
+        except READ_ERRORS as exc:
+            f.close()
+            raise damaged(path, exc) from None
         except BaseException:
             f.close()
             raise
@@ -232,7 +481,7 @@ class StudyFile:
             self.f.flush()
             self._done[a:b] = 1
             self.f.flush()
-        except OSError as exc:
+        except H5_ERRORS as exc:
             raise ResultFileError(f"cannot write to {self.path} ({exc}); the points marked "
                                   f"done so far are safe, continue with --resume") from None
 

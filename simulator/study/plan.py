@@ -26,6 +26,7 @@ __all__ = [
     "Chunk",
     "InputColumn",
     "StudyPlan",
+    "check_size",
     "chunk_size",
     "plan_study",
 ]
@@ -120,6 +121,35 @@ class StudyPlan:
             self, conditions=self.conditions[:n], labels=self.labels[:n], series=series,
             series_labels=self.series_labels[:int(series.max()) + 1], inputs=inputs,
             chunks=_chunks(series, chunk_size(n)), limit=n)
+
+
+def check_size(lengths: Sequence[int], keys: Sequence[str], file: str,
+               table: str = "sweep") -> int:
+    """The number of points of a study, refused above :data:`MAX_POINTS`.
+
+    Computed from the lengths of the axes alone (their product), before any
+    point, label or array is made: a typo in a range must not fill the memory
+    before it is refused.
+
+    Parameters
+    ----------
+    lengths : the number of values of each axis (a profile: its rows) [-]
+    keys : the axes' keys, for the message [-]
+    file : the case file, for the message [-]
+    table : its table that sets the axes (``sweep`` or ``profile``) [-]
+
+    Raises
+    ------
+    InputError
+        Naming the case file, each axis with its length, and the limit.
+    """
+    n_total = math.prod(lengths)
+    if n_total > MAX_POINTS:
+        parts = " x ".join(f"{n} ({k})" for n, k in zip(lengths, keys) if k or n > 1)
+        raise InputError(f"this study has {n_total:,} points ({parts}), more than the "
+                         f"{MAX_POINTS:,} a study may have; use fewer values or split it "
+                         f"into several studies", file=file, table=table)
+    return n_total
 
 
 def chunk_size(n_points: int) -> int:
@@ -319,12 +349,15 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
             run_values = [(cont.values[k], cont.texts[k]) for k in order]
         else:
             run_values = [None]
-    combos = list(itertools.product(*[range(len(a.values)) for a in series_axes]))
     n_run = len(profile.labels) if profile is not None else len(run_values)
-    n_total = len(combos) * n_run
-    if n_total > MAX_POINTS:
-        raise InputError(f"this study has {n_total} points, more than the {MAX_POINTS} allowed",
-                         file=case.file)
+    run_key = cont_key if profile is None else "profile rows"
+    check_size([len(a.values) for a in series_axes] + [n_run],
+               [a.key for a in series_axes] + [run_key], case.file,
+               "sweep" if has_sweep else "profile")
+    n_series = math.prod(len(a.values) for a in series_axes)
+    n_total = n_series * n_run
+    # the series one at a time: nothing of the product is built before it is planned
+    combos = itertools.product(*[range(len(a.values)) for a in series_axes])
     cache: dict = {}
     conds: list[Conditions] = []
     labels: list[str] = []
@@ -407,9 +440,9 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
                                         a.kind.description + " (axis)")
     if profile is not None:
         inputs["profile_line"] = InputColumn(
-            np.tile(profile.lines, len(combos)).astype(np.int64), "-",
+            np.tile(profile.lines, n_series).astype(np.int64), "-",
             "line of the point in the profile file")
-        inputs["time"] = InputColumn(list(profile.labels) * len(combos), "",
+        inputs["time"] = InputColumn(list(profile.labels) * n_series, "",
                                      "label of the profile row (its time column)")
     kind = "sweep" if profile is None else ("profile+sweep" if sweep else "profile")
     return StudyPlan(case=case, kind=kind, backend=backend or case.backend, conditions=conds,
