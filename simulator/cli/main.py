@@ -80,6 +80,12 @@ def _cautions(model, cond, result):
     return check_point(model, cond, result)
 
 
+def _say(text: str) -> None:
+    """Print an error line to stderr; bytes a damaged file put into the text that
+    cannot be written are shown escaped rather than raising."""
+    print(text.encode("utf-8", "backslashreplace").decode("utf-8"), file=sys.stderr)
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="partload",
@@ -119,22 +125,22 @@ def main(argv: list[str] | None = None) -> int:
     except InputError as exc:
         if args.debug:
             traceback.print_exc()
-        print(f"partload: error in input: {exc}", file=sys.stderr)
+        _say(f"partload: error in input: {exc}")
         return 2
     except SolveError as exc:
         if args.debug:
             traceback.print_exc()
-        print(f"partload: cannot solve: {exc}", file=sys.stderr)
+        _say(f"partload: cannot solve: {exc}")
         return 1
     except ResultFileError as exc:
         if args.debug:
             traceback.print_exc()
-        print(f"partload: result file: {exc}", file=sys.stderr)
+        _say(f"partload: result file: {exc}")
         return 3
     except PartloadError as exc:  # pragma: no cover - every error has a class above
         if args.debug:
             traceback.print_exc()
-        print(f"partload: {exc}", file=sys.stderr)
+        _say(f"partload: {exc}")
         return 2
     except KeyboardInterrupt:
         print("partload: interrupted", file=sys.stderr)
@@ -149,7 +155,7 @@ def main(argv: list[str] | None = None) -> int:
         if args.debug:
             traceback.print_exc()
         where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
-        print(f"partload: file system: {where}{exc.strerror or exc}", file=sys.stderr)
+        _say(f"partload: file system: {where}{exc.strerror or exc}")
         return 3
 
 

@@ -23,6 +23,7 @@ import datetime as _dt
 import errno
 import fcntl
 import os
+import re
 import secrets
 import sys
 import time
@@ -599,6 +600,10 @@ def _check_same_study(f: h5py.File, path: Path, plan) -> None:
 
     fix = (f"Start afresh with --force (the {int(np.sum(f['points/done'][:]))} points stored "
            f"are then lost) or write elsewhere with --output.")
+    for k in ("model_sha256", "case_sha256"):
+        if not re.fullmatch(r"[0-9a-f]{64}", attr(k)):
+            raise ResultFileError(
+                f"{path} is damaged: its {k} attribute is not a SHA-256 digest. {fix}")
     if attr("model_sha256") != model.sha256:
         raise ResultFileError(
             f"cannot resume {path}: the model has changed since this study was started. The "
