@@ -240,3 +240,42 @@ def test_model_keys_checked(changes, key):
     with pytest.raises(InputError) as err:
         _variant(**changes)
     assert key in str(err.value)
+
+
+def _codes(model, f, **kw):
+    from partload.cautions.checks import check_point
+    kw.setdefault("valve_mode", "nozzle_groups")
+    kw.setdefault("pressure_mode", "fixed")
+    cond = Conditions(throttle_flow=f * model.throttle.flow, **kw)
+    return [c.code for c in check_point(model, cond, solve_point(model, cond))]
+
+
+def test_cautions_of_nozzle_governing(model):
+    # quiet at design (common practice: the design point is within every limit)
+    assert _codes(model, 1.0, pressure_mode="sliding") == []
+    # below the first valve point only CV1 admits steam
+    assert "first_valve_only" in _codes(model, 0.3)
+    # just past the first valve point CV2 cracks open, below the model's 10 % minimum
+    assert "valve_low_opening" in _codes(model, 0.44)
+    assert "valve_low_opening" not in _codes(model, 0.6)
+    # above design flow at the held pressure the first-stage pressure exceeds its design
+    assert "first_stage_overload" in _codes(model, 1.05)
+    assert "first_stage_overload" not in _codes(model, 0.9)
+    # valves that open together have no sequence to caution about
+    assert not {"first_valve_only", "valve_low_opening"} & set(
+        _codes(model, 0.3, valve_mode="throttle"))
+
+
+def test_valve_points(model):
+    from partload.plant.case import design_conditions
+    from partload.solve.point import valve_points
+    points = valve_points(model, design_conditions(model))
+    assert len(points) == 4
+    flows = [p.totals["throttle_flow"] for p in points]
+    assert flows == sorted(flows)
+    # the design heat balance is the third valve point (identity with the calibration)
+    assert flows[2] == pytest.approx(model.throttle.flow, rel=1e-9)
+    for k, p in enumerate(points, start=1):
+        opening = p.tables["governing_valves"].columns["opening"]
+        assert list(opening) == [1.0] * k + [0.0] * (4 - k)
+        assert p.totals["throttle_pressure"] == pytest.approx(model.throttle.pressure)

@@ -26,6 +26,14 @@ The checks, in the order they are reported (:data:`CHECKS`):
 ``exhaust_temperature``
     Temperature of the steam leaving a last-stage annulus (the used-energy end
     point at the exhaust pressure) above ``max_exhaust_temperature``.
+``first_stage_overload``
+    First-stage pressure after a governing stage above
+    ``max_first_stage_pressure`` of its design value.
+``valve_low_opening``
+    A control valve of a governing stage throttling below the model's
+    ``minimum_opening``.
+``first_valve_only``
+    Nozzle-group governing with only the first valve admitting steam.
 
 Each check gives at most one caution per point, for the worst location, and
 names the other locations beyond the limit in its message; so a point has at
@@ -439,6 +447,70 @@ def _back_pressure(pt: _Point) -> Caution | None:
         ratio, lim, n, "-")
 
 
+def _first_stage_overload(pt: _Point) -> Caution | None:
+    gov = pt.model.governing_stage
+    if gov is None:
+        return None
+    name = "max_first_stage_pressure"
+    lim = pt.limits[name]
+    p1 = float(pt.result.node_p[pt.node_index(gov.outlet)])
+    p1_d = pt.model.design_pressure[gov.outlet]
+    ratio = p1 / p1_d
+    if ratio <= lim * (1.0 + 1e-6):
+        return None
+    return Caution(
+        "first_stage_overload",
+        f"First-stage pressure is {p1 / 1e5:.4g} bar, {_pct(ratio)} of its design "
+        f"{p1_d / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))}): the governing and HP stages "
+        f"carry more than their rated loading and thrust (overload). {DEFERENCE}",
+        ratio, lim, gov.outlet, "-")
+
+
+def _governing_valves(pt: _Point):
+    """``(governing stage, openings, flows)`` under nozzle-group governing, else ``None``."""
+    gov = pt.model.governing_stage
+    table = pt.result.tables.get("governing_valves")
+    if gov is None or table is None or pt.result.valve_mode != "nozzle_groups":
+        return None
+    return gov, table.columns["opening"], table.columns["flow"]
+
+
+def _valve_low_opening(pt: _Point) -> Caution | None:
+    found = _governing_valves(pt)
+    if found is None or found[0].minimum_opening <= 0.0:
+        return None
+    gov, opening, _ = found
+    low = [(float(o), v) for o, v in zip(opening, gov.valves)
+           if 0.0 < o < gov.minimum_opening]
+    if not low:
+        return None
+    o, v = min(low)
+    return Caution(
+        "valve_low_opening",
+        f"Control valve {v!r} throttles at {_pct(o)} of its group's flow, below the model's "
+        f"minimum opening {_pct(gov.minimum_opening)}: a valve held near its seat wears plug "
+        f"and seat by erosion and may vibrate; a load here should not be held for long "
+        f"(common practice, no source). {DEFERENCE}",
+        o, gov.minimum_opening, v, "-")
+
+
+def _first_valve_only(pt: _Point) -> Caution | None:
+    found = _governing_valves(pt)
+    if found is None:
+        return None
+    gov, opening, flow = found
+    if not (flow[0] > 0.0 and all(f <= 0.0 for f in flow[1:])) or len(flow) < 2:
+        return None
+    return Caution(
+        "first_valve_only",
+        f"Only the first control valve ({gov.valves[0]!r}, {_pct(float(opening[0]))} open) "
+        f"admits steam, to {_pct(gov.arcs[0])} of the nozzle arc: the governing-stage blades "
+        f"take the largest stage drop of any load and pass in and out of the one admitted "
+        f"arc, their highest loading and excitation (common practice, no source). "
+        f"{DEFERENCE}",
+        float(opening[0]), math.nan, gov.valves[0], "-")
+
+
 CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "valves_wide_open": _valves_wide_open,
     "pressure_rise": _pressure_rise,
@@ -448,6 +520,9 @@ CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "steam_temperature": _steam_temperature,
     "generator_output": _generator_output,
     "back_pressure": _back_pressure,
+    "first_stage_overload": _first_stage_overload,
+    "valve_low_opening": _valve_low_opening,
+    "first_valve_only": _first_valve_only,
 }
 """The checks by caution code, in the order their cautions are reported."""
 

@@ -74,6 +74,21 @@ def _cmd_point(args) -> int:
     return 0
 
 
+def _cmd_valve_points(args) -> int:
+    from ..plant.case import load_case
+    from ..present.tables import format_valve_points, valve_point_rows
+    from ..solve.point import valve_points
+
+    case = load_case(args.case)
+    results = valve_points(case.model, case.conditions, args.backend or case.backend)
+    if args.json:
+        print(json.dumps({"model": case.model.name, "case": case.name,
+                          "valve_points": valve_point_rows(case.model, results)}, indent=2))
+    else:
+        print(format_valve_points(case.model, results, case.name))
+    return 0
+
+
 def _cautions(model, cond, result):
     from ..cautions.checks import check_point
 
@@ -110,6 +125,16 @@ def build_parser() -> argparse.ArgumentParser:
                                                    "(default: the case's, else seuif97)")
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
     c.set_defaults(func=_cmd_point)
+
+    c = sub.add_parser("valve-points", help="list the valve points of a nozzle-governed "
+                                            "unit: flow, output and heat rate with each "
+                                            "control valve wide open")
+    c.add_argument("case", help="case file (TOML); its held throttle pressure, else the "
+                                "design pressure, and its other conditions are used")
+    c.add_argument("--backend", default=None, help="steam property backend: seuif97 or iapws "
+                                                   "(default: the case's, else seuif97)")
+    c.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    c.set_defaults(func=_cmd_valve_points)
 
     from . import study_commands as study_cli
 

@@ -12,6 +12,7 @@ manufacturer's where they are known::
     max_steam_temperature_rise = "0 K"      # throttle and reheat above design
     max_generator_output = "100 %"          # of the generator rating
     max_back_pressure = "250 %"             # of the design exhaust pressure
+    max_first_stage_pressure = "100 %"      # of its design value (governing stage)
 
 Keys left out take the defaults below.  The defaults are common practice of
 the trade, not taken from a published source or from any one manufacturer;
@@ -54,6 +55,12 @@ Defaults and why
         harder and, at low flow, heats the exhaust and can excite blade
         flutter; 250 % is roughly where alarms are set on condensing units
         designed for 5-10 kPa (common practice, no source).
+    ``max_first_stage_pressure`` 100 % of design
+        The first-stage pressure after a governing stage measures the load on
+        the governing and HP stages; above its design (rated) value they carry
+        more than their rated loading and thrust, which the manufacturer
+        allows only up to a stated overload, often with the last control valve
+        (common practice, no source).
 """
 
 from __future__ import annotations
@@ -121,6 +128,9 @@ LIMITS: dict[str, LimitSpec] = {spec.name: spec for spec in (
               "largest generator output, over the rating [-]"),
     LimitSpec("max_back_pressure", "fraction", "250 %", 0.0, 100.0,
               "largest exhaust (back) pressure, over its design value [-]"),
+    LimitSpec("max_first_stage_pressure", "fraction", "100 %", 0.0, 2.0,
+              "highest first-stage pressure after a governing stage, over its design value "
+              "[-]"),
 )}
 
 

@@ -118,6 +118,41 @@ def _table(title: str, headers: list[str], rows: list[list], units: list[str]) -
     return "\n".join(lines)
 
 
+def valve_point_rows(model, results) -> list[dict]:
+    """One dict a valve point (SI): valves wide open, throttle flow and its share
+    of design, output, heat rate, first-stage pressure, throttle pressure."""
+    gov = model.governing_stage
+    rows = []
+    for k, r in enumerate(results, start=1):
+        t = r.totals
+        rows.append({"valves_wide_open": k, "valves": list(gov.valves[:k]),
+                     "throttle_flow": t["throttle_flow"],
+                     "throttle_flow_fraction": t["throttle_flow"] / model.throttle.flow,
+                     "generator_output": t["generator_output"],
+                     "heat_rate": t.get("heat_rate", math.nan),
+                     "first_stage_pressure": r.node(gov.outlet)["p"],
+                     "throttle_pressure": t["throttle_pressure"]})
+    return rows
+
+
+def format_valve_points(model, results, case_name: str = "") -> str:
+    """The valve points of a nozzle-governed unit as a table."""
+    rows = valve_point_rows(model, results)
+    p_T = rows[0]["throttle_pressure"] if rows else math.nan
+    head = (f"partload: {model.name}" + (f" / case {case_name}" if case_name else "")
+            + f"\nvalve points at a held throttle pressure of {p_T / 1e5:.2f} bar: the first "
+            f"valves wide open, the others closed (heat rate: heat added over generator "
+            f"output, turbine cycle)\n")
+    return head + "\n" + _table(
+        "Valve points",
+        ["wide open", "last valve", "throttle flow", "of design", "output", "heat rate",
+         "first-stage p"],
+        [[r["valves_wide_open"], r["valves"][-1], r["throttle_flow"],
+          100 * r["throttle_flow_fraction"], r["generator_output"] / 1e6, r["heat_rate"] * 3600,
+          r["first_stage_pressure"] / 1e5] for r in rows],
+        ["", "", "kg/s", "%", "MW", "kJ/kWh", "bar"])
+
+
 def format_point(r: PointResult, case_name: str = "", cautions=()) -> str:
     """Readable tables of a solved point."""
     d = point_to_dict(r, case_name, cautions)

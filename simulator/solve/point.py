@@ -27,7 +27,7 @@ from .equations import PointEquations, TrialPointError, equations_for
 from .newton import newton
 from .result import NODE_COLUMNS, STEAM_PATH_COLUMNS, PointResult, ResultTable
 
-__all__ = ["solve_point", "wide_open_capacity", "PointResult", "PointEquations"]
+__all__ = ["solve_point", "wide_open_capacity", "valve_points", "PointResult", "PointEquations"]
 
 TOL = 1e-10
 
@@ -42,6 +42,49 @@ def wide_open_capacity(model: Model, cond: Conditions, steam: SteamTables,
     nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names)
     _, st = eq.evaluate(nr.x, detail=True)
     return st["m_T"], st["P_gen"]
+
+
+def valve_points(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
+                 ) -> list[PointResult]:
+    """The valve points of a nozzle-governed unit at a held throttle pressure.
+
+    A valve point is the load at which the first ``k`` control valves are wide
+    open and the others closed: no valve throttles, so the heat rate has a
+    local minimum there.  ``cond`` gives the throttle pressure held (its
+    ``throttle_pressure``, else the design pressure) and the other conditions;
+    its load is replaced.  Returns one solved point for each ``k`` = 1 ... N
+    (the first ``k`` valves wide open at the held pressure, the rest closed;
+    with an ``overlap`` the sequence passes near, not through, these states),
+    in order of load.
+
+    Raises
+    ------
+    InputError
+        The model has no governing stage.
+    """
+    from ..errors import InputError
+
+    if steam is None or isinstance(steam, str):
+        steam = get_backend(steam or "seuif97")
+    gov = model.governing_stage
+    if gov is None:
+        raise InputError("the model has no [governing_stage]: its valves open together, so "
+                         "it has no valve points", file=model.file)
+    p_T = cond.throttle_pressure if cond.throttle_pressure is not None else \
+        model.throttle.pressure
+    out = []
+    for k in range(1, len(gov.valves) + 1):
+        c = override(cond, valve_mode="nozzle_groups", pressure_mode="fixed",
+                     throttle_pressure=p_T, output=None, throttle_flow=model.throttle.flow,
+                     valves_open=k, minimum_throttle_pressure=None)
+        eq = equations_for(model, c, steam, mode="wide_open")
+        nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names)
+        _, st = eq.evaluate(nr.x, detail=True)
+        _check_physical(model, c, steam, eq, st)
+        r = build_result(model, override(c, throttle_flow=st["m_T"]), steam, eq, nr, st)
+        r.flow_ratio = st["m_T"] / model.throttle.flow
+        out.append(r)
+    return out
 
 
 def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
