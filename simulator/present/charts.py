@@ -147,6 +147,8 @@ def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, y
                 order = np.argsort(x, kind="stable")
                 ax.plot(x[order], y[order], linestyle=ls, marker=marker, markersize=4, color=c,
                         label=name)
+            if not profile:
+                _mark_valve_points(ax, st, idx, x, y)
             cz = st.cautions
             if cz is not None:
                 ring = cz[idx] > 0
@@ -163,6 +165,32 @@ def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, y
     fig.subplots_adjust(left=0.11, right=0.97, top=0.92, bottom=0.15)
     _note(fig, studies)
     return fig
+
+
+def _mark_valve_points(ax, st: StudyData, idx: np.ndarray, x: np.ndarray,
+                       y: np.ndarray) -> None:
+    """Mark the valve points of a nozzle-governed unit on a curve: where a control
+    valve reaches its full opening between two points of the curve (interpolated
+    linearly in its opening), a black diamond labelled with the valve."""
+    key = "governing_valves/opening"
+    if key not in st.data or len(idx) < 2:
+        return
+    opening = np.asarray(st.data[key])[idx]
+    names = st.names.get("governing_valves")
+    load = np.asarray(st.data["totals/throttle_flow"])[idx]
+    order = np.argsort(load, kind="stable")
+    opening, x, y = opening[order], x[order], y[order]
+    for k in range(opening.shape[1]):
+        o = opening[:, k]
+        for i in range(len(o) - 1):
+            if o[i] < 1.0 - 1e-9 and o[i + 1] >= 1.0 - 1e-9 and o[i + 1] > o[i]:
+                t = (1.0 - o[i]) / (o[i + 1] - o[i])
+                xv, yv = x[i] + t * (x[i + 1] - x[i]), y[i] + t * (y[i + 1] - y[i])
+                ax.plot([xv], [yv], linestyle="none", marker="D", markersize=6,
+                        markerfacecolor="none", markeredgecolor="k", markeredgewidth=1.0)
+                label = names[k] if names is not None and k < len(names) else f"valve {k + 1}"
+                ax.annotate(label, (xv, yv), textcoords="offset points", xytext=(4, 6),
+                            fontsize=7)
 
 
 def plot_willans(studies: Sequence[StudyData]) -> Figure:
