@@ -67,14 +67,17 @@ def study_points(case):
     return [(i, plan.conditions[i]) for i in range(0, n, step)]
 
 
-def solve_all():
-    """``{key: flattened point or error text}`` for every recorded point."""
+def solve_all(stems=None):
+    """``{key: flattened point or error text}`` for every point of every case file
+    (only of the case files named ``stems``, when given)."""
     from partload.errors import SolveError
     from partload.plant.case import load_case
     from partload.solve.point import solve_point
 
     out = {}
     for path in sorted(CASES.glob("*.toml")):
+        if stems is not None and path.stem not in stems:
+            continue
         case = load_case(path)
         points = [("point", case.conditions)]
         points += [(f"study/{i}", c) for i, c in study_points(case)]

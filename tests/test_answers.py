@@ -1,5 +1,6 @@
 """Every model, case and study file gives the answers recorded before the component
-protocol restructuring (regression values written by ``tests/answers.py``)."""
+protocol restructuring (regression values written by ``tests/answers.py``).  Case
+files added since are not in the record; every recorded one must still be there."""
 
 from __future__ import annotations
 
@@ -9,11 +10,12 @@ import pytest
 from answers import RECORD, solve_all
 
 RECORDED = json.loads(RECORD.read_text())
+RECORDED_CASES = {key.split("/")[0] for key in RECORDED}
 
 
 @pytest.fixture(scope="module")
 def answers():
-    return solve_all()
+    return solve_all(RECORDED_CASES)
 
 
 def test_the_same_points_are_solved(answers):

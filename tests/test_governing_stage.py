@@ -269,8 +269,9 @@ def test_cautions_of_nozzle_governing(model):
 def test_valve_points(model):
     from partload.plant.case import design_conditions
     from partload.solve.point import valve_points
-    points = valve_points(model, design_conditions(model))
-    assert len(points) == 4
+    found = valve_points(model, design_conditions(model))
+    assert [k for k, _ in found] == [1, 2, 3, 4]
+    points = [p for _, p in found]
     flows = [p.totals["throttle_flow"] for p in points]
     assert flows == sorted(flows)
     # the design heat balance is the third valve point (identity with the calibration)
@@ -279,3 +280,16 @@ def test_valve_points(model):
         opening = p.tables["governing_valves"].columns["opening"]
         assert list(opening) == [1.0] * k + [0.0] * (4 - k)
         assert p.totals["throttle_pressure"] == pytest.approx(model.throttle.pressure)
+
+
+def test_valve_point_not_reached_says_why():
+    # the invented industrial unit holds 25 kg/s of process steam: its first valve alone
+    # cannot pass that and the other bleeds, so that valve point is not reached
+    from partload.errors import SolveError
+    from partload.plant.case import design_conditions
+    from partload.solve.point import valve_points
+    m = load_model(MODELS / "demo_industrial_nozzle_unit.toml")
+    found = dict(valve_points(m, design_conditions(m)))
+    assert isinstance(found[1], SolveError)
+    assert "1 of the control valves wide open" in str(found[1])
+    assert found[4].totals["throttle_flow"] == pytest.approx(m.throttle.flow, rel=1e-9)

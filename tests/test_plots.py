@@ -170,3 +170,22 @@ def test_demo_command_writes_file_and_charts(tmp_path, monkeypatch, capsys):
     # run again: the complete result is kept and the charts redrawn
     assert main(["demo", "--output", str(out), "-q"]) == 0
     assert "nothing to do" in capsys.readouterr().out
+
+
+def test_valve_points_marked(tmp_path):
+    # the nozzle-governed demo at its held design pressure: valves CV1, CV2 and CV3 reach
+    # full opening between 30 % and 105 % flow (CV4 only at 109 %, see partload valve-points)
+    from partload.present.charts import plot_heat_rate, plot_willans
+    case = tmp_path / "loop.toml"
+    nozzle = ROOT / "models" / "demo_reheat_nozzle_unit.toml"
+    case.write_text(f"model = {json.dumps(str(nozzle))}\n[operation]\npressure_mode = "
+                    f"'fixed'\n[sweep]\nthrottle_flow_fraction = {{from = 0.3, to = 1.05, "
+                    f"points = 16}}\n", encoding="utf-8")
+    out = tmp_path / "loop.h5"
+    assert main(["study", str(case), "--workers", "1", "--output", str(out), "-q"]) == 0
+    st = read_study(out)
+    for plot in (plot_heat_rate, plot_willans):
+        ax = plot([st]).axes[0]
+        marks = [ln for ln in ax.lines if ln.get_marker() == "D"]
+        assert len(marks) == 3
+        assert [t.get_text() for t in ax.texts] == ["CV1", "CV2", "CV3"]

@@ -120,7 +120,7 @@ class GoverningStage(SteamPathComponent):
                "valves", label="throttling"),
         Column("admitted_arc", "-", "admitted share of the nozzle arc", display="%",
                label="arc"),
-        Column("valves_wide_open", "-", "number of control valves wide open", "u1",
+        Column("valves_wide_open", "-", "number of control valves wide open", "i4",
                label="wide open"),
         Column("capacity_used", "-", "throttle flow over what every valve wide open would "
                "pass at the held throttle pressure (NaN: sliding pressure)", display="%",

@@ -120,10 +120,16 @@ def _table(title: str, headers: list[str], rows: list[list], units: list[str]) -
 
 def valve_point_rows(model, results) -> list[dict]:
     """One dict a valve point (SI): valves wide open, throttle flow and its share
-    of design, output, heat rate, first-stage pressure, throttle pressure."""
+    of design, output, heat rate, first-stage pressure, throttle pressure; or
+    why the unit cannot run there (``"not_reached"``).  ``results`` as
+    :func:`simulator.solve.point.valve_points` returns them."""
     gov = model.governing_stage
     rows = []
-    for k, r in enumerate(results, start=1):
+    for k, r in results:
+        if not hasattr(r, "totals"):
+            rows.append({"valves_wide_open": k, "valves": list(gov.valves[:k]),
+                         "not_reached": str(r)})
+            continue
         t = r.totals
         rows.append({"valves_wide_open": k, "valves": list(gov.valves[:k]),
                      "throttle_flow": t["throttle_flow"],
@@ -138,6 +144,8 @@ def valve_point_rows(model, results) -> list[dict]:
 def format_valve_points(model, results, case_name: str = "") -> str:
     """The valve points of a nozzle-governed unit as a table."""
     rows = valve_point_rows(model, results)
+    missing = [r for r in rows if "not_reached" in r]
+    rows = [r for r in rows if "not_reached" not in r]
     p_T = rows[0]["throttle_pressure"] if rows else math.nan
     head = (f"partload: {model.name}" + (f" / case {case_name}" if case_name else "")
             + f"\nvalve points at a held throttle pressure of {p_T / 1e5:.2f} bar: the first "
@@ -150,7 +158,9 @@ def format_valve_points(model, results, case_name: str = "") -> str:
         [[r["valves_wide_open"], r["valves"][-1], r["throttle_flow"],
           100 * r["throttle_flow_fraction"], r["generator_output"] / 1e6, r["heat_rate"] * 3600,
           r["first_stage_pressure"] / 1e5] for r in rows],
-        ["", "", "kg/s", "%", "MW", "kJ/kWh", "bar"])
+        ["", "", "kg/s", "%", "MW", "kJ/kWh", "bar"]) + "".join(
+        f"\n{r['valves_wide_open']} wide open ({r['valves'][-1]}): not reached: "
+        f"{r['not_reached']}" for r in missing)
 
 
 def format_point(r: PointResult, case_name: str = "", cautions=()) -> str:

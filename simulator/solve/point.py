@@ -45,17 +45,19 @@ def wide_open_capacity(model: Model, cond: Conditions, steam: SteamTables,
 
 
 def valve_points(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
-                 ) -> list[PointResult]:
+                 ) -> list[tuple[int, PointResult | SolveError]]:
     """The valve points of a nozzle-governed unit at a held throttle pressure.
 
     A valve point is the load at which the first ``k`` control valves are wide
     open and the others closed: no valve throttles, so the heat rate has a
     local minimum there.  ``cond`` gives the throttle pressure held (its
     ``throttle_pressure``, else the design pressure) and the other conditions;
-    its load is replaced.  Returns one solved point for each ``k`` = 1 ... N
-    (the first ``k`` valves wide open at the held pressure, the rest closed;
-    with an ``overlap`` the sequence passes near, not through, these states),
-    in order of load.
+    its load is replaced.  Returns ``(k, point)`` for each ``k`` = 1 ... N,
+    in order of load: the solved point with the first ``k`` valves wide open
+    at the held pressure and the rest closed (with an ``overlap`` the sequence
+    passes near, not through, these states), or the :class:`SolveError` that
+    says why the unit cannot run there (such as process steam held at more
+    than the first valves pass).
 
     Raises
     ------
@@ -72,18 +74,24 @@ def valve_points(model: Model, cond: Conditions, steam: SteamTables | str | None
                          "it has no valve points", file=model.file)
     p_T = cond.throttle_pressure if cond.throttle_pressure is not None else \
         model.throttle.pressure
-    out = []
+    out: list[tuple[int, PointResult | SolveError]] = []
     for k in range(1, len(gov.valves) + 1):
         c = override(cond, valve_mode="nozzle_groups", pressure_mode="fixed",
                      throttle_pressure=p_T, output=None, throttle_flow=model.throttle.flow,
                      valves_open=k, minimum_throttle_pressure=None)
         eq = equations_for(model, c, steam, mode="wide_open")
-        nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names)
-        _, st = eq.evaluate(nr.x, detail=True)
-        _check_physical(model, c, steam, eq, st)
+        try:
+            nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names)
+            _, st = eq.evaluate(nr.x, detail=True)
+            _check_physical(model, c, steam, eq, st)
+        except SolveError as exc:
+            what = f"with {k} of the control valves wide open at {p_T / 1e5:.2f} bar"
+            out.append((k, _with_request(exc, c, eq) if not isinstance(exc, TrialPointError)
+                        else InfeasibleError(f"{what} the unit cannot run: {exc}")))
+            continue
         r = build_result(model, override(c, throttle_flow=st["m_T"]), steam, eq, nr, st)
         r.flow_ratio = st["m_T"] / model.throttle.flow
-        out.append(r)
+        out.append((k, r))
     return out
 
 
