@@ -1,0 +1,162 @@
+"""Reliability of the inputs: mistakes that used to pass silently, or were blamed
+on the wrong key, are refused naming file, table and key; the Dask scheduler
+address is checked before anything is created, and a scheduler that cannot be
+reached or is lost gives one line and exit code 3.
+
+Broken files are built from the demo files by text substitution in ``tmp_path``
+(as in ``tests/test_inputs.py``).  Expected words come from the messages'
+own wording; the physical reasons they state are hand reasoning noted at each
+test.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from partload.cli.main import main
+from partload.errors import InputError
+from partload.plant.model import load_model
+
+ROOT = Path(__file__).resolve().parent.parent
+REHEAT = ROOT / "models/demo_reheat_unit.toml"
+INDUSTRIAL = ROOT / "models/demo_industrial_unit.toml"
+TRAIN = ('train = ["condensate pump", "LP1", "LP2", "LP3", "LP4", "deaerator", "feed pump", '
+         '"HP6", "HP7", "HP8"]')
+
+
+def broken(path: Path, subs: list[tuple[str, str]]) -> str:
+    """The text of ``path`` with substitutions; each old text must occur (first one replaced)."""
+    text = path.read_text(encoding="utf-8")
+    for old, new in subs:
+        assert old in text, f"fixture text not found: {old!r}"
+        text = text.replace(old, new, 1)
+    return text
+
+
+def problems_of(exc: InputError) -> list[InputError]:
+    return list(getattr(exc, "problems", [exc]))
+
+
+def run_cli(args: list[str], capsys) -> tuple[int, str, str]:
+    code = main([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def refused_model(tmp_path, capsys, subs, table, key, words, model=REHEAT):
+    """The model with ``subs`` is refused by ``partload check`` (exit 2, no traceback) and
+    by :func:`load_model` with a problem at exactly ``table`` and ``key``."""
+    path = tmp_path / "broken_model.toml"
+    path.write_text(broken(model, subs), encoding="utf-8")
+    code, out, err = run_cli(["check", path], capsys)
+    assert code == 2, err
+    assert "Traceback" not in err and out == ""
+    for w in words:
+        assert w in err, err
+    with pytest.raises(InputError) as info:
+        load_model(path)
+    assert any(p.table == table and p.key == key for p in problems_of(info.value)), \
+        [(p.table, p.key) for p in problems_of(info.value)]
+    return err
+
+
+# --- item: list keys name a repeated entry -------------------------------------------
+
+def test_an_exhaust_node_listed_twice_is_refused(tmp_path, capsys):
+    # before: accepted, condenser duty and exhaust flow counted twice (771 MW for 386 MW)
+    twice = 'nodes = ["condenser", "condenser"]'
+    refused_model(tmp_path, capsys, [('nodes = ["condenser"]', twice)], "exhaust", "nodes",
+                  ["[exhaust] nodes", "'condenser' is listed twice", "positions 1 and 2"])
+
+
+def test_a_pump_listed_twice_in_the_train_is_refused(tmp_path, capsys):
+    refused_model(tmp_path, capsys, [(TRAIN, TRAIN.replace('"HP8"]', '"HP8", "feed pump"]'))],
+                  "feedwater", "train", ["[feedwater] train", "'feed pump' is listed twice",
+                                         "positions 7 and 11"])
+
+
+def test_a_heater_listed_twice_is_named_not_blamed_on_its_ttd(tmp_path, capsys):
+    err = refused_model(tmp_path, capsys, [(TRAIN, TRAIN.replace('"HP8"]', '"HP8", "HP7"]'))],
+                        "feedwater", "train", ["'HP7' is listed twice", "positions 9 and 11"])
+    assert "ttd" not in err.lower() and "closure" not in err
+
+
+def test_pumps_placed_last_name_the_train_and_why(tmp_path, capsys):
+    # hand reasoning: condensate leaves the condenser saturated at 6.8 kPa; heated in LP1
+    # before any pump it would boil, so the train needs a pump ahead of its first heater;
+    # the same holds after the deaerator for HP6
+    last = ('train = ["LP1", "LP2", "LP3", "LP4", "deaerator", "HP6", "HP7", "HP8", '
+            '"condensate pump", "feed pump"]')
+    err = refused_model(tmp_path, capsys, [(TRAIN, last)], "feedwater", "train",
+                        ["[feedwater] train", "heater 'LP1' (position 1)",
+                         "saturated", "no pump between", "heater 'HP6' (position 6)"])
+    assert "IAPWS" not in err and "IF97" not in err
+
+
+def test_a_feed_pump_before_the_deaerator_is_refused(tmp_path, capsys):
+    # the deaerator leaves the water saturated at its ~10 bar: the boiler cannot be fed
+    order = ('train = ["condensate pump", "LP1", "LP2", "LP3", "LP4", "feed pump", '
+             '"HP6", "HP7", "HP8", "deaerator"]')
+    refused_model(tmp_path, capsys, [(TRAIN, order)], "feedwater", "train",
+                  ["no feed pump (discharge = 'boiler') follows deaerator 'deaerator'"])
+
+
+def test_the_demo_trains_are_accepted():
+    # the order rules refuse no train of the demo units (regression of the rules)
+    assert load_model(REHEAT).feedwater.order[0] == "condensate pump"
+    assert load_model(INDUSTRIAL).feedwater.order[-1] == "HP heater"
+
+
+# --- item: TOML duplicate keys name the key and show the line --------------------------
+
+LIMITS_TWICE = '\n[limits]\nmax_back_pressure = "250 %"\nmax_back_pressure = "300 %"\n'
+
+
+@pytest.mark.parametrize("subs, extra, table, key, words, shown", [
+    # a key written twice in one table
+    ([('efficiency = 0.84', 'efficiency = 0.84\nefficiency = 0.85')], "", "stage_group",
+     "efficiency", ["[stage_group] efficiency: given twice"], "efficiency = 0.85"),
+    # the same on the last line of the file (the TOML reader says only "end of document")
+    ([], LIMITS_TWICE, "limits", "max_back_pressure",
+     ["[limits] max_back_pressure: given twice"], 'max_back_pressure = "300 %"'),
+    # a table declared twice
+    ([('[generator]', '[about]\nname = "again"\n\n[generator]')], "", "about", None,
+     ["the table [about] is given twice"], "[about]"),
+    # a key repeated inside an inline table
+    ([('nodes = ["condenser"]', 'nodes = ["condenser"]\nx = {a = 1, a = 2}')], "", "exhaust",
+     "x", ["the key 'a' is given twice in one inline table"], "x = {a = 1, a = 2}"),
+])
+def test_toml_duplicates_name_the_key_and_show_the_line(tmp_path, capsys, subs, extra, table,
+                                                        key, words, shown):
+    # before: "not valid TOML: Cannot overwrite a value (at line 58, column 18)" alone
+    text = broken(REHEAT, subs) + extra
+    path = tmp_path / "dup.toml"
+    path.write_text(text, encoding="utf-8")
+    code, out, err = run_cli(["check", path], capsys)
+    assert code == 2 and out == "" and "Traceback" not in err
+    for w in words:
+        assert w in err, err
+    # the repeated statement is the last line showing that text
+    n = max(i for i, line in enumerate(text.splitlines(), 1) if line.strip() == shown)
+    assert f"(line {n}: {shown})" in err, err
+    with pytest.raises(InputError) as info:
+        load_model(path)
+    assert (info.value.table, info.value.key) == (table, key)
+
+
+def test_other_toml_mistakes_show_their_line(tmp_path, capsys):
+    path = tmp_path / "bad.toml"
+    path.write_text(broken(REHEAT, [('efficiency = 0.84', 'efficiency = 0.84 0.85')]),
+                    encoding="utf-8")
+    code, _, err = run_cli(["check", path], capsys)
+    assert code == 2 and "not valid TOML" in err and "efficiency = 0.84 0.85" in err
+
+
+# --- item: partload point checks [sweep] and [profile] -------------------------------
+
+def write_case(tmp_path: Path, body: str, model: Path = REHEAT, name="case.toml") -> Path:
+    path = tmp_path / name
+    path.write_text(f"model = {json.dumps(str(model))}\n" + body, encoding="utf-8")
+    return path
