@@ -160,3 +160,33 @@ def write_case(tmp_path: Path, body: str, model: Path = REHEAT, name="case.toml"
     path = tmp_path / name
     path.write_text(f"model = {json.dumps(str(model))}\n" + body, encoding="utf-8")
     return path
+
+
+@pytest.mark.parametrize("body, table, key, words", [
+    # a misspelt axis
+    ('[sweep]\nthrottle_flow_fracton = [0.5, 0.8]\n', "sweep", "throttle_flow_fracton",
+     ["not an input that can be varied", "did you mean 'throttle_flow_fraction'?"]),
+    # a value of the wrong dimension
+    ('[sweep]\nexhaust_pressure = ["5 kPa", "40 degC"]\n', "sweep", "exhaust_pressure",
+     ["temperature"]),
+    # the load varied twice
+    ('[sweep]\nthrottle_flow_fraction = [0.5, 0.8]\noutput_fraction = [0.5]\n', "sweep",
+     "output_fraction", ["the load is set once"]),
+    # a profile file that does not exist
+    ('[profile]\nfile = "no_such_profile.csv"\n', "profile", "file",
+     ["profile file 'no_such_profile.csv' not found"]),
+])
+def test_point_refuses_a_broken_sweep_or_profile(tmp_path, capsys, body, table, key, words):
+    # before: 'partload point' solved the base point and exited 0
+    path = write_case(tmp_path, '[operation]\nthrottle_flow_fraction = 0.7\n' + body)
+    code, out, err = run_cli(["point", path], capsys)
+    assert code == 2 and out == "" and "Traceback" not in err, err
+    assert f"[{table}] {key}:" in err, err
+    for w in words:
+        assert w in err, err
+
+
+def test_point_solves_the_base_point_of_a_sound_study(capsys):
+    code, out, err = run_cli(["point", ROOT / "cases/reheat_load_sweep.toml"], capsys)
+    assert code == 0 and "generator output" in out
+    assert "also defines a study" in err

@@ -59,6 +59,9 @@ def _cmd_point(args) -> int:
     for note in case.notes:
         print(f"partload: note: {note}", file=sys.stderr)
     if "sweep" in case.data or "profile" in case.data:
+        from ..study.plan import check_study_tables
+
+        check_study_tables(case)  # a broken study is refused, though not run here
         print(f"partload: note: {args.case} also defines a study ([sweep] or [profile]); "
               f"'point' solves its base point only, 'partload study' runs the study",
               file=sys.stderr)
