@@ -190,3 +190,120 @@ def test_point_solves_the_base_point_of_a_sound_study(capsys):
     code, out, err = run_cli(["point", ROOT / "cases/reheat_load_sweep.toml"], capsys)
     assert code == 0 and "generator output" in out
     assert "also defines a study" in err
+
+
+# --- items: the Dask scheduler address, an unreachable and a lost scheduler ------------
+
+SWEEP_CASE = ROOT / "cases/reheat_load_sweep.toml"
+
+
+@pytest.mark.parametrize("address, words", [
+    ("tcp://127.0.0.1", "no port"),
+    ("garbage", "no port"),
+    ("udp://127.0.0.1:8786", "'udp://' is not a protocol of Dask"),
+    ("tcp://127.0.0.1:99999", "not a whole number from 1 to 65535"),
+    ("tcp://:8786", "no host"),
+    ("tcp://bad host:8786", "contains a space"),
+    ("tcp://[::1:8786", "is not closed"),
+])
+def test_a_malformed_scheduler_address_is_refused_before_anything(tmp_path, capsys, address,
+                                                                  words):
+    # before: a ValueError traceback or a 42 s hang, exit 1, and an empty result file
+    out_file = tmp_path / "res" / "study.h5"
+    code, out, err = run_cli(["study", SWEEP_CASE, "--scheduler", address, "--output",
+                              out_file, "--quiet"], capsys)
+    assert code == 2 and "Traceback" not in err, err
+    assert "--scheduler" in err and words in err, err
+    assert not out_file.parent.exists() or not any(out_file.parent.iterdir())
+
+
+@pytest.mark.parametrize("address, words", [
+    ("tcp://127.0.0.1:8786", ("tcp", "127.0.0.1", 8786)),
+    ("127.0.0.1:8786", ("tcp", "127.0.0.1", 8786)),
+    ("tls://scheduler.example:1", ("tls", "scheduler.example", 1)),
+    ("tcp://[::1]:8786", ("tcp", "::1", 8786)),
+])
+def test_sound_scheduler_addresses_are_read(address, words):
+    from partload.study.executors import check_scheduler_address
+
+    assert check_scheduler_address(address)[1:] == words
+
+
+def _closed_port() -> int:
+    """A local TCP port nothing listens on (bound, then released)."""
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def test_an_unreachable_scheduler_is_exit_3_at_once_and_leaves_no_file(tmp_path, capsys):
+    # before: reported after the 20 s timeout, exit 2, and an empty result file left behind
+    pytest.importorskip("distributed")
+    out_file = tmp_path / "study.h5"
+    address = f"tcp://127.0.0.1:{_closed_port()}"
+    code, out, err = run_cli(["study", SWEEP_CASE, "--scheduler", address, "--output",
+                              out_file, "--quiet"], capsys)
+    assert code == 3, err
+    assert err.count("\n") == 1 and err.startswith("partload: cluster: cannot reach"), err
+    assert "connection was refused" in err
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.fixture
+def scheduler_process():
+    """A Dask scheduler and one worker in processes of their own: ``(address, scheduler
+    process)``; both are ended after the test."""
+    import subprocess
+    import sys
+
+    distributed = pytest.importorskip("distributed")
+    port = _closed_port()
+    address = f"tcp://127.0.0.1:{port}"
+    quiet = {"stdout": subprocess.DEVNULL, "stderr": subprocess.DEVNULL}
+    sched = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_scheduler", "--host",
+                              "127.0.0.1", "--port", str(port), "--dashboard-address", ":0",
+                              "--no-show"], **quiet)
+    worker = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_worker", address,
+                               "--nthreads", "1", "--nworkers", "1", "--no-dashboard",
+                               "--no-nanny"], **quiet)
+    try:
+        with distributed.Client(address, timeout=60) as client:
+            client.wait_for_workers(1, timeout=120)
+        yield address, sched
+    finally:
+        for p in (worker, sched):
+            if p.poll() is None:
+                p.kill()
+            p.wait()
+
+
+def test_a_scheduler_lost_mid_study_is_one_line_and_exit_3(tmp_path, capsys, monkeypatch,
+                                                           scheduler_process):
+    # before: screens of the distributed library's traceback and exit 1 (a point failure)
+    import h5py
+    import partload.study.progress as progress
+
+    address, sched = scheduler_process
+    chunks = []
+    add = progress.StudySummary.add
+
+    def add_then_kill(self, res, labels):  # the hook: the scheduler dies after chunk one
+        add(self, res, labels)
+        chunks.append(res.stop - res.start)
+        if sched.poll() is None:
+            sched.kill()
+            sched.wait()
+
+    monkeypatch.setattr(progress.StudySummary, "add", add_then_kill)
+    out_file = tmp_path / "study.h5"
+    code, out, err = run_cli(["study", SWEEP_CASE, "--scheduler", address, "--output",
+                              out_file, "--quiet"], capsys)
+    assert code == 3, err
+    assert err.count("\n") == 1 and "Traceback" not in err, err
+    assert err.startswith(f"partload: cluster: lost the Dask scheduler at {address}")
+    assert "--resume" in err
+    # the chunk finished before the loss is in the file, and only it
+    with h5py.File(out_file, "r") as f:
+        assert int(f["points/done"][:].sum()) == sum(chunks) > 0

@@ -2,8 +2,9 @@
 
 Exit codes: 0 success; 1 a point that cannot be solved (convergence, a limit of
 the machine, a property range); 2 a mistake in the input (file, table and key
-named) or in the command line; 3 a result file that is damaged or in the way, or a
-file or folder the command cannot read or write.
+named) or in the command line; 3 a result file that is damaged or in the way, a
+file or folder the command cannot read or write, or a Dask scheduler that cannot
+be reached or was lost.
 ``--debug`` shows the traceback of any error.
 """
 
@@ -15,7 +16,7 @@ import os
 import sys
 import traceback
 
-from ..errors import InputError, PartloadError, ResultFileError, SolveError
+from ..errors import ClusterError, InputError, PartloadError, ResultFileError, SolveError
 from ..version import __version__
 
 __all__ = ["main"]
@@ -131,6 +132,11 @@ def main(argv: list[str] | None = None) -> int:
         if args.debug:
             traceback.print_exc()
         print(f"partload: result file: {exc}", file=sys.stderr)
+        return 3
+    except ClusterError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"partload: cluster: {exc}", file=sys.stderr)
         return 3
     except PartloadError as exc:  # pragma: no cover - every error has a class above
         if args.debug:
