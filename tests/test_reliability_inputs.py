@@ -12,11 +12,13 @@ test.
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pytest
 from partload.cli.main import main
 from partload.errors import InputError
+from partload.plant.case import load_case
 from partload.plant.model import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -307,3 +309,85 @@ def test_a_scheduler_lost_mid_study_is_one_line_and_exit_3(tmp_path, capsys, mon
     # the chunk finished before the loss is in the file, and only it
     with h5py.File(out_file, "r") as f:
         assert int(f["points/done"][:].sum()) == sum(chunks) > 0
+
+
+# --- item: the right cause named ----------------------------------------------------
+
+@pytest.mark.parametrize("operation", ['throttle_flow = "840 kg/s"', 'output = "900 MW"'])
+def test_far_beyond_valves_wide_open_names_that_limit(tmp_path, capsys, operation):
+    # before: "the condensate pump cannot feed the deaerator" (a consequence); the
+    # maximum of the demo unit, 296.42 kg/s and 340.58 MW at its 175 bar, is the
+    # regression value printed for requests just beyond it
+    path = write_case(tmp_path, f"[operation]\n{operation}\n")
+    code, out, err = run_cli(["point", path], capsys)
+    assert code == 1 and out == "", err
+    assert "above the highest allowed 175.00 bar" in err, err
+    assert "maximum throttle flow 296.42 kg/s, maximum output 340.58 MW" in err
+    assert "deaerator" not in err
+
+
+def test_an_exhaust_pressure_above_the_lp_heaters_names_the_exhaust_pressure(tmp_path, capsys):
+    # 5 bar is above the design crossover (LP inlet) pressure, 4.6 bar. Hand reasoning:
+    # condensate saturated at 5 bar is about 152 degC (steam tables: T_sat(5 bar) =
+    # 151.8 degC); LP1's shell, bled at a node pushed up to about 4.9 bar, gives less,
+    # so LP1 would cool the water and its bleed would be negative
+    path = write_case(tmp_path, '[operation]\nexhaust_pressure = "5 bar"\n')
+    code, _, err = run_cli(["point", path], capsys)
+    assert code == 1, err
+    assert "heater 'LP1' would cool the water" in err, err
+    assert "exhaust pressure 5 bar (design 0.068 bar)" in err
+    # T_sat(5 bar) = 151.83 degC (IAPWS-IF97 saturation table, from memory); the
+    # condensate pump's compression adds a few tenths of a kelvin at most
+    t_in = float(re.search(r"it arrives at ([0-9.]+) degC", err).group(1))
+    assert 151.83 <= t_in <= 152.5, err
+    assert "would need a negative bleed" not in err
+
+
+@pytest.mark.parametrize("where, body, key_text, words", [
+    # before: an IF97 range message in Pa (p = 2.2064e+07), exit 1
+    ("operation", '[operation]\nexhaust_pressure = "200 bar"\n', "[operation] exhaust_pressure:",
+     ["'200 bar' is not below the highest allowed throttle pressure", "175 bar"]),
+    ("operation", '[operation]\nexhaust_pressure = "2900 psia"\n',
+     "[operation] exhaust_pressure:", ["2538 psia"]),
+    # held throttle pressure 120 bar: an exhaust at 130 bar is above it
+    ("operation", '[operation]\npressure_mode = "fixed"\nthrottle_pressure = "120 bar"\n'
+                  'throttle_flow = "150 kg/s"\nexhaust_pressure = "130 bar"\n',
+     "[operation] exhaust_pressure:", ["the held throttle pressure, 120 bar"]),
+    # a sweep value is checked the same way
+    ("sweep", '[sweep]\nexhaust_pressure = ["7 kPa", "200 bar"]\n', "[sweep] exhaust_pressure:",
+     ["'200 bar' is not below the highest allowed throttle pressure"]),
+])
+def test_an_exhaust_pressure_above_the_throttle_is_an_input_mistake(tmp_path, capsys, where,
+                                                                   body, key_text, words):
+    path = write_case(tmp_path, body)
+    code, out, err = run_cli(["point", path], capsys)
+    assert code == 2 and out == "", err
+    assert key_text in err and "IF97" not in err and "e+07" not in err, err
+    for w in words:
+        assert w in err, err
+
+
+def test_a_control_valve_setting_above_its_inlet_names_the_setting(tmp_path, capsys):
+    # before: "no steam reaches node 'process'"; steam reaches 'process' from 'hp_x'
+    # (design 30 bar) through stage group HP2, so the valve cannot hold 35 bar there
+    path = write_case(tmp_path, '[control_valves."LP control valve"]\npressure = "35 bar"\n',
+                      model=INDUSTRIAL)
+    code, out, err = run_cli(["point", path], capsys)
+    assert code == 2 and out == "", err
+    assert "[control_valves.LP control valve] pressure:" in err, err
+    assert "'35 bar' is not below the design pressure of node 'hp_x', 30 bar" in err
+    assert "stage group 'HP2'" in err and "no steam reaches" not in err
+    with pytest.raises(InputError) as info:
+        load_case(path)
+    assert (info.value.table, info.value.key) == ("control_valves.LP control valve", "pressure")
+
+
+def test_a_usual_control_valve_setting_still_solves(tmp_path, capsys):
+    # a setting near design (13.01 bar) is accepted and held (regression of the check)
+    path = write_case(tmp_path, '[control_valves."LP control valve"]\npressure = "14 bar"\n',
+                      model=INDUSTRIAL)
+    code, out, err = run_cli(["point", path, "--json"], capsys)
+    assert code == 0, err
+    d = json.loads(out)
+    cv = d["control_valves"][0]
+    assert cv["wide_open"] == 0

@@ -89,6 +89,7 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
         _check_physical(model, cond, steam, eq, st)
         if check_limits:
             _check_feasible(model, cond, steam, eq, st)
+        _check_water_side(eq, st)  # after the valves: beyond them, that is the cause
     except SolveError as exc:
         raise _with_request(exc, cond, eq) from None
     result = build_result(model, cond, steam, eq, nr, st)
@@ -237,7 +238,8 @@ def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> Solv
 
 def _check_physical(model, cond, steam, eq, st):
     """Refuse answers no machine can give, whatever the limit checks: water at the
-    throttle, pressures rising through a stage group, negative bleeds."""
+    throttle, pressures rising through a stage group (the water side and negative
+    bleeds: :func:`_check_water_side`)."""
     p = st["p"]
     names = eq.names
     p_T = p[eq.src]
@@ -256,6 +258,10 @@ def _check_physical(model, cond, steam, eq, st):
                     f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
                     f"{names[j]!r}) above its inlet ({p[i] / 1e5:.4g} bar); "
                     f"the exhaust pressure may be too high for this flow")
+
+
+def _check_water_side(eq, st):
+    """Refuse water-side states no plant can have and negative bleeds."""
     fw = st.get("feedwater")
     if fw is not None and fw.get("problems"):
         raise InfeasibleError(fw["problems"][0][1])
