@@ -391,3 +391,13 @@ def test_a_usual_control_valve_setting_still_solves(tmp_path, capsys):
     d = json.loads(out)
     cv = d["control_valves"][0]
     assert cv["wide_open"] == 0
+
+
+def test_a_setting_just_below_the_limit_that_cannot_be_met_is_named(tmp_path, capsys):
+    # 29 bar passes the input check (below hp_x's 30 bar) but leaves no steam state at
+    # full flow; the failure names the case's setting next to the solver's finding
+    path = write_case(tmp_path, '[control_valves."LP control valve"]\npressure = "29 bar"\n',
+                      model=INDUSTRIAL)
+    code, _, err = run_cli(["point", path], capsys)
+    assert code == 1, err
+    assert "control valve 'LP control valve' holds 'process' at 29 bar, set by the case" in err

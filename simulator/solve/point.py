@@ -228,9 +228,13 @@ def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> Solv
     asked = _asked(cond, eq)
     text = str(exc)
     if isinstance(exc, TrialPointError):
+        held = "".join(f"; control valve {name!r} holds {eq.model.component(name).inlet!r} at "
+                       f"{p / 1e5:.4g} bar, set by the case (design "
+                       f"{eq.model.design_pressure[eq.model.component(name).inlet] / 1e5:.4g} "
+                       f"bar)" for name, p in cond.held_pressures)
         return InfeasibleError(f"{asked} cannot be met: {text} (fixed extraction flows may "
                                f"take more steam than arrives, or the conditions leave no "
-                               f"steam state)")
+                               f"steam state){held}")
     if not text.startswith((asked, "an output of", "a throttle flow of")):
         exc.args = (f"{asked}: {text}",)
     return exc
