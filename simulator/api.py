@@ -460,12 +460,23 @@ def run_study(case_path: str | Path, output: str | Path | None = None, *,
 
     Raises
     ------
-    InputError, ResultFileError
-        As the command: a mistake in the case, or a result file in the way.
+    InputError, ResultFileError, ClusterError
+        As the command: a mistake in the case (or a malformed scheduler address),
+        a result file in the way, a scheduler that does not answer (no file is
+        created) or is lost during the study.
     """
-    run = run_study_file(case_path, output=output, workers=workers, scheduler=scheduler,
-                         resume=resume, force=force, backend=backend, limit=limit,
-                         beyond_limits=beyond_limits, progress=progress)
+    if scheduler is None:
+        run = run_study_file(case_path, output=output, workers=workers, resume=resume,
+                             force=force, backend=backend, limit=limit,
+                             beyond_limits=beyond_limits, progress=progress)
+        return StudyOutcome(run.path, run.summary)
+    # checked and connected before the result file is created (as the command does)
+    from .study.executors import dask_session
+
+    with dask_session(scheduler) as client:
+        run = run_study_file(case_path, output=output, workers=workers, scheduler=client,
+                             resume=resume, force=force, backend=backend, limit=limit,
+                             beyond_limits=beyond_limits, progress=progress)
     return StudyOutcome(run.path, run.summary)
 
 

@@ -401,3 +401,16 @@ def test_a_setting_just_below_the_limit_that_cannot_be_met_is_named(tmp_path, ca
     code, _, err = run_cli(["point", path], capsys)
     assert code == 1, err
     assert "control valve 'LP control valve' holds 'process' at 29 bar, set by the case" in err
+
+
+def test_the_python_api_checks_the_scheduler_before_creating_the_file(tmp_path):
+    import partload
+    from partload.errors import ClusterError
+
+    with pytest.raises(InputError, match="no port"):
+        partload.run_study(SWEEP_CASE, tmp_path / "a.h5", scheduler="tcp://127.0.0.1")
+    pytest.importorskip("distributed")
+    with pytest.raises(ClusterError, match="connection was refused"):
+        partload.run_study(SWEEP_CASE, tmp_path / "b.h5",
+                           scheduler=f"tcp://127.0.0.1:{_closed_port()}")
+    assert list(tmp_path.iterdir()) == []
