@@ -281,7 +281,7 @@ def scheduler_process():
             p.wait()
 
 
-def test_a_scheduler_lost_mid_study_is_one_line_and_exit_3(tmp_path, capsys, monkeypatch,
+def test_a_scheduler_lost_mid_study_is_one_line_and_exit_3(tmp_path, capfd, monkeypatch,
                                                            scheduler_process):
     # before: screens of the distributed library's traceback and exit 1 (a point failure)
     import h5py
@@ -300,8 +300,9 @@ def test_a_scheduler_lost_mid_study_is_one_line_and_exit_3(tmp_path, capsys, mon
 
     monkeypatch.setattr(progress.StudySummary, "add", add_then_kill)
     out_file = tmp_path / "study.h5"
+    # capfd: the distributed library's log handlers write to the process's stderr itself
     code, out, err = run_cli(["study", SWEEP_CASE, "--scheduler", address, "--output",
-                              out_file, "--quiet"], capsys)
+                              out_file, "--quiet"], capfd)
     assert code == 3, err
     assert err.count("\n") == 1 and "Traceback" not in err, err
     assert err.startswith(f"partload: cluster: lost the Dask scheduler at {address}")
