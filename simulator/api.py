@@ -22,6 +22,7 @@ the functions that need them, so ``import partload`` stays fast.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import signal
 import threading
@@ -479,12 +480,18 @@ def run_study(case_path: str | Path, output: str | Path | None = None, *,
 
     Raises
     ------
-    InputError, ResultFileError
-        As the command: a mistake in the case, or a result file in the way.
+    InputError, ResultFileError, ClusterError
+        As the command: a mistake in the case (or a malformed scheduler address),
+        a result file in the way, a scheduler that does not answer (no file is
+        created) or is lost during the study.
     """
-    run = run_study_file(case_path, output=output, workers=workers, scheduler=scheduler,
-                         resume=resume, force=force, backend=backend, limit=limit,
-                         beyond_limits=beyond_limits, progress=progress)
+    # a scheduler is checked and connected before the result file is created
+    session = (_study().executors.dask_session(scheduler) if scheduler is not None
+               else contextlib.nullcontext())
+    with session as client:
+        run = run_study_file(case_path, output=output, workers=workers, scheduler=client,
+                             resume=resume, force=force, backend=backend, limit=limit,
+                             beyond_limits=beyond_limits, progress=progress)
     return StudyOutcome(run.path, run.summary)
 
 

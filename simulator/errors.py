@@ -15,7 +15,8 @@ which limit was hit and where.
     │   ├── ConvergenceError  Newton did not converge (iterations, residual, worst)
     │   ├── InfeasibleError   the request is beyond a limit of the machine
     │   └── PropertyRangeError  a state outside IAPWS-IF97 validity
-    └── ResultFileError       a result file that is not ours, damaged or in the way
+    ├── ResultFileError       a result file that is not ours, damaged or in the way
+    └── ClusterError          a Dask scheduler that cannot be reached, or was lost
 """
 
 from __future__ import annotations
@@ -29,6 +30,7 @@ __all__ = [
     "InfeasibleError",
     "PropertyRangeError",
     "ResultFileError",
+    "ClusterError",
 ]
 
 
@@ -113,3 +115,8 @@ class PropertyRangeError(SolveError):
 
 class ResultFileError(PartloadError):
     """A result file that is damaged, written by another program, or in the way."""
+
+
+class ClusterError(PartloadError):
+    """A Dask scheduler that cannot be reached, or that was lost during a study
+    (the finished points are kept; the study continues with ``--resume``)."""

@@ -4,8 +4,8 @@ Exit codes: 0 success; 1 a point that cannot be solved (convergence, a limit of
 the machine, a property range); 2 a mistake in the input (file, table and key
 named) or in the command line, a study too large included; 3 a result file that
 is damaged, read-only on resume or in the way, a disk without the space a study
-needs, or a file or folder the command cannot read or write (the README's table
-lists each failure).
+needs, a file or folder the command cannot read or write, or a Dask scheduler
+that cannot be reached or was lost (the README's table lists each failure).
 ``--debug`` shows the traceback of any error.
 """
 
@@ -17,7 +17,7 @@ import os
 import sys
 import traceback
 
-from ..errors import InputError, PartloadError, ResultFileError, SolveError
+from ..errors import ClusterError, InputError, PartloadError, ResultFileError, SolveError
 from ..version import __version__
 
 __all__ = ["main"]
@@ -61,6 +61,9 @@ def _cmd_point(args) -> int:
     for note in case.notes:
         print(f"partload: note: {note}", file=sys.stderr)
     if "sweep" in case.data or "profile" in case.data:
+        from ..study.plan import check_study_tables
+
+        check_study_tables(case)  # a broken study is refused, though not run here
         print(f"partload: note: {args.case} also defines a study ([sweep] or [profile]); "
               f"'point' solves its base point only, 'partload study' runs the study",
               file=sys.stderr)
@@ -161,6 +164,11 @@ def main(argv: list[str] | None = None) -> int:
         if args.debug:
             traceback.print_exc()
         _say(f"partload: result file: {exc}")
+        return 3
+    except ClusterError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"partload: cluster: {exc}", file=sys.stderr)
         return 3
     except PartloadError as exc:  # pragma: no cover - every error has a class above
         if args.debug:

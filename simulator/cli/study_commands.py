@@ -3,16 +3,18 @@
 Added to ``partload`` by :func:`add_commands`.  Exit codes are those of
 :mod:`simulator.cli`: 0 the study ran to its end (points that could not be
 solved are recorded in the file and counted in the summary, not errors of the
-command); 2 a mistake in the case, sweep, profile or command line; 3 a result
-file that is damaged, read-only on resume, another program's, or in the way, or
-too little disk space for a new one; 130 interrupted
-(Ctrl-C or SIGTERM; the file holds every finished point, continue with
-``--resume``).
+command); 2 a mistake in the case, sweep, profile or command line (a malformed
+``--scheduler`` address among them); 3 a result file that is damaged, read-only on
+resume, another program's, or in the way, too little disk space for a new one, or
+a Dask scheduler that cannot be reached or was lost during the study; 130
+interrupted (Ctrl-C or SIGTERM; the file holds every finished point, continue
+with ``--resume``).
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import sys
 from pathlib import Path
 
@@ -97,10 +99,18 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
         elif run.action == "replace":
             print(f"  replacing the earlier result {path} (--force)", file=out)
 
-    run = run_study_file(case_path, output=output, workers=workers, scheduler=scheduler,
-                         resume=resume, force=force, backend=backend, limit=limit,
-                         beyond_limits=beyond_limits, auto_resume=auto_resume,
-                         progress=not quiet, on_start=heading)
+    # a scheduler is checked and connected before the result file is created, so that a
+    # wrong address or a cluster that does not answer leaves no file behind
+    session = contextlib.nullcontext(None)
+    if scheduler is not None:
+        from ..study.executors import dask_session
+
+        session = dask_session(scheduler)
+    with session as client:
+        run = run_study_file(case_path, output=output, workers=workers, scheduler=client,
+                             resume=resume, force=force, backend=backend, limit=limit,
+                             beyond_limits=beyond_limits, auto_resume=auto_resume,
+                             progress=not quiet, on_start=heading)
     summary, plan, path, done_now = run.summary, run.plan, run.path, run.n_done
     _print_summary(summary, plan, path, done_now, out)
     if summary.interrupted:
@@ -191,9 +201,10 @@ def add_commands(sub) -> None:
                     "result is never overwritten without --force.",
         epilog="Exit status: 0 the study ran to its end (failed points are recorded, not "
                "errors); 2 a mistake in the case, sweep or profile (more than 1,000,000 points "
-               "included); 3 a result file in the way, damaged, read-only or another program's, "
-               "a changed model on --resume, or too little disk space for the file (sizes "
-               "named); 130 interrupted "
+               "included), or a malformed --scheduler; 3 a result file in the way, damaged, "
+               "read-only or another program's, a changed model on --resume, too little disk "
+               "space for the file (sizes named), or a Dask scheduler that cannot be reached or "
+               "was lost; 130 interrupted "
                "(Ctrl-C or SIGTERM: every finished point is kept; continue with --resume).")
     c.add_argument("case", help="case file (TOML) with a [sweep] or [profile] table")
     c.add_argument("--workers", type=_workers, default=None,

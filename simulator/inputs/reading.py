@@ -9,13 +9,14 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 import tomllib
 from pathlib import Path
 
 from ..errors import InputError
 from ..units import Where, format_like, parse
 
-__all__ = ["load_toml", "Problems", "ProblemList", "TableReader", "closest"]
+__all__ = ["load_toml", "toml_error", "Problems", "ProblemList", "TableReader", "closest"]
 
 
 def closest(name: str, known) -> str:
@@ -38,7 +39,81 @@ def load_toml(path: str | Path) -> tuple[dict, str]:
     try:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"not valid TOML: {exc}", file=str(path)) from None
+        raise toml_error(text, exc, str(path)) from None
+
+
+_DUPLICATE = ("Cannot overwrite a value", "Cannot declare", "Duplicate inline table key",
+              "Cannot mutate immutable namespace")
+_AT_LINE = re.compile(r"\(at line (\d+), column \d+\)")
+_HEADER = re.compile(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?\s*(#.*)?$")
+_KEY = re.compile(r"^\s*((?:[A-Za-z0-9_-]+|\"[^\"]*\"|'[^']*')"
+                  r"(?:\s*\.\s*(?:[A-Za-z0-9_-]+|\"[^\"]*\"|'[^']*'))*)\s*=")
+
+
+def _unquote(dotted: str) -> str:
+    """A TOML key as written (``a."b c"``) in plain dotted form (``a.b c``)."""
+    parts = re.findall(r'"([^"]*)"|\'([^\']*)\'|([A-Za-z0-9_-]+)', dotted)
+    return ".".join(next(p for p in part if p) if any(part) else "" for part in parts)
+
+
+def _first_duplicate(lines: list[str]) -> tuple[int, int] | None:
+    """``(first, last)`` line numbers (from 1) of the statement that repeats a key or a
+    table: the shortest head of the file that fails with a repetition ends with it,
+    and the longest head before it that reads cleanly ends just above it."""
+    ok = 0
+    for n in range(1, len(lines) + 1):
+        try:
+            tomllib.loads("\n".join(lines[:n]))
+            ok = n
+        except tomllib.TOMLDecodeError as exc:
+            if str(exc).startswith(_DUPLICATE):
+                first = ok + 1
+                while first < n and (not lines[first - 1].strip()
+                                     or lines[first - 1].lstrip().startswith("#")):
+                    first += 1
+                return first, n
+    return None
+
+
+def toml_error(text: str, exc: tomllib.TOMLDecodeError, file: str) -> InputError:
+    """The :class:`InputError` of a file that is not valid TOML.
+
+    The message shows the text of the line concerned; a key or table given
+    twice is named, with the table it is in (``table`` and ``key`` of the
+    error), since the TOML reader itself reports only a position.
+    """
+    lines = text.splitlines()
+    reason = _AT_LINE.sub("", str(exc)).replace("(at end of document)", "").strip()
+    span = _first_duplicate(lines) if str(exc).startswith(_DUPLICATE) else None
+    if span is None:
+        m = _AT_LINE.search(str(exc))
+        n = int(m.group(1)) if m else None
+        shown = (f" (line {n}: {lines[n - 1].strip()})" if n is not None and 0 < n <= len(lines)
+                 and lines[n - 1].strip() else "")
+        return InputError(f"not valid TOML: {reason}{shown}", file=file)
+    first, last = span
+    line = lines[first - 1].strip()
+    where = f"line {first}" if first == last else f"lines {first}-{last}"
+    table = None
+    for above in reversed(lines[:first - 1]):
+        h = _HEADER.match(above)
+        if h:
+            table = _unquote(h.group(1))
+            break
+    h = _HEADER.match(lines[first - 1])
+    inline = re.match(r"Duplicate inline table key '(.*)'", reason)
+    if h:
+        name = _unquote(h.group(1))
+        return InputError(f"the table [{name}] is given twice, or names a key that already "
+                          f"holds a value ({where}: {line}); TOML allows each table and key "
+                          f"once", file=file, table=name)
+    k = _KEY.match(lines[first - 1])
+    key = _unquote(k.group(1)) if k else None
+    if inline:
+        return InputError(f"the key {inline.group(1)!r} is given twice in one inline table "
+                          f"({where}: {line})", file=file, table=table, key=key)
+    return InputError(f"given twice in this table ({where}: {line}); TOML allows each key "
+                      f"once per table", file=file, table=table, key=key)
 
 
 class Problems:
@@ -217,6 +292,32 @@ class TableReader:
             self.problems.add(self.where.child(key).error(f"expected true or false, got {value!r}"))
             return None
         return value
+
+    def name_list(self, key: str, default=_MISSING, *, what: str = "item") -> list | None:
+        """A list of names (text), each given once; one name alone is a list of one.
+
+        A name given twice is reported with its positions (a list key such as
+        ``[exhaust] nodes`` or ``[feedwater] train`` counts each entry, so a
+        repeated one would count twice).  ``what`` says what one name is
+        (``"exhaust node"``), for the messages.  Returns ``None`` when the value
+        is wrong (the problem is recorded), ``default`` when absent.
+        """
+        value = self.raw(key, default)
+        if value is None or value is default:
+            return value
+        w = self.where.child(key)
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, list) or not all(isinstance(v, str) and v for v in value):
+            self.problems.add(w.error(f"expected a list of {what} names, got {value!r}"))
+            return None
+        for j, name in enumerate(value):
+            if name in value[:j]:
+                self.problems.add(w.error(
+                    f"{name!r} is listed twice (positions {value.index(name) + 1} and {j + 1}): "
+                    f"list each {what} once, as a repeated entry would count twice"))
+                return None
+        return list(value)
 
     def table_list(self, key: str) -> list:
         value = self.raw(key, [])

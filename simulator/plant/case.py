@@ -20,6 +20,7 @@ from pathlib import Path
 from ..components import KINDS
 from ..errors import InputError
 from ..inputs.reading import Problems, TableReader, closest, load_toml
+from ..plant.limits import check_set_pressures
 from ..plant.model import Model, load_model
 from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, get_backend
 from ..units import Where
@@ -254,6 +255,9 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
         if model.heaters[hname].heater_type == "deaerator":
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))
+    check_set_pressures(model, data, file, problems, exhaust_pressure=p_x,
+                        pressure_mode=pressure_mode, throttle_pressure=p_T,
+                        held_pressures=target.held_pressures)
     problems.raise_if_any()
     return Conditions(m_T, out, valve_mode=valve_mode, pressure_mode=pressure_mode,
                       throttle_pressure=p_T, throttle_temperature=T_T, reheat_temperature=T_rh,

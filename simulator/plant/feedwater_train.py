@@ -45,17 +45,56 @@ def read_feedwater(top, reader, problems, heaters: dict, pumps: dict,
         problems.add(Where(fw.where.file, "feedwater").error(
             "missing required table: heaters and pumps need the feedwater train order"))
     cond = fw.string("condenser")
-    order = fw.raw("train", [])
-    if not isinstance(order, list) or not all(isinstance(o, str) for o in order):
-        problems.add(fw.where.child("train").error("expected a list of heater and pump "
-                                                   "names in water-flow order"))
-        order = []
+    order = fw.name_list("train", [], what="heater or pump") or []
     bdp = fw.quantity("boiler_pressure_drop", "pressure_difference", default=0.0)
     fw.finish()
+    known = True
     for j, item in enumerate(order):
         if item not in heaters and item not in pumps:
+            known = False
             problems.add(fw.where.child("train").error(
                 f"{item!r} (position {j + 1}) is neither a heater nor a pump"))
+    if known:
+        for message in train_order_problems(order, heaters, pumps):
+            problems.add(fw.where.child("train").error(message))
     if not cond:
         return None
     return FeedwaterTrain(cond, list(order), BoilerPressureDrop(bdp or 0.0, design_flow or 1.0))
+
+
+def train_order_problems(order: list[str], heaters: dict, pumps: dict) -> list[str]:
+    """Why a water-flow order no plant can have is wrong, one message a mistake.
+
+    Water leaves the condenser, and a deaerator, as saturated liquid at that
+    vessel's pressure: heated without first being pumped it would boil, and it
+    reaches neither a deaerator at a higher pressure nor the boiler.  So a pump
+    must come before the first heater, and after every deaerator a pump must come
+    before the next closed heater; the feed pump (``discharge = "boiler"``) comes
+    after every deaerator.  ``heaters`` and ``pumps`` map names to components
+    (``heater_type``, ``discharge``).
+    """
+    out = []
+    after = "the condenser"  # the last vessel that left the water saturated
+    pumped = False
+    last_da = None
+    for j, item in enumerate(order):
+        if item in pumps:
+            pumped = True
+            if pumps[item].discharge == "boiler":
+                last_da = None
+            continue
+        if not pumped:
+            out.append(
+                f"heater {item!r} (position {j + 1}) comes after {after} with no pump "
+                f"between: the water leaves {after} saturated at its pressure and would boil "
+                f"when heated, or could not enter a vessel at a higher pressure; list a pump "
+                f"before it (the train runs from the condenser to the boiler)")
+            pumped = True  # one message for each unpumped stretch
+        if heaters[item].heater_type == "deaerator":
+            after, pumped, last_da = f"deaerator {item!r}", False, item
+    if last_da is not None:
+        out.append(
+            f"no feed pump (discharge = 'boiler') follows deaerator {last_da!r}: the "
+            f"feedwater leaves it saturated at its own pressure and cannot reach the boiler; "
+            f"list the feed pump after it")
+    return out

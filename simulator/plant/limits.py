@@ -68,12 +68,12 @@ from __future__ import annotations
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 
-from ..inputs.reading import TableReader
-from ..steam.if97 import T_MAX, T_MIN
-from ..units import Where, parse
+from ..inputs.reading import Problems, TableReader
+from ..steam.if97 import P_CRIT, T_MAX, T_MIN
+from ..units import Where, format_like, parse
 
 __all__ = ["LimitSpec", "LIMITS", "Limits", "read_limits", "default_limits",
-           "DEFAULT_SOURCE"]
+           "DEFAULT_SOURCE", "check_set_pressures"]
 
 DEFAULT_SOURCE = "common practice, no source"
 
@@ -208,3 +208,69 @@ def read_limits(reader: TableReader) -> Limits:
             values[name] = v
     reader.finish()
     return Limits(values, frozenset(values))
+
+
+def check_set_pressures(model, data: dict, file: str, problems: Problems, *,
+                        exhaust_pressure: float | None, pressure_mode: str,
+                        throttle_pressure: float | None, held_pressures) -> None:
+    """Refuse pressures a case sets where no steam can get, before solving.
+
+    Not operating limits (those only caution) but bounds of the machine's
+    shape, each named by its case key and in the unit the case wrote:
+
+    * the exhaust pressure must be below the throttle pressure (held, or the
+      highest allowed ``[throttle] max_pressure`` with sliding pressure), and,
+      when the exhaust feeds the heater train, below the critical pressure of
+      water (above it the exhaust steam cannot condense: no IAPWS-IF97
+      saturation state exists);
+    * a control valve holds its inlet node below the design pressure of every
+      node from which steam reaches that inlet: a higher setting leaves the
+      component feeding it no pressure drop (a probable mistake).
+
+    Parameters
+    ----------
+    model : the case's :class:`~simulator.plant.model.Model`
+    data : the case file's tables (for the values as written)
+    file : the case file, for messages
+    problems : where problems are recorded
+    exhaust_pressure : the case's exhaust pressure, ``None`` for design [Pa]
+    pressure_mode : ``"sliding"`` or ``"fixed"``
+    throttle_pressure : the held throttle pressure, ``None`` for design [Pa]
+    held_pressures : ``(control valve name, held pressure [Pa])`` pairs
+    """
+    op = data.get("operation", {}) if isinstance(data.get("operation"), dict) else {}
+    if exhaust_pressure is not None:
+        text = op.get("exhaust_pressure", exhaust_pressure)
+        w = Where(file, "operation", "exhaust_pressure")
+        if pressure_mode == "fixed":
+            ceiling = throttle_pressure or model.throttle.pressure
+            what = "the held throttle pressure"
+        else:
+            ceiling = model.throttle.max_pressure
+            what = "the highest allowed throttle pressure ([throttle] max_pressure)"
+        if exhaust_pressure >= ceiling:
+            problems.add(w.error(
+                f"{text!r} is not below {what}, {format_like(ceiling, 'pressure', text)}: "
+                f"steam cannot flow from the throttle to the exhaust"))
+        elif model.feedwater is not None and exhaust_pressure >= P_CRIT:
+            problems.add(w.error(
+                f"{text!r} is not below the critical pressure of water, "
+                f"{format_like(P_CRIT, 'pressure', text)}: the exhaust steam could not "
+                f"condense for the feedwater train"))
+    valves = data.get("control_valves", {}) if isinstance(data.get("control_valves"),
+                                                          dict) else {}
+    for name, held in held_pressures:
+        valve = next(c for c in model.control_valves if c.name == name)
+        text = (valves.get(name) or {}).get("pressure", held)
+        for up in model.graph.predecessors(valve.inlet):
+            p_up = model.design_pressure[up]
+            if held >= p_up:
+                comp = model.graph.edges[up, valve.inlet]["component"]
+                design = format_like(model.design_pressure[valve.inlet], "pressure", text)
+                problems.add(Where(file, f"control_valves.{name}", "pressure").error(
+                    f"{text!r} is not below the design pressure of node {up!r}, "
+                    f"{format_like(p_up, 'pressure', text)}, from which {comp.title} "
+                    f"{comp.name!r} feeds the valve's inlet {valve.inlet!r}: the valve "
+                    f"cannot hold its inlet above the steam arriving there (its design "
+                    f"setting is {design})"))
+                break

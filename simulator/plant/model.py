@@ -267,12 +267,7 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     if "exhaust" not in data:
         problems.add(Where(file, "exhaust").error("missing required table naming the "
                                                   "exhaust nodes"))
-    exhaust_nodes = ex.raw("nodes", [])
-    if isinstance(exhaust_nodes, str):
-        exhaust_nodes = [exhaust_nodes]
-    if not isinstance(exhaust_nodes, list) or not all(isinstance(n, str) for n in exhaust_nodes):
-        problems.add(ex.where.child("nodes").error("expected a list of node names"))
-        exhaust_nodes = []
+    exhaust_nodes = ex.name_list("nodes", [], what="exhaust node") or []
     curves: dict[str, tuple] = {}
     curves_data = ex.raw("loss_curves", {})
     if not isinstance(curves_data, dict):

@@ -302,17 +302,43 @@ class FeedwaterMarch:
                     hs.T_out = hs.T_drain = hs.T_sat
                 states[name] = hs
             summary["heaters"] = states
-            summary["problems"] = self._problems(steam, steps, p_sh, p_win, T_out)
+            summary["problems"] = self._problems(steam, steps, p_sh, p_win, T_in, T_out,
+                                                 h_in, h_out, p_c)
         return residuals, summary
 
-    def _problems(self, steam, steps, p_sh, p_win, T_out) -> list[tuple[str, str]]:
-        """Water-side states no plant can have: ``(item name, message)`` pairs."""
+    def _problems(self, steam, steps, p_sh, p_win, T_in, T_out, h_in, h_out,
+                  p_c) -> list[tuple[str, str]]:
+        """Water-side states no plant can have: ``(item name, message)`` pairs.
+
+        ``p_c`` is the condenser pressure [Pa]; the other arguments are the march's
+        per-heater states (SI units)."""
         out = []
         last_pump = None
+        first = True  # no heater yet: the water is the condensate
         for kind, _obj, k, name in steps:
             if kind == 0:
                 last_pump = name
                 continue
+            if kind == 3:
+                first = False
+                continue
+            cools = (T_out[k] < T_in[k]) if kind == 1 else (h_in[k] > h_out[k])
+            if cools and not (kind == 2 and p_win[k] < p_sh[k]):
+                gives = (f"the {T_out[k] - 273.15:.2f} degC its shell gives at "
+                         f"{p_sh[k] / 1e5:.4g} bar (saturation less the TTD)" if kind == 1
+                         else f"saturation at its {p_sh[k] / 1e5:.4g} bar")
+                arrives = (f"{T_in[k] - 273.15:.2f} degC" if kind == 1
+                           else f"{h_in[k] / 1e3:.1f} kJ/kg, against {h_out[k] / 1e3:.1f}")
+                why = ""
+                p_design = self.model.design_pressure[self.condenser]
+                if first and p_c > p_design * (1.0 + 1e-9):
+                    why = (f"; the water is condensate saturated at the exhaust pressure "
+                           f"{p_c / 1e5:.4g} bar (design {p_design / 1e5:.4g} bar): the exhaust "
+                           f"pressure is too high for this heater train")
+                out.append((name, f"heater {name!r} would cool the water, not heat it: it "
+                                  f"arrives at {arrives}, above {gives}, so its bleed would be "
+                                  f"negative{why}"))
+            first = False
             if kind == 2 and p_win[k] < p_sh[k]:
                 out.append((last_pump or name,
                             f"water reaches deaerator {name!r} at {p_win[k] / 1e5:.4g} bar, below "

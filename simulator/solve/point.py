@@ -142,6 +142,7 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
         _check_physical(model, cond, steam, eq, st)
         if check_limits:
             _check_feasible(model, cond, steam, eq, st)
+        _check_water_side(eq, st)  # after the valves: beyond them, that is the cause
     except SolveError as exc:
         raise _with_request(exc, cond, eq) from None
     result = build_result(model, cond, steam, eq, nr, st)
@@ -317,9 +318,13 @@ def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> Solv
     asked = _asked(cond, eq)
     text = str(exc)
     if isinstance(exc, TrialPointError):
+        held = "".join(f"; control valve {name!r} holds {eq.model.component(name).inlet!r} at "
+                       f"{p / 1e5:.4g} bar, set by the case (design "
+                       f"{eq.model.design_pressure[eq.model.component(name).inlet] / 1e5:.4g} "
+                       f"bar)" for name, p in cond.held_pressures)
         return InfeasibleError(f"{asked} cannot be met: {text} (fixed extraction flows may "
                                f"take more steam than arrives, or the conditions leave no "
-                               f"steam state)")
+                               f"steam state){held}")
     if not text.startswith((asked, "an output of", "a throttle flow of")):
         exc.args = (f"{asked}: {text}",)
     return exc
@@ -327,7 +332,8 @@ def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> Solv
 
 def _check_physical(model, cond, steam, eq, st):
     """Refuse answers no machine can give, whatever the limit checks: water at the
-    throttle, pressures rising through a stage group, negative bleeds."""
+    throttle, pressures rising through a stage group (the water side and negative
+    bleeds: :func:`_check_water_side`)."""
     p = st["p"]
     names = eq.names
     p_T = p[eq.src]
@@ -346,6 +352,10 @@ def _check_physical(model, cond, steam, eq, st):
                     f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
                     f"{names[j]!r}) above its inlet ({p[i] / 1e5:.4g} bar); "
                     f"the exhaust pressure may be too high for this flow")
+
+
+def _check_water_side(eq, st):
+    """Refuse water-side states no plant can have and negative bleeds."""
     fw = st.get("feedwater")
     if fw is not None and fw.get("problems"):
         raise InfeasibleError(fw["problems"][0][1])

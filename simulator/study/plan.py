@@ -27,6 +27,7 @@ __all__ = [
     "InputColumn",
     "StudyPlan",
     "check_size",
+    "check_study_tables",
     "chunk_size",
     "plan_study",
 ]
@@ -233,6 +234,26 @@ def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
         raise where.child(dup[0]).error(
             "varied twice: in [sweep] and in the profile, or written two ways "
             "(extraction_flow.NAME and extractions.NAME.flow are one input)")
+
+
+def check_study_tables(case: Case) -> int:
+    """Read and check the case's ``[sweep]`` and ``[profile]`` tables as
+    :func:`plan_study` does (every value, the profile file, the axes together,
+    the number of points) without planning the points; returns that number.
+    ``partload point`` refuses a broken study this way although it runs none.
+
+    Raises
+    ------
+    InputError
+        As :func:`plan_study`.
+    """
+    sweep = read_sweep(case) if "sweep" in case.data else []
+    profile = read_profile(case) if "profile" in case.data else None
+    _check_axes(case, sweep + (profile.axes if profile else []),
+                Where(case.file, "sweep" if "sweep" in case.data else "profile"))
+    lengths = [len(a.values) for a in sweep] + ([len(profile.labels)] if profile else [])
+    keys = [a.key for a in sweep] + (["profile rows"] if profile else [])
+    return check_size(lengths, keys, case.file, "sweep" if sweep else "profile")
 
 
 def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, InputColumn]:
