@@ -75,6 +75,7 @@ DIMENSIONS = {
     "mass_flow": ("kg/s", "280 kg/s"),
     "power": ("W", "350 MW"),
     "area": ("m^2", "8.5 m^2"),
+    "length": ("m", "25.4 mm"),
     "specific_enthalpy": ("J/kg", "25 kJ/kg"),
     "velocity": ("m/s", "250 m/s"),
     "fraction": ("", "3 %"),

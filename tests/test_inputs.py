@@ -84,7 +84,7 @@ MODEL_CASES = [
     ("energy-for-power", REHEAT, [('rating = "350 MW"', 'rating = "350 MWh"')],
      "generator", "rating", "'MWh' is not a unit of power"),
     ("length-for-area", REHEAT, [('annulus_area = "8.0 m^2"', 'annulus_area = "8.0 m"')],
-     "stage_group 'LPA3'", "annulus_area", "not a unit of area"),
+     "stage_group 'LPA3'", "annulus_area", "which is a length"),
     ("bare-number", REHEAT, [('condenser = "6.8 kPa"', "condenser = 6.8")],
      "nodes", "condenser", "needs a unit"),
     ("limits-wrong-dimension", REHEAT, [("", "[limits]\nmax_exhaust_temperature = '80 bar'\n\n")],

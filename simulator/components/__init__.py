@@ -4,6 +4,7 @@ columns (the protocol of :mod:`simulator.components.base`), and the registry
 that maps a table name to its kind."""
 
 from .base import Column, Component, ReadContext, Setting, SteamPathComponent, Tunable
+from .condenser import Condenser, CondenserState
 from .control_valve import ControlValve
 from .extraction import EXTRACTION_CONTROLS, Extraction
 from .generator import Generator
@@ -19,7 +20,7 @@ from .throttle_valve import ThrottleValve
 __all__ = [
     "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable",
     "KINDS", "register", "unregister", "kind_of_results",
-    "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "Generator", "GoverningStage", "Heater",
-    "HEATER_TYPES",
+    "Condenser", "CondenserState", "ControlValve", "Extraction", "EXTRACTION_CONTROLS",
+    "Generator", "GoverningStage", "Heater", "HEATER_TYPES",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

@@ -158,6 +158,12 @@ class Component:
     # valves of a governing stage): its name, columns, row names and rows
     part_results: ClassVar[str | None] = None
     part_columns: ClassVar[tuple[Column, ...]] = ()
+    # a kind at a node whose pressure it sets by its own law (a condenser at an
+    # exhaust node): the pressure becomes an unknown and the law its residual
+    frees_node: ClassVar[bool] = False
+    # such a kind provides node_state(duty, march, upstream) -> record and
+    # residual(p, record, steam) -> float; its record reaches point_row as
+    # point.records[name]
 
     name: str
 
@@ -192,6 +198,11 @@ class Component:
     def read(cls, reader, ctx: ReadContext):
         """One component from its table, or ``None`` when a required key is bad."""
         raise NotImplementedError
+
+    @classmethod
+    def check_kind(cls, comps: list, ctx: ReadContext, exhaust_nodes: list[str]) -> None:
+        """Checks of all components of this kind together (names, order, nodes);
+        problems go to ``ctx.problems``."""
 
     def check_design(self, ctx: ReadContext) -> None:
         """Checks of the read component against the design state of the file

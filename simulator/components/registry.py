@@ -8,6 +8,7 @@ which steam-path components leave a node.  Adding a kind is one line here
 from __future__ import annotations
 
 from .base import Component
+from .condenser import Condenser
 from .control_valve import ControlValve
 from .extraction import Extraction
 from .generator import Generator
@@ -24,7 +25,7 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
     for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
-                Generator, Heater, Pump)
+                Generator, Heater, Pump, Condenser)
 }
 
 

@@ -8,7 +8,7 @@ from collections import defaultdict
 
 from ..errors import InputError, PartloadError
 from ..physics.heater import design_ua
-from .water_side import design_feedwater_states
+from .water_side import design_feedwater_states, design_heat_rejected
 
 __all__ = ["calibrate", "calibrate_heaters", "check_design_annulus"]
 
@@ -77,6 +77,22 @@ def calibrate(model, steam) -> None:
             raise InputError(f"the design feedwater heat balance cannot be evaluated: {exc}",
                              file=file, table="feedwater") from None
     check_design_annulus(model, steam)
+    calibrate_condensers(model, steam)
+
+
+def calibrate_condensers(model, steam) -> None:
+    """Fix each kind at an exhaust node (a condenser) from the heat it rejects at design."""
+    at_nodes = [c for c in model.components if c.frees_node]
+    if not at_nodes:
+        return
+    heat = design_heat_rejected(model, steam)
+    for c in at_nodes:
+        try:
+            c.calibrate_design(heat[c.node], model.design_pressure[c.node], steam)
+        except InputError as exc:
+            if exc.file is None:
+                exc.file = model.file
+            raise
 
 
 def check_design_annulus(model, steam) -> None:

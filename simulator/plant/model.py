@@ -306,6 +306,8 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
                           "the throttle temperature")
     for c in components:
         c.check_design(ctx)
+    for kind in KINDS.values():
+        kind.check_kind([c for c in components if type(c) is kind], ctx, list(exhaust_nodes))
 
     limits = read_limits(reader(top.raw("limits", {}), "limits"))
     top.finish(also_valid=PLANT_TABLES + tuple(KINDS))

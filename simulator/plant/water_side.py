@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import networkx as nx
 
 from ..errors import InputError
+from ..physics import performance as perf
 from ..physics.feedwater import mixed_enthalpy, pumped_drain_enthalpy
 from ..physics.heater import (
     deaerator_outlet_enthalpy,
@@ -30,7 +31,8 @@ from ..physics.heater import (
 )
 from ..steam.constants import P_CRIT
 
-__all__ = ["FeedwaterMarch", "HeaterState", "design_feedwater_states"]
+__all__ = ["FeedwaterMarch", "HeaterState", "design_feedwater_states", "heat_rejected",
+           "design_heat_rejected"]
 
 
 @dataclass
@@ -371,3 +373,51 @@ def design_feedwater_states(model, steam) -> dict[str, dict]:
                      "m_water": hs.m_water, "T_in": hs.T_in, "T_out": hs.T_out,
                      "T_sat": hs.T_sat}
     return out
+
+
+def heat_rejected(node: int, exhaust: list[int], M, h, p, steam, summary,
+                  fw_node: int | None) -> float:
+    """Heat [W] rejected at exhaust node index ``node``: its steam condensed to
+    saturated liquid; at the feedwater train's condenser (``fw_node``, with the
+    water-side ``summary`` of :meth:`FeedwaterMarch.evaluate`) also the heater
+    drains and make-up that enter it and the other shells' condensate, less the
+    condensate that leaves (the same balance as the point's condenser duty,
+    :func:`simulator.physics.performance.condenser_duty`, shared out by shell).
+
+    ``M``, ``h``, ``p`` are the flow into [kg/s], enthalpy [J/kg] and pressure
+    [Pa] of every node by index; ``exhaust`` the exhaust node indices.
+    """
+    if summary is None or node != fw_node:
+        return M[node] * (h[node] - steam.h_liq_sat(p[node]))
+    m_ex = 0.0
+    energy = 0.0
+    for e in exhaust:
+        m_ex += M[e]
+        energy += M[e] * (h[e] if e == node else steam.h_liq_sat(p[e]))
+    m_dc = summary["drains_to_condenser"]
+    makeup = perf.makeup_flow(summary["m_condensate"], m_ex, m_dc)
+    return perf.condenser_duty(energy, m_dc, summary["h_drains_to_condenser"], makeup,
+                               summary["m_condensate"], summary["h_condensate"])
+
+
+def design_heat_rejected(model, steam) -> dict[str, float]:
+    """Heat [W] rejected at each exhaust node in the design heat balance (after the
+    heaters are calibrated), by :func:`heat_rejected`."""
+    names = list(model.order)
+    idx = {n: i for i, n in enumerate(names)}
+    M = [0.0] * len(names)
+    for c in model.steam_path:
+        M[idx[c.outlet]] += model.design_group_flow[c.name]
+    p = [model.design_pressure[n] for n in names]
+    h = [model.design_enthalpy[n] for n in names]
+    summary = fw_node = None
+    if model.feedwater is not None and model.heaters:
+        march = FeedwaterMarch(model)
+        bleed = [model.extractions[model.heaters[k].extraction].design_flow
+                 for k in march.active]
+        _, summary = march.evaluate(steam, p, h, bleed, model.throttle.flow,
+                                    model.throttle.pressure)
+        fw_node = idx[model.feedwater.condenser]
+    exhaust = [idx[n] for n in model.exhaust_nodes]
+    return {names[e]: heat_rejected(e, exhaust, M, h, p, steam, summary, fw_node)
+            for e in exhaust}

@@ -31,7 +31,7 @@ import numpy as np
 from ..errors import SolveError
 from ..plant.case import Conditions
 from ..plant.model import Model
-from ..plant.water_side import FeedwaterMarch
+from ..plant.water_side import FeedwaterMarch, heat_rejected
 from ..steam.if97 import SteamTables
 
 __all__ = ["PointEquations", "equations_for", "TrialPointError"]
@@ -71,13 +71,19 @@ class PointEquations:
         self.N = N
         self.src = idx[model.source]
         self.exhaust_idx = [idx[n] for n in model.exhaust_nodes]
+        # kinds at a node that set its pressure by their own law (condensers), in model
+        # order; their nodes are unknowns unless the case gives the exhaust pressure
+        self.at_nodes = [(c, idx[c.node]) for c in model.components if c.frees_node]
+        self.freed = ([i for _c, i in self.at_nodes] if cond.exhaust_pressure is None
+                      else [])
         self.throttle_fixed = cond.pressure_mode == "fixed" or mode == "wide_open"
         # the admission (throttle valve or governing stage) takes what the flow leaves
         self.admission_throttles = self.throttle_fixed and mode == "point"
         # control valves that throttle hold their inlet pressure
         self.holding = [(idx[c.inlet], c) for c in model.control_valves
                         if c.name not in self.wide_open]
-        fixed = (set(self.exhaust_idx) | ({self.src} if self.throttle_fixed else set())
+        fixed = ((set(self.exhaust_idx) - set(self.freed))
+                 | ({self.src} if self.throttle_fixed else set())
                  | {i for i, _ in self.holding})
         self.free = [i for i in range(N) if i not in fixed]
         self.p_design = [model.design_pressure[n] for n in names]
@@ -133,8 +139,10 @@ class PointEquations:
         self.node_rows = rows
         self.n_res = len(rows) + self.n_h + (1 if self.demand else 0)
         self.residual_names = []
+        law_at = {i: c for c, i in self.at_nodes if i in self.freed}
         for i in rows:
-            kind = "pressure drop after" if self.passes_net[i] else "mass balance at"
+            kind = ("pressure drop after" if self.passes_net[i] else
+                    f"{law_at[i].title} law at" if i in law_at else "mass balance at")
             self.residual_names.append(f"{kind} node {names[i]!r}")
         self.residual_names += [f"energy balance of heater {h!r}" for h in self.active_heaters]
         if self.demand:
@@ -313,10 +321,15 @@ class PointEquations:
                 F[row_of[i]] = (net - out_flow) / md
         P_gen = self.model.generator.output(shaft)
         k = len(self.node_rows)
+        summary = None
         if self.fw is not None:
-            res, _ = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src])
+            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src])
             F[k:k + self.n_h] = res
             k += self.n_h
+        if self.freed:
+            records = self.node_states(p, h, M, summary)
+            for c, i in self.at_nodes:
+                F[row_of[i]] = c.residual(p[i], records[c.name], steam)
         if self.demand:
             F[k] = (P_gen - self.cond.output) / self.model.generator.rating
         F = np.array(F)
@@ -324,6 +337,17 @@ class PointEquations:
         if not detail:
             return F, None
         return self._detail(*self._last[1:])
+
+    def node_states(self, p, h, M, summary) -> dict:
+        """The state of each kind at a node (a condenser: the heat it rejects, its
+        cooling water), in model order, from the marched ``p``, ``h``, ``M`` and the
+        water side's ``summary``."""
+        fw_node = self.idx[self.model.feedwater.condenser] if self.fw is not None else None
+        out = {}
+        for c, i in self.at_nodes:
+            q = heat_rejected(i, self.exhaust_idx, M, h, p, self.steam, summary, fw_node)
+            out[c.name] = c.node_state(q, self, out)
+        return out
 
     def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps):
         """The full state of a marched point, as a dict (see :func:`build_result`)."""
@@ -338,10 +362,12 @@ class PointEquations:
         if self.fw is not None:
             _, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[self.src],
                                           detail=True)
+        records = self.node_states(p, h, M, summary) if self.at_nodes else {}
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
                  "steps": by_name, "shaft": shaft, "P_gen": P_gen,
                  "admission": by_name[self.model.admission.name][6],
-                 "feedwater": summary, "control_valve_needed": needed}
+                 "feedwater": summary, "control_valve_needed": needed,
+                 "node_records": records}
         return F, state
 
 
@@ -349,6 +375,7 @@ def equations_for(model: Model, cond: Conditions, steam: SteamTables,
                   mode: str = "point", wide_open: frozenset = frozenset()) -> PointEquations:
     """The compiled equations for ``cond``, reused across points of the same structure."""
     key = (cond.valve_mode, cond.pressure_mode, mode, cond.output is not None,
+           cond.exhaust_pressure is None,
            cond.extraction_control, cond.heaters_out, steam.name, frozenset(wide_open))
     key = key + (threading.get_ident(),)  # one compiled copy per thread: it holds state
     cache = model.solver_cache

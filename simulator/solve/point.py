@@ -237,7 +237,8 @@ def _continuation_start(eq: PointEquations, neighbour: PointResult, r: float):
     caller then starts from the design-scaled guess).
     """
     x_n = neighbour.unknowns
-    if len(eq.exhaust_idx) == 1 and neighbour.node_p is not None:
+    if (len(eq.exhaust_idx) == 1 and neighbour.node_p is not None
+            and eq.exhaust_idx[0] not in eq.freed):
         exh = eq.exhaust_idx[0]
         p_ex, p_ex_n = eq.p_fix[exh], neighbour.node_p[exh]
         if p_ex != p_ex_n and math.isfinite(p_ex_n):
@@ -422,7 +423,8 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
     fw = st["feedwater"]
     heater_states = fw["heaters"] if fw is not None else {}
     view = PointView(eq.idx, p, h, {b[0]: (f, ctl) for b, f, ctl in zip(
-        eq.bleeds, st["bleed_flow"], eq.bleed_control)}, heater_states)
+        eq.bleeds, st["bleed_flow"], eq.bleed_control)}, heater_states, steam,
+        st.get("node_records", {}))
     for kind in KINDS.values():
         comps = model.of_kind(kind)
         if not kind.results or not comps:
@@ -457,12 +459,19 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
 class PointView:
     """What a component that is not on the steam path reads of a solved point:
     node pressures [Pa] and enthalpies [J/kg] by node name, each extraction's
-    ``(flow [kg/s], control)`` and each heater's water-side state."""
+    ``(flow [kg/s], control)``, each heater's water-side state and the records
+    of kinds at a node (condensers) by name."""
 
-    def __init__(self, idx, p, h, bleeds, heaters):
+    def __init__(self, idx, p, h, bleeds, heaters, steam=None, records=None):
         self._idx, self._p, self._h = idx, p, h
         self.bleeds = bleeds
         self.heaters = heaters
+        self._steam = steam
+        self.records = records or {}
+
+    def saturation_temperature(self, node: str) -> float:
+        """Saturation temperature [K] at the node's pressure."""
+        return self._steam.T_sat(self._p[self._idx[node]])
 
     def pressure(self, node: str) -> float:
         return self._p[self._idx[node]]
