@@ -148,8 +148,7 @@ def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
 
 def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Conditions:
     """``base`` with the keyword changes of :func:`point` applied (SI values)."""
-    from .plant.case import PRESSURE_MODES, VALVE_MODES, override
-    from .study.axes import unused_with
+    from .plant.case import PRESSURE_MODES, VALVE_MODES, override, without_unused
 
     unknown = sorted(set(changes) - set(_LOADS) - set(_SETTINGS) - {"heaters_out"})
     if unknown:
@@ -185,13 +184,9 @@ def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Co
     if mode == "sliding" and new.get("throttle_pressure") is not None:
         raise InputError("a held throttle pressure needs pressure_mode='fixed'; with sliding "
                          "pressure the throttle pressure is a result", key="throttle_pressure")
-    for key in _MODES:
-        if key in new:  # the case's keys the new mode has no use for
-            for k in unused_with(key, new[key]):
-                new.setdefault(k, None)
     if "heaters_out" in changes:
         new.update(_heaters_out(model, base, changes["heaters_out"]))
-    return override(base, **new)
+    return without_unused(override(base, **new))
 
 
 # SI unit of each keyword of point() that a case file writes with a unit

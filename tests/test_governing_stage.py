@@ -293,3 +293,35 @@ def test_valve_point_not_reached_says_why():
     assert isinstance(found[1], SolveError)
     assert "1 of the control valves wide open" in str(found[1])
     assert found[4].totals["throttle_flow"] == pytest.approx(m.throttle.flow, rel=1e-9)
+
+
+def test_program_without_a_sliding_answer_holds_the_lowest_pressure():
+    # the invented industrial unit holds 25 kg/s of process steam; at 60 % flow sliding has
+    # no answer, and the program's lowest pressure (60 bar) has one
+    from partload.api import point
+    m = load_model(MODELS / "demo_industrial_nozzle_unit.toml")
+    r = point(m, throttle_flow_fraction=0.6, pressure_mode="program",
+              throttle_pressure=92e5, minimum_throttle_pressure=60e5)
+    assert r.program_held
+    assert r.totals["throttle_pressure"] == pytest.approx(60e5)
+
+
+def test_mode_axes_in_any_order(tmp_path):
+    # the values a mode has no use for are dropped once all axes of a point are set,
+    # whatever the order of the axes in [sweep]
+    from partload.plant.case import load_case
+    from partload.study import plan_study
+    plans = []
+    for order in ("pressure_mode = ['fixed', 'sliding']\nvalves_open = [2, 3]\n",
+                  "valves_open = [2, 3]\npressure_mode = ['fixed', 'sliding']\n"):
+        case = tmp_path / "c.toml"
+        case.write_text(f'model = "{NOZZLE}"\n[operation]\npressure_mode = "sliding"\n'
+                        f'[sweep]\nthrottle_flow_fraction = [0.6, 0.9]\n{order}',
+                        encoding="utf-8")
+        plans.append(plan_study(load_case(case)))
+    for plan in plans:
+        for c in plan.conditions:
+            assert (c.valves_open is None) == (c.pressure_mode == "fixed")
+    key = sorted((c.pressure_mode, c.valves_open, c.throttle_flow) for c in plans[0].conditions)
+    assert key == sorted((c.pressure_mode, c.valves_open, c.throttle_flow)
+                         for c in plans[1].conditions)

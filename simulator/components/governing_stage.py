@@ -178,11 +178,18 @@ class GoverningStage(SteamPathComponent):
                 arcs = [parse(a, "fraction", w.child("arcs")) for a in arcs_raw]
             except InputError as exc:
                 rr.problems.add(exc)
-            if arcs is not None and (min(arcs) <= 0.0 or abs(sum(arcs) - 1.0) > 1e-6):
+            if arcs is not None and min(arcs) <= 0.0:
                 rr.problems.add(w.child("arcs").error(
-                    f"each share of the nozzle arc must be positive and together they must "
-                    f"add up to 100 %, not {100 * sum(arcs):.6g} %"))
+                    f"each valve's share of the nozzle arc must be positive, got "
+                    f"{arcs_raw[arcs.index(min(arcs))]!r}"))
                 arcs = None
+            elif arcs is not None and abs(sum(arcs) - 1.0) > 1e-3:
+                rr.problems.add(w.child("arcs").error(
+                    f"the shares of the nozzle arc must add up to 100 %, not "
+                    f"{100 * sum(arcs):.6g} %"))
+                arcs = None
+            elif arcs is not None:
+                arcs = [a / sum(arcs) for a in arcs]  # 3 x 33.33 % is the whole arc
         elif names is not None:
             rr.problems.add(w.child("arcs").error(
                 f"expected a list of {len(names)} shares of the nozzle arc, one for each "
@@ -292,7 +299,8 @@ class GoverningStage(SteamPathComponent):
                 f"the design efficiency {self.eta_design:.3f} with admission loss coefficient "
                 f"{self.loss_coefficient:g} at {100 * open_arc:.3g} % arc needs a peak blading "
                 f"efficiency of {self.eta_peak:.3f}, outside (0, 1)", file=model.file,
-                table=self.where, key="admission_loss")
+                table=self.where,
+                key="admission_loss" if self.loss_coefficient > 0.0 else "efficiency")
         return h_in - self.eta_design * self.dh_design
 
     # ----------------------------------------------------------------- march
@@ -334,6 +342,9 @@ class GoverningStage(SteamPathComponent):
             openings = [1.0] * n_open + [0.0] * (n_all - n_open)
             boxes = [p_box] * n_open + [math.nan] * (n_all - n_open)
             flows = [g * a for a in arcs[:n_open]] + [0.0] * (n_all - n_open)
+        if m <= 0.0:  # a trial point with no flow: nothing expands
+            return h_in, dp, 0.0, GoverningState(openings, boxes, flows, 0.0, 0.0, 0.0, 0.0,
+                                                 capacity)
         power, iso, admitted = self._streams(steam, h_in, p_out, boxes, flows)
         full = m * (h_in - steam.h_ps(p_out, steam.s_ph(p_in, h_in)))
         state = GoverningState(openings, boxes, flows, power, iso, full - iso, admitted,

@@ -26,7 +26,7 @@ from ..steam.if97 import BACKENDS, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN, g
 from ..units import Where
 
 __all__ = ["Conditions", "Case", "load_case", "read_conditions", "override", "apply_setting",
-           "design_conditions",
+           "design_conditions", "without_unused",
            "SettingsTarget",
            "VALVE_MODES", "PRESSURE_MODES", "OPERATION_KEYS"]
 
@@ -195,8 +195,8 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
             pressure_mode = _GOVERNING[old]
             if notes is not None:
                 notes.append(f"{file}: [operation] governing = {old!r} is written "
-                             f"pressure_mode = {pressure_mode!r} now (valve_mode = 'throttle' "
-                             f"is the default)")
+                             f"pressure_mode = {pressure_mode!r} now (with valve_mode = "
+                             f"{valve_mode!r}, the model's own)")
     fixed = pressure_mode in ("fixed", "program")  # a throttle pressure may be held
     if1997 = "the validity range of IAPWS-IF97"
     p_T = op.quantity("throttle_pressure", "pressure", default=None, lo=P_MIN,
@@ -295,6 +295,23 @@ def _check_program(op, problems, model, pressure_mode, valve_mode, p_T, p_min, n
             problems.add(op.where.child("valves_open").error(
                 "at a held throttle pressure the valves open as the flow needs; valves_open "
                 "belongs to pressure_mode = 'sliding' or 'program'"))
+
+
+def without_unused(cond: Conditions) -> Conditions:
+    """``cond`` without the values its modes have no use for: a held throttle
+    pressure and a program's minimum at sliding pressure, a minimum and valves
+    wide open at a held pressure, valves wide open when the valves open
+    together.  A study applies it to each point once all its axes are set, so
+    the order of the axes does not matter."""
+    changes = {}
+    if cond.pressure_mode == "sliding":
+        changes.update(throttle_pressure=None, minimum_throttle_pressure=None)
+    elif cond.pressure_mode == "fixed":
+        changes.update(minimum_throttle_pressure=None, valves_open=None)
+    if cond.valve_mode == "throttle":
+        changes["valves_open"] = None
+    changes = {k: v for k, v in changes.items() if getattr(cond, k) is not None}
+    return dataclasses.replace(cond, **changes) if changes else cond
 
 
 def design_conditions(model: Model) -> Conditions:

@@ -169,22 +169,26 @@ def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, y
 
 def _mark_valve_points(ax, st: StudyData, idx: np.ndarray, x: np.ndarray,
                        y: np.ndarray) -> None:
-    """Mark the valve points of a nozzle-governed unit on a curve: where a control
-    valve reaches its full opening between two points of the curve (interpolated
-    linearly in its opening), a black diamond labelled with the valve."""
+    """Mark the valve points of a nozzle-governed unit on a curve: where the first
+    ``k`` control valves are fully open and the next has not started (the sum of
+    the openings passes ``k``, interpolated linearly between two points of the
+    curve), a black diamond labelled with the ``k``-th valve."""
     key = "governing_valves/opening"
     if key not in st.data or len(idx) < 2:
         return
+    modes = st.inputs.get("valve_mode")
+    if modes is None or any(str(m) != "nozzle_groups" for m in np.asarray(modes)[idx]):
+        return  # valves that open together have no valve points
     opening = np.asarray(st.data[key])[idx]
     names = st.names.get("governing_valves")
     load = np.asarray(st.data["totals/throttle_flow"])[idx]
     order = np.argsort(load, kind="stable")
     opening, x, y = opening[order], x[order], y[order]
+    s = opening.sum(axis=1)
     for k in range(opening.shape[1]):
-        o = opening[:, k]
-        for i in range(len(o) - 1):
-            if o[i] < 1.0 - 1e-9 and o[i + 1] >= 1.0 - 1e-9 and o[i + 1] > o[i]:
-                t = (1.0 - o[i]) / (o[i + 1] - o[i])
+        for i in range(len(s) - 1):
+            if s[i] < k + 1 - 1e-9 and s[i + 1] >= k + 1 - 1e-9:
+                t = (k + 1 - s[i]) / (s[i + 1] - s[i])
                 xv, yv = x[i] + t * (x[i + 1] - x[i]), y[i] + t * (y[i + 1] - y[i])
                 ax.plot([xv], [yv], linestyle="none", marker="D", markersize=6,
                         markerfacecolor="none", markeredgecolor="k", markeredgewidth=1.0)

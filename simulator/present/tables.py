@@ -43,6 +43,8 @@ def _value(v, column):
         return v
     if column.dtype == "u1":
         return bool(v)
+    if column.dtype.startswith("i"):
+        return int(v)
     return _f(shown(v, column)[0])
 
 

@@ -166,33 +166,41 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
 def _solve_program(model, cond, steam, broyden, check_limits, neighbour) -> PointResult:
     """A point under a throttle-pressure program: sliding pressure (with the case's
     valves wide open) where that lies between the program's lowest and held
-    pressures; held at the nearer of the two where it does not."""
+    pressures; held at the nearer of the two where it does not.  Where sliding
+    has no answer at all (at a load so low that the held bleeds take all the
+    steam, say), the lowest pressure is tried first, then the highest."""
     upper = cond.throttle_pressure if cond.throttle_pressure is not None else \
         model.throttle.pressure
     lower = cond.minimum_throttle_pressure
     sliding = override(cond, pressure_mode="sliding", throttle_pressure=None,
                        minimum_throttle_pressure=None)
     near = neighbour if neighbour is not None and neighbour.pressure_mode == "program" else None
-    held = None
+    tries: list[float] = []
     try:
         result = solve_point(model, sliding, steam, broyden=broyden, check_limits=False,
                              neighbour=near if near is not None and not near.program_held
                              else None)
         p_T = result.totals["throttle_pressure"]
         if p_T > upper:
-            held = upper
+            tries = [upper]
         elif lower is not None and p_T < lower:
-            held = lower
-    except SolveError:  # sliding cannot reach this load: the held pressure can
-        held = upper
-    if held is not None:
+            tries = [lower]
+    except SolveError:  # no sliding answer: one of the held pressures may have one
+        tries = [lower, upper] if lower is not None else [upper]
+    for k, held in enumerate(tries):
         fixed = override(cond, pressure_mode="fixed", throttle_pressure=held, valves_open=None,
                          minimum_throttle_pressure=None)
-        result = solve_point(model, fixed, steam, broyden=broyden, check_limits=check_limits,
-                             neighbour=near if near is not None and near.program_held
-                             and near.totals["throttle_pressure"] == held else None)
+        try:
+            result = solve_point(model, fixed, steam, broyden=broyden,
+                                 check_limits=check_limits,
+                                 neighbour=near if near is not None and near.program_held
+                                 and near.totals["throttle_pressure"] == held else None)
+            break
+        except SolveError:
+            if k == len(tries) - 1:
+                raise
     result.pressure_mode = "program"
-    result.program_held = held is not None
+    result.program_held = bool(tries)
     return result
 
 
@@ -349,7 +357,8 @@ def _check_physical(model, cond, steam, eq, st):
         for c, j in outs:
             if c.expands and p[j] >= p[i]:
                 raise InfeasibleError(
-                    f"no pressure ordering exists for this request: {c.title} {c.name!r} "
+                    f"no pressure ordering exists for this request: "
+                    f"{c.title + ' ' + repr(c.name) if c.many else c.title} "
                     f"would need its outlet pressure ({p[j] / 1e5:.4g} bar at "
                     f"{names[j]!r}) above its inlet ({p[i] / 1e5:.4g} bar); "
                     f"the exhaust pressure may be too high for this flow")

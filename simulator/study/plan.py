@@ -14,10 +14,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
-from ..plant.case import Case, Conditions, apply_setting, read_conditions
+from ..plant.case import Case, Conditions, apply_setting, read_conditions, without_unused
 from ..plant.model import Model
 from ..units import Where
-from .axes import CONTINUATION_ORDER, MAX_POINTS, Axis, read_sweep, unused_with
+from .axes import CONTINUATION_ORDER, MAX_POINTS, Axis, read_sweep
 from .profile import ProfileSource, read_profile
 
 __all__ = [
@@ -219,8 +219,7 @@ def _apply(cond: Conditions, key: str, value: float, model: Model) -> Conditions
         return dataclasses.replace(cond, extraction_control=tuple(sorted(controls.items())))
     if "." in key:  # a component setting TABLE.NAME.SETTING (see axes.setting_axis)
         return apply_setting(cond, model, key, value)
-    unused = {k: None for k in unused_with(key, value)}
-    return dataclasses.replace(cond, **unused, **{key: value})
+    return dataclasses.replace(cond, **{key: value})
 
 
 def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
@@ -414,7 +413,7 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
                 if item is not None:
                     c = _apply(cond_s, cont.key, item[0], model)
                     label = f"{cont.key}={item[1]}" + (f", {series_label}" if series_label else "")
-                conds.append(dataclasses.replace(c, label=label))
+                conds.append(dataclasses.replace(without_unused(c), label=label))
                 labels.append(label)
                 for a, k in zip(series_axes, combo):
                     axis_cols[a.key].append(a.values[k])
@@ -440,7 +439,7 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
                 for a in p_scalar:
                     c = _apply(c, a.key, a.values[r], model)
                 label = profile.labels[r] + (f", {series_label}" if series_label else "")
-                conds.append(dataclasses.replace(c, label=label))
+                conds.append(dataclasses.replace(without_unused(c), label=label))
                 labels.append(label)
                 for a, k in zip(series_axes, combo):
                     axis_cols[a.key].append(a.values[k])
