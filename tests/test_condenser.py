@@ -15,8 +15,21 @@ from partload.steam.transport import water_properties
 MODEL = Path(__file__).resolve().parent.parent / "models" / "demo_reheat_condenser_unit.toml"
 
 
+def _once_through():
+    """The demo with its cooling water given at the condenser (no tower)."""
+    data, text = load_toml(MODEL)
+    del data["condenser"][0]["cooling_tower"]
+    return data, text
+
+
 @pytest.fixture(scope="module")
 def model():
+    data, text = _once_through()
+    return build_model(data, text=text, file="once through")
+
+
+@pytest.fixture(scope="module")
+def tower():
     return load_model(MODEL)
 
 
@@ -79,7 +92,7 @@ def test_effective_cleanliness_inverts_the_law(model):
 
 
 def _two_shells():
-    data, text = load_toml(MODEL)
+    data, text = _once_through()
     data["nodes"]["condenser_b"] = "8.4 kPa"
     data["exhaust"]["nodes"] = ["condenser", "condenser_b"]
     for g in data["stage_group"]:
@@ -115,23 +128,40 @@ def test_inputs_checked(model):
     with pytest.raises(InputError, match="set the inlet temperature there"):
         read_conditions({"condensers": {"HP shell": {"inlet_temperature": "20 degC"}}}, m,
                         "case.toml")
-    data, text = load_toml(MODEL)
+    data, text = _once_through()
     data["condenser"][0]["node"] = "crossover"
     with pytest.raises(InputError, match="exhaust node"):
         build_model(data, text=text, file="bad")
-    data, text = load_toml(MODEL)
+    data, text = _once_through()
     del data["condenser"][0]["area"]
     with pytest.raises(InputError, match="area"):
         build_model(data, text=text, file="bad")
 
 
-def test_cooling_water_temperature_as_a_sweep_axis(model, tmp_path):
+def test_wet_bulb_as_a_sweep_axis(tower, tmp_path):
     from partload.plant.case import load_case
     from partload.study import plan_study
     case = tmp_path / "cw.toml"
     case.write_text(f'model = "{MODEL}"\n[sweep.condensers.condenser]\n'
-                    f'inlet_temperature = ["12 degC", "20 degC", "28 degC"]\n', encoding="utf-8")
+                    f'wet_bulb_temperature = ["5 degC", "18 degC", "26 degC"]\n',
+                    encoding="utf-8")
     plan = plan_study(load_case(case))
     assert plan.n_points == 3
-    p = [solve_point(model, c).node("condenser")["p"] for c in plan.conditions]
+    rows = [solve_point(tower, c) for c in plan.conditions]
+    p = [r.node("condenser")["p"] for r in rows]
     assert p[0] < p[1] < p[2]
+    # the design wet bulb gives back the design point (identity with the calibration)
+    assert p[1] == pytest.approx(6.8e3, rel=1e-9)
+    T_in = [r.table("condensers")["condenser"]["inlet_temperature"] for r in rows]
+    # common practice: the approach (cold water over wet bulb) shrinks as the air warms
+    approach = [t - w for t, w in zip(T_in, (278.15, 291.15, 299.15))]
+    assert approach[0] > approach[1] > approach[2] > 0
+
+
+def test_tower_inputs(tower):
+    with pytest.raises(InputError, match="wet_bulb_temperature instead"):
+        read_conditions({"condensers": {"condenser": {"inlet_temperature": "20 degC"}}}, tower,
+                        "case.toml")
+    with pytest.raises(InputError, match="no cooling tower"):
+        read_conditions({"condensers": {"condenser": {"wet_bulb_temperature": "20 degC"}}},
+                        build_model(*_once_through(), file="x"), "case.toml")

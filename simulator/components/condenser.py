@@ -12,6 +12,13 @@ velocity and temperature (the chosen law) and for the cleanliness factor.
 Condensers in series on the cooling water (a multi-pressure condenser) name
 the shell whose water they receive (``after``): its outlet temperature is
 their inlet temperature.
+
+The cooling water comes at a given inlet temperature (once-through: river,
+sea) or from a wet cooling tower (``cooling_tower = {...}`` on the first
+shell): the tower's Merkel characteristic, fixed at design, gives the
+cold-water temperature from the wet-bulb temperature and the range (the
+water's rise through all shells of the circuit;
+:mod:`simulator.physics.cooling_tower`).
 """
 
 from __future__ import annotations
@@ -31,6 +38,7 @@ from ..physics.condenser import (
     rest_resistance,
     tube_coefficient,
 )
+from ..physics.cooling_tower import CP_WATER, cold_water_temperature, merkel_number
 from ..steam.transport import WaterTable
 from .base import Column, Component, ReadContext, Setting, Tunable
 
@@ -84,6 +92,8 @@ class Condenser(Component):
                 hi=353.15),
         Setting("cooling_water_flow", "mass_flow", "cooling-water flow", lo=0.0),
         Setting("cleanliness", "fraction", "cleanliness factor", lo=0.05, hi=1.2),
+        Setting("wet_bulb_temperature", "temperature", "wet-bulb temperature of the air "
+                "entering the cooling tower (a condenser fed by one)", lo=243.15, hi=323.15),
     )
     columns: ClassVar[tuple[Column, ...]] = (
         Column("pressure", "Pa", "condenser (exhaust) pressure"),
@@ -117,6 +127,8 @@ class Condenser(Component):
     d_i: float | None = None
     velocity_design: float | None = None
     after: str | None = None
+    tower: dict | None = None  # wet_bulb [K], ratio (L/G) [-], exponent [-], air_pressure [Pa]
+    tower_merkel: float = 0.0  # the tower's Merkel number at design [-]
     ua_design: float = 0.0
     r_rest: float = 0.0
     duty_design: float = 0.0
@@ -140,7 +152,25 @@ class Condenser(Component):
         d_i = rr.quantity("tube_inner_diameter", "length", default=None, positive=True)
         vel = rr.quantity("water_velocity", "velocity", default=None, positive=True)
         after = rr.string("after", default=None)
-        rr.finish()
+        tower = None
+        if rr.has("cooling_tower"):
+            tr = rr.sub("cooling_tower")
+            tower = {
+                "wet_bulb": tr.quantity("wet_bulb_temperature", "temperature", lo=243.15,
+                                        hi=323.15, reason="the air of a wet cooling tower"),
+                "ratio": tr.number("water_to_air_ratio", lo=0.1, hi=5.0),
+                "exponent": tr.number("exponent", default=0.6, lo=0.1, hi=1.5),
+                "air_pressure": tr.quantity("air_pressure", "pressure", default=(
+                    ctx.atmosphere or 101325.0), lo=5e4, hi=1.2e5),
+            }
+            tr.finish()
+            if None in tower.values():
+                tower = None
+            elif after is not None:
+                rr.problems.add(rr.where.child("cooling_tower").error(
+                    "a shell that receives another's water has no tower of its own; give the "
+                    "tower on the first shell of the circuit"))
+        rr.finish(also_valid=("cooling_tower",))
         if law == "tube_resistances":
             for key, v in (("area", area), ("tube_outer_diameter", d_o),
                            ("tube_inner_diameter", d_i), ("water_velocity", vel)):
@@ -154,7 +184,7 @@ class Condenser(Component):
                     "must be smaller than the outer diameter"))
         if None in (name, node, m_w, T_in, cf):
             return None
-        return cls(name, node, m_w, T_in, cf, law, area, d_o, d_i, vel, after)
+        return cls(name, node, m_w, T_in, cf, law, area, d_o, d_i, vel, after, tower)
 
     def check_design(self, ctx: ReadContext) -> None:
         if ctx.design_pressure is not None and self.node not in ctx.design_pressure:
@@ -191,11 +221,27 @@ class Condenser(Component):
         T_s = condensing_temperature(T_in, rise, ntu(ua, m_w, cp))
         return CondenserState(duty, m_w, T_in, T_in + rise, T_s, ua, cf)
 
-    def calibrate_design(self, duty: float, p: float, steam) -> None:
+    def calibrate_design(self, duty: float, p: float, steam, circuit_duty: float) -> None:
         """Fix the design UA from the heat rejected at design ``duty`` [W] at the
-        design condenser pressure ``p`` [Pa]."""
+        design condenser pressure ``p`` [Pa]; a tower's Merkel number from the heat
+        of its circuit ``circuit_duty`` [W]."""
         self.water = WaterTable()
         self.duty_design = duty
+        if self.tower is not None:
+            t = self.tower
+            if not self.T_in_design > t["wet_bulb"]:
+                raise InputError(
+                    f"the design cooling water ({self.T_in_design - 273.15:.2f} degC) must be "
+                    f"warmer than the tower's design wet bulb ({t['wet_bulb'] - 273.15:.2f} "
+                    f"degC)", table=self.where, key="cooling_tower")
+            rng = circuit_duty / (self.m_water_design * CP_WATER)
+            self.tower_merkel = merkel_number(self.T_in_design, self.T_in_design + rng,
+                                              t["wet_bulb"], t["ratio"], t["air_pressure"])
+            if not math.isfinite(self.tower_merkel):
+                raise InputError(
+                    "at design the tower's air would saturate before cooling the water: raise "
+                    "the design approach (inlet temperature over the wet bulb) or lower the "
+                    "water-to-air ratio", table=self.where, key="cooling_tower")
         T_s = steam.T_sat(p)
         props = self._water(duty, self.T_in_design, self.m_water_design)
         self.rho_design = props[0]
@@ -220,17 +266,33 @@ class Condenser(Component):
                     f"({h_w * self.d_i / self.d_o:.0f}); check the area and the tube data",
                     table=self.where, key="area")
 
-    def node_state(self, duty: float, march, upstream: dict) -> CondenserState:
+    def node_state(self, duty: float, march, upstream: dict,
+                   circuit_duty: float) -> CondenserState:
         """The condenser at one evaluation rejecting ``duty`` [W]: the case's cooling
-        water (``march.setting``), or the water leaving the shell it follows
-        (``upstream``: states of the condensers before it)."""
+        water (``march.setting``), the water leaving the shell it follows
+        (``upstream``: states of the condensers before it), or its tower's cold
+        water for the heat all shells of its circuit reject (``circuit_duty`` [W])."""
         cf = march.setting(self, "cleanliness", self.cleanliness_design)
         if self.after is not None:
             up = upstream[self.after]
             return self.state(duty, up.T_out, up.m_water, cf)
-        T_in = march.setting(self, "inlet_temperature", self.T_in_design)
         m_w = march.setting(self, "cooling_water_flow", self.m_water_design)
+        if self.tower is not None:
+            T_wb = march.setting(self, "wet_bulb_temperature", self.tower["wet_bulb"])
+            T_in = self.cold_water(T_wb, circuit_duty, m_w)
+        else:
+            T_in = march.setting(self, "inlet_temperature", self.T_in_design)
         return self.state(duty, T_in, m_w, cf)
+
+    def cold_water(self, T_wb: float, circuit_duty: float, m_w: float) -> float:
+        """Cold-water temperature [K] of the tower at wet bulb ``T_wb`` [K] for the
+        heat of the circuit ``circuit_duty`` [W] and water flow ``m_w`` [kg/s]: its
+        design Merkel number corrected as ``(L/G)^-n`` with the air flow constant."""
+        t = self.tower
+        lg = t["ratio"] * m_w / self.m_water_design
+        merkel = self.tower_merkel * (lg / t["ratio"]) ** -t["exponent"]
+        rng = circuit_duty / (m_w * CP_WATER)
+        return cold_water_temperature(T_wb, rng, merkel, lg, t["air_pressure"])
 
     def residual(self, p: float, st: CondenserState, steam) -> float:
         """The condenser's law at pressure ``p`` [Pa]: saturation temperature less the
@@ -241,11 +303,18 @@ class Condenser(Component):
         law = ("tube resistances (Dittus-Boelter water film, the rest fixed at design: "
                f"{self.r_rest * 1e3:.4g} m^2 K/kW)" if self.law == "tube_resistances"
                else "U proportional to the square root of water velocity")
-        return [f"condenser {self.name!r} at {self.node}: design UA {self.ua_design / 1e6:.4g} "
-                f"MW/K for {self.duty_design / 1e6:.4g} MW with {self.m_water_design:.5g} kg/s of "
-                f"water at {self.T_in_design - 273.15:.4g} degC, cleanliness "
-                f"{self.cleanliness_design:.3g}; {law}"
-                + (f"; water from {self.after!r}" if self.after else "")]
+        lines = [f"condenser {self.name!r} at {self.node}: design UA "
+                 f"{self.ua_design / 1e6:.4g} MW/K for {self.duty_design / 1e6:.4g} MW with "
+                 f"{self.m_water_design:.5g} kg/s of water at {self.T_in_design - 273.15:.4g} "
+                 f"degC, cleanliness {self.cleanliness_design:.3g}; {law}"
+                 + (f"; water from {self.after!r}" if self.after else "")]
+        if self.tower is not None:
+            t = self.tower
+            lines.append(f"  wet cooling tower: design wet bulb {t['wet_bulb'] - 273.15:.4g} "
+                         f"degC, water-to-air ratio {t['ratio']:g}, exponent {t['exponent']:g}, "
+                         f"air at {t['air_pressure'] / 1e3:.5g} kPa; Merkel number "
+                         f"{self.tower_merkel:.4f} at design")
+        return lines
 
     def point_row(self, point) -> tuple:
         st: CondenserState = point.records[self.name]
@@ -263,6 +332,15 @@ class Condenser(Component):
             target.problems.add(where.child("inlet_temperature").error(
                 f"condenser {self.name!r} receives the cooling water of {self.after!r}: set "
                 f"the inlet temperature there"))
+            return
+        if self.tower is not None and values.get("inlet_temperature") is not None:
+            target.problems.add(where.child("inlet_temperature").error(
+                f"condenser {self.name!r} takes its water from its cooling tower: set the "
+                f"wet_bulb_temperature instead"))
+            return
+        if self.tower is None and values.get("wet_bulb_temperature") is not None:
+            target.problems.add(where.child("wet_bulb_temperature").error(
+                f"condenser {self.name!r} has no cooling tower: set its inlet_temperature"))
             return
         super().apply_settings(values, where, target)
 

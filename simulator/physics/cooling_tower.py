@@ -86,12 +86,21 @@ def cold_water_temperature(T_wet_bulb: float, rng: float, merkel: float, l_over_
     def needed_minus(approach):
         return -merkel_number(T_wet_bulb + approach, T_wet_bulb + approach + rng, T_wet_bulb,
                               l_over_g, p)
-    lo, hi = 1e-3, 5.0
+    hi = 5.0
     while needed_minus(hi) < -merkel and hi < 80.0:
         hi *= 2.0
-    # -needed rises with the approach: find where it reaches -merkel
-    lo_val = needed_minus(lo)
-    while not math.isfinite(lo_val) and lo < hi:
-        lo *= 2.0
-        lo_val = needed_minus(lo)
+    # -needed rises with the approach and is -inf below the approach at which the air
+    # would saturate on the way: bisect to a finite lower bracket below the answer
+    lo = 0.0
+    top = hi
+    for _ in range(200):
+        mid = 0.5 * (lo + top)
+        v = needed_minus(mid)
+        if not math.isfinite(v):
+            lo = mid
+        elif v < -merkel:
+            lo = mid
+            break
+        else:
+            top = mid
     return T_wet_bulb + solve_increasing(needed_minus, -merkel, lo, hi, rtol=1e-13)

@@ -159,20 +159,24 @@ def valve_openings(flow: float, arcs: Sequence[float], overlap: float) -> list[f
 def solve_increasing(f: Callable[[float], float], target: float, lo: float, hi: float,
                      rtol: float = 1e-14) -> float:
     """The ``x`` in ``[lo, hi]`` with ``f(x) = target`` for an increasing ``f``,
-    by the Illinois variant of regula falsi (superlinear, always bracketed);
-    ``x`` is found to ``rtol`` of ``hi``.  Outside the range the nearer end."""
+    by the Illinois variant of regula falsi (superlinear, always bracketed):
+    until the bracket is narrower than ``rtol`` of ``hi`` or ``f`` meets the
+    target to rounding.  Outside the range the nearer end.
+
+    (Only these two tests end it: a short step alone does not mean the root is
+    near, as regula falsi creeps from one side before Illinois halves it.)"""
     f_lo, f_hi = f(lo) - target, f(hi) - target
     if f_lo >= 0.0:
         return lo
     if f_hi <= 0.0:
         return hi
+    noise = 4.0 * 2.2e-16 * max(abs(target), abs(f_lo), abs(f_hi))
     side = 0
     x = hi
     for _ in range(200):
-        x_old = x
         x = (lo * f_hi - hi * f_lo) / (f_hi - f_lo)
         fx = f(x) - target
-        if fx == 0.0 or hi - lo <= rtol * abs(hi) or abs(x - x_old) <= rtol * abs(x):
+        if abs(fx) <= noise or hi - lo <= rtol * abs(hi):
             return x
         if fx > 0.0:
             hi, f_hi = x, fx

@@ -86,9 +86,14 @@ def calibrate_condensers(model, steam) -> None:
     if not at_nodes:
         return
     heat = design_heat_rejected(model, steam)
+    circuit = {c.name: heat[c.node] for c in at_nodes}
+    for c in reversed(at_nodes):  # a shell's heat and that of the shells after it
+        if getattr(c, "after", None) is not None:
+            circuit[c.after] += circuit[c.name]
     for c in at_nodes:
         try:
-            c.calibrate_design(heat[c.node], model.design_pressure[c.node], steam)
+            c.calibrate_design(heat[c.node], model.design_pressure[c.node], steam,
+                               circuit[c.name])
         except InputError as exc:
             if exc.file is None:
                 exc.file = model.file

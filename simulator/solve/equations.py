@@ -343,10 +343,15 @@ class PointEquations:
         cooling water), in model order, from the marched ``p``, ``h``, ``M`` and the
         water side's ``summary``."""
         fw_node = self.idx[self.model.feedwater.condenser] if self.fw is not None else None
+        duty = {c.name: heat_rejected(i, self.exhaust_idx, M, h, p, self.steam, summary,
+                                      fw_node) for c, i in self.at_nodes}
+        circuit = dict(duty)  # heat of each shell and of the shells after it in series
+        for c, _i in reversed(self.at_nodes):
+            if getattr(c, "after", None) is not None:
+                circuit[c.after] += circuit[c.name]
         out = {}
-        for c, i in self.at_nodes:
-            q = heat_rejected(i, self.exhaust_idx, M, h, p, self.steam, summary, fw_node)
-            out[c.name] = c.node_state(q, self, out)
+        for c, _i in self.at_nodes:
+            out[c.name] = c.node_state(duty[c.name], self, out, circuit[c.name])
         return out
 
     def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps):

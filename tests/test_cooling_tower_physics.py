@@ -1,0 +1,61 @@
+"""Wet cooling tower (simulator.physics.cooling_tower) against IAPWS-IF97's
+verification values, a psychrometric table, direct integration and identities."""
+
+import pytest
+from partload.physics.cooling_tower import (
+    CP_WATER,
+    cold_water_temperature,
+    merkel_number,
+    saturated_air_enthalpy,
+    saturation_pressure,
+)
+from scipy.integrate import quad
+
+
+@pytest.mark.parametrize("T, p_mpa", [(300.0, 0.353658941e-2), (500.0, 0.263889776e1),
+                                      (600.0, 0.123443146e2)])
+def test_saturation_pressure_if97_verification(T, p_mpa):
+    # IAPWS R7-97(2012), table 35: computer-program verification values of eq. 30
+    assert saturation_pressure(T) == pytest.approx(p_mpa * 1e6, rel=1e-8)
+
+
+def test_saturated_air_enthalpy_at_20_degC():
+    # ASHRAE Handbook Fundamentals 2017, ch. 1, table 2 (moist air at 101.325 kPa):
+    # saturated air at 20 degC holds W = 0.014758 and h = 57.55 kJ/kg dry air (from memory)
+    assert saturated_air_enthalpy(293.15, 101325.0) == pytest.approx(57550.0, rel=3e-3)
+
+
+def test_chebyshev_rule_against_direct_integration():
+    # Merkel's integral by the four-point rule against scipy's adaptive quadrature
+    T_c, T_h, T_wb, lg, p = 300.15, 310.15, 293.15, 1.2, 101325.0
+    h_in = saturated_air_enthalpy(T_wb, p)
+
+    def integrand(T):
+        return CP_WATER / (saturated_air_enthalpy(T, p) - (h_in + lg * CP_WATER * (T - T_c)))
+
+    exact, _ = quad(integrand, T_c, T_h)
+    assert merkel_number(T_c, T_h, T_wb, lg, p) == pytest.approx(exact, rel=0.01)
+
+
+def test_cold_water_inverts_the_merkel_number():
+    p, lg, T_wb, rng = 101325.0, 1.1, 290.15, 9.0
+    need = merkel_number(297.15, 297.15 + rng, T_wb, lg, p)  # a 7 K approach
+    T_c = cold_water_temperature(T_wb, rng, need, lg, p)
+    assert T_c == pytest.approx(297.15, abs=1e-8)
+    # common practice: a hotter day (higher wet bulb) gives warmer cold water, by less
+    # than the wet bulb rose (the approach shrinks)
+    T_c2 = cold_water_temperature(T_wb + 5.0, rng, need, lg, p)
+    assert T_c < T_c2 < T_c + 5.0
+
+
+def test_cold_water_continuous_in_the_wet_bulb():
+    # no jumps: over a fine grid of wet bulbs the cold water changes smoothly (a first
+    # version skipped past the root when the air saturated at small approaches)
+    import numpy as np
+    p, lg, rng = 101325.0, 1.2, 8.0
+    need = merkel_number(297.15, 297.15 + rng, 291.15, lg, p)
+    wb = np.linspace(268.15, 303.15, 351)
+    tc = np.array([cold_water_temperature(t, rng, need, lg, p) for t in wb])
+    step = np.diff(tc)
+    assert np.all(step > 0) and np.all(step < 0.1)  # 0.1 K wet-bulb steps
+    assert np.max(np.abs(np.diff(step))) < 2e-3
