@@ -227,7 +227,8 @@ def test_registry_order_and_one_caution_per_code(reheat_model):
                                               "exhaust_temperature", "steam_temperature",
                                               "generator_output", "back_pressure",
                                               "first_stage_overload", "valve_low_opening",
-                                              "first_valve_only")
+                                              "first_valve_only", "cooling_water_rise",
+                                              "condenser_duty")
     # overload everywhere: one pressure_rise caution naming the worst node, not ten
     _, found = solved(reheat_model, Conditions(throttle_flow=300.0), check_limits=False)
     assert codes(found).count("pressure_rise") == 1

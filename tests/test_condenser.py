@@ -165,3 +165,44 @@ def test_tower_inputs(tower):
     with pytest.raises(InputError, match="no cooling tower"):
         read_conditions({"condensers": {"condenser": {"wet_bulb_temperature": "20 degC"}}},
                         build_model(*_once_through(), file="x"), "case.toml")
+
+
+def _codes(model, f, **settings):
+    from partload.cautions.checks import check_point
+    cond = read_conditions({"operation": {"throttle_flow_fraction": f},
+                            "condensers": {"condenser": settings} if settings else {}}, model)
+    return [c.code for c in check_point(model, cond, solve_point(model, cond))]
+
+
+def test_condenser_cautions(model):
+    # quiet at design; half the cooling water (a pump out) doubles the rise to about 17 K,
+    # above the 12 K default; a condenser at a fifth of its duty is extrapolated
+    assert _codes(model, 1.0) == []
+    assert "cooling_water_rise" in _codes(model, 1.0, cooling_water_flow="5500 kg/s")
+    assert "cooling_water_rise" not in _codes(model, 1.0, cooling_water_flow="10000 kg/s")
+    assert "condenser_duty" in _codes(model, 0.18)
+    assert "condenser_duty" not in _codes(model, 0.5)
+
+
+def test_pump_out_and_two_shells(model):
+    # common practice: one cooling-water pump out raises the back pressure and the rise
+    full = _point(model, 0.9)
+    half = _point(model, 0.9, cooling_water_flow="5500 kg/s")
+    assert half.node("condenser")["p"] > full.node("condenser")["p"]
+    assert (half.table("condensers")["condenser"]["temperature_rise"]
+            > 1.9 * full.table("condensers")["condenser"]["temperature_rise"])
+
+
+@pytest.mark.parametrize("ntu_total", [0.8, 1.2, 2.0])
+def test_two_shells_in_series_beat_one(ntu_total):
+    # common practice: two shells in series on the water, each with half the surface and
+    # half the steam, give a lower mean back pressure than one shell with all of it;
+    # checked with the condenser laws (Incropera eq. 11.35a) and IF97 saturation pressures
+    from partload.physics.condenser import condensing_temperature
+    from partload.physics.cooling_tower import saturation_pressure
+    T_in, rise = 297.15, 8.0
+    one = saturation_pressure(condensing_temperature(T_in, rise, ntu_total))
+    first = condensing_temperature(T_in, rise / 2, ntu_total / 2)
+    second = condensing_temperature(T_in + rise / 2, rise / 2, ntu_total / 2)
+    mean = 0.5 * (saturation_pressure(first) + saturation_pressure(second))
+    assert mean < one

@@ -34,6 +34,13 @@ The checks, in the order they are reported (:data:`CHECKS`):
     ``minimum_opening``.
 ``first_valve_only``
     Nozzle-group governing with only the first valve admitting steam.
+``cooling_water_rise``
+    Cooling water warmer by more than ``max_cooling_water_rise`` after the
+    last shell of its condenser circuit.
+``condenser_duty``
+    A condenser rejecting less than 25 % or more than 115 % of its design
+    duty: its heat-transfer law, fixed at design, is extrapolated (common
+    practice, no source).
 
 Each check gives at most one caution per point, for the worst location, and
 names the other locations beyond the limit in its message; so a point has at
@@ -511,6 +518,58 @@ def _first_valve_only(pt: _Point) -> Caution | None:
         float(opening[0]), math.nan, gov.valves[0], "-")
 
 
+def _condenser_rows(pt: _Point):
+    """``(condenser, result row)`` of each condenser of the model."""
+    table = pt.result.tables.get("condensers")
+    if table is None:
+        return []
+    rows = table.rows()
+    return [(c, rows[c.name]) for c in pt.model.components if c.frees_node
+            and c.name in rows]
+
+
+def _cooling_water_rise(pt: _Point) -> Caution | None:
+    name = "max_cooling_water_rise"
+    lim = pt.limits[name]
+    rows = _condenser_rows(pt)
+    start = {c.name: row["inlet_temperature"] for c, row in rows if c.after is None}
+    head = {}
+    for c, _row in rows:  # the first shell of each one's circuit
+        head[c.name] = c.name if c.after is None else head[c.after]
+    over = []
+    for c, row in rows:
+        last = not any(o.after == c.name for o, _ in rows)
+        rise = row["outlet_temperature"] - start[head[c.name]]
+        if last and rise > lim:
+            over.append((rise, c.name, row["outlet_temperature"]))
+    if not over:
+        return None
+    rise, where, T_out = max(over)
+    return Caution(
+        "cooling_water_rise",
+        f"Cooling water leaves condenser {where!r} at {_degc(T_out)}, {rise:.2f} K warmer than "
+        f"it came ({pt.limit_text(name, f'{lim:.3g} K')}): above what discharge permits "
+        f"commonly allow; the site's permit governs. {DEFERENCE}",
+        rise, lim, where, "K")
+
+
+def _condenser_duty(pt: _Point) -> Caution | None:
+    out = []
+    for c, row in _condenser_rows(pt):
+        ratio = row["duty"] / c.duty_design
+        if not 0.25 <= ratio <= 1.15:
+            out.append((abs(ratio - 1.0), ratio, c.name))
+    if not out:
+        return None
+    _, ratio, where = max(out)
+    return Caution(
+        "condenser_duty",
+        f"Condenser {where!r} rejects {_pct(ratio)} of its design duty, outside 25-115 %: its "
+        f"heat-transfer law, fixed at design, is extrapolated here, so the back pressure is "
+        f"less certain (common practice, no source). {DEFERENCE}",
+        ratio, math.nan, where, "-")
+
+
 CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "valves_wide_open": _valves_wide_open,
     "pressure_rise": _pressure_rise,
@@ -523,6 +582,8 @@ CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "first_stage_overload": _first_stage_overload,
     "valve_low_opening": _valve_low_opening,
     "first_valve_only": _first_valve_only,
+    "cooling_water_rise": _cooling_water_rise,
+    "condenser_duty": _condenser_duty,
 }
 """The checks by caution code, in the order their cautions are reported."""
 

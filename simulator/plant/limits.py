@@ -13,6 +13,7 @@ manufacturer's where they are known::
     max_generator_output = "100 %"          # of the generator rating
     max_back_pressure = "250 %"             # of the design exhaust pressure
     max_first_stage_pressure = "100 %"      # of its design value (governing stage)
+    max_cooling_water_rise = "12 K"         # through a condenser circuit
 
 Keys left out take the defaults below.  The defaults are common practice of
 the trade, not taken from a published source or from any one manufacturer;
@@ -61,6 +62,10 @@ Defaults and why
         more than their rated loading and thrust, which the manufacturer
         allows only up to a stated overload, often with the last control valve
         (common practice, no source).
+    ``max_cooling_water_rise`` 12 K
+        Discharge permits commonly bound how much warmer the cooling water
+        returns to a river or the sea; about 10-12 K is a usual figure, and the
+        site's permit governs (common practice, no source).
 """
 
 from __future__ import annotations
@@ -128,6 +133,8 @@ LIMITS: dict[str, LimitSpec] = {spec.name: spec for spec in (
               "largest generator output, over the rating [-]"),
     LimitSpec("max_back_pressure", "fraction", "250 %", 0.0, 100.0,
               "largest exhaust (back) pressure, over its design value [-]"),
+    LimitSpec("max_cooling_water_rise", "temperature_difference", "12 K", 0.0, 100.0,
+              "largest rise of the cooling water through a condenser circuit [K]"),
     LimitSpec("max_first_stage_pressure", "fraction", "100 %", 0.0, 2.0,
               "highest first-stage pressure after a governing stage, over its design value "
               "[-]"),
