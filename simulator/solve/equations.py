@@ -32,7 +32,7 @@ from ..errors import SolveError
 from ..plant.case import Conditions
 from ..plant.model import Model
 from ..plant.water_side import FeedwaterMarch
-from ..steam.if97 import SteamTables
+from ..steam.if97 import SteamTables, remembering
 
 __all__ = ["PointEquations", "equations_for", "TrialPointError"]
 
@@ -61,6 +61,8 @@ class PointEquations:
         self.model = model
         self.wide_open = frozenset(wide_open)  # control valves that are wide open
         self.steam = steam
+        self.raw_steam = steam
+        self.memo_steam = remembering(steam)  # while a Jacobian is formed
         self.mode = mode
         g = model.graph
         names = model.order
@@ -223,6 +225,28 @@ class PointEquations:
             k_after = self.free.index(self.idx[self.model.valve.outlet])
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.995))
         return x
+
+    def fd_jacobian(self, fun, x: np.ndarray, F: np.ndarray) -> np.ndarray:
+        """Forward-difference Jacobian at ``x`` [-] with ``F = fun(x)`` [-], equal to
+        :func:`~simulator.solve.newton.fd_jacobian` bit for bit.
+
+        The base point is marched once more with the property calls remembered
+        (:class:`~simulator.steam.if97.MemoTables`); each column then asks the
+        backend only for the states its perturbed unknown changes (those
+        downstream of it, and the water side), the rest being identical calls.
+        ``fun`` is the residual function Newton counts evaluations with.
+        """
+        from .newton import fd_jacobian
+
+        memo = self.memo_steam
+        memo.clear()
+        self.steam = memo
+        try:
+            fun(x)  # fills the memo with the base point's states
+            return fd_jacobian(fun, x, F)
+        finally:
+            self.steam = self.raw_steam
+            memo.clear()
 
     # ---------------------------------------------------------------- residuals
     def residuals(self, x: np.ndarray) -> np.ndarray:

@@ -56,7 +56,8 @@ def fd_jacobian(fun: Callable[[np.ndarray], np.ndarray], x: np.ndarray, F: np.nd
 
 def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: float = 1e-10,
            max_iter: int = 50, names: Sequence[str] = (), jacobian: np.ndarray | None = None,
-           broyden: bool = True, max_step: float = 0.5) -> NewtonResult:
+           broyden: bool = True, max_step: float = 0.5,
+           jacobian_fn: Callable | None = None) -> NewtonResult:
     """Solve ``fun(x) = 0`` to ``max|fun| <= tol``.
 
     Parameters
@@ -72,6 +73,9 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
     broyden : keep the Jacobian current by Broyden's update between fresh
         finite-difference Jacobians
     max_step : largest change of any unknown in one step
+    jacobian_fn : ``jacobian_fn(f, x, F)`` forms the finite-difference Jacobian
+        instead of :func:`fd_jacobian` (same differences), evaluating through
+        ``f`` so that its evaluations are counted
 
     Raises
     ------
@@ -101,7 +105,8 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             worst = names[int(np.argmax(np.abs(F)))] if len(names) else "?"
             raise ConvergenceError("Newton's method did not converge", it, res, worst)
         if J is None:
-            J = fd_jacobian(call, x, F)
+            J = (fd_jacobian(call, x, F) if jacobian_fn is None
+                 else jacobian_fn(call, x, F))
             njac += 1
             fresh = True
         try:

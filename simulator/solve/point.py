@@ -12,6 +12,7 @@ can give, or one beyond the throttle valves, raises :class:`InfeasibleError`.
 
 from __future__ import annotations
 
+import contextlib
 import math
 
 import numpy as np
@@ -70,6 +71,36 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     """
     if steam is None or isinstance(steam, str):
         steam = get_backend(steam or "seuif97")
+    with one_blas_thread():
+        return _solve_point(model, cond, steam, guess, jacobian, broyden, check_limits,
+                            neighbour)
+
+
+_BLAS: list = []  # the process's BLAS thread controller, made on first use
+
+
+def one_blas_thread():
+    """A context in which the BLAS libraries numpy uses run on one thread.
+
+    The systems here are small (tens to a few hundred unknowns): threads of a
+    multi-threaded BLAS then cost more than they save, and on a busy machine a
+    solve waits for them (threadpoolctl; a no-op without it).  The previous
+    thread counts come back on leaving.
+    """
+    if not _BLAS:
+        try:
+            from threadpoolctl import ThreadpoolController
+            _BLAS.append(ThreadpoolController().select(user_api="blas"))
+        except Exception:  # noqa: BLE001 - threadpoolctl missing or failing: leave BLAS as is
+            _BLAS.append(None)
+    blas = _BLAS[0]
+    if blas is None or not blas.lib_controllers:
+        return contextlib.nullcontext()
+    return blas.limit(limits=1)
+
+
+def _solve_point(model, cond, steam, guess, jacobian, broyden, check_limits, neighbour):
+    """:func:`solve_point` with the backend resolved (same parameters)."""
     # Control valves hold their inlet pressure unless they would need less than their
     # wide-open drop; then they are wide open and that pressure floats above its
     # setting.  Start from the neighbour's valve states and switch until consistent.
@@ -120,12 +151,12 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
                        and np.shape(jacobian) == shape) else None
     try:
         nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
-                    broyden=broyden)
+                    broyden=broyden, jacobian_fn=eq.fd_jacobian)
     except ConvergenceError:
         if not usable:
             raise
         nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
-                    broyden=broyden)
+                    broyden=broyden, jacobian_fn=eq.fd_jacobian)
     F, st = eq.evaluate(nr.x, detail=True)
     return nr, st, F, scaled
 
