@@ -142,6 +142,23 @@ class PointEquations:
         self.unknown_names = ([f"ln p({names[i]})" for i in self.free]
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
+        # the first node of the march each unknown touches: a node's pressure is read
+        # by the components leaving it and by those entering it (evaluated at their
+        # inlet, earlier in the order); a heater's bleed at its extraction node; the
+        # throttle flow at the source.  A finite-difference column re-marches from there.
+        pred_first = list(range(N))
+        for i in range(N):
+            for _c, j in self.outs[i]:
+                pred_first[j] = min(pred_first[j], i)
+        self.first_node = [pred_first[i] for i in self.free]
+        for k in range(self.n_h):
+            self.first_node.append(min((i for _n, i, kind, v in self.bleeds
+                                        if kind == 2 and v == k), default=0))
+        if self.flow_unknown:
+            self.first_node.append(0)
+        self.structured = True  # False: every column marches the whole graph
+        self._snaps = None  # march states at the start of nodes, while a Jacobian is formed
+        self._resume = 0
         self._last = None
         self.set_conditions(cond)
 
@@ -242,9 +259,27 @@ class PointEquations:
         memo.clear()
         self.steam = memo
         try:
-            fun(x)  # fills the memo with the base point's states
-            return fd_jacobian(fun, x, F)
+            if not self.structured:
+                fun(x)  # fills the memo with the base point's states
+                return fd_jacobian(fun, x, F)
+            self._snaps = {i: None for i in self.first_node if i > 0}
+            fun(x)  # fills the memo and keeps the march state at each first node
+            self._resume_from, self._snaps = self._snaps, None
+            step = 1e-7  # as fd_jacobian
+            n = x.size
+            J = np.empty((F.size, n))
+            xp = x.copy()
+            for j in range(n):
+                xp[j] = x[j] + step
+                self._resume = self.first_node[j]
+                try:
+                    J[:, j] = (fun(xp) - F) / step
+                finally:
+                    self._resume = 0
+                xp[j] = x[j]
+            return J
         finally:
+            self._snaps = None
             self.steam = self.raw_steam
             memo.clear()
 
@@ -290,23 +325,32 @@ class PointEquations:
                 heater_bleed[v] = b
             bleed_flow.append(b)
             bleed_node[i] += b
-        M = [0.0] * N
-        E = [0.0] * N
-        h = [0.0] * N
-        hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
-        hl = [math.nan] * N
         src = self.src
-        M[src] = m_T
-        h[src] = steam.h_pT(p[src], self.T_throttle)
-        F = [0.0] * self.n_res
+        start = self._resume
+        snaps = self._snaps  # a base point of a Jacobian: keep states to resume from
+        if start:  # a Jacobian column: the march before node `start` is the base point's
+            M, E, h, hv, hl, F, shaft, n_steps, steps = self._resume_from[start]
+            M, E, h, hv, hl, F = M[:], E[:], h[:], hv[:], hl[:], F[:]
+            steps = steps[:n_steps]
+        else:
+            M = [0.0] * N
+            E = [0.0] * N
+            h = [0.0] * N
+            hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
+            hl = [math.nan] * N
+            M[src] = m_T
+            h[src] = steam.h_pT(p[src], self.T_throttle)
+            F = [0.0] * self.n_res
+            shaft = 0.0
+            steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
         row_of = self.row_of
         passes_net = self.passes_net
         p_design = self.p_design
-        shaft = 0.0
-        steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
         self.p, self.h, self.hv, self.hl = p, h, hv, hl  # what the components read
         trace = 1e-9 * md  # a flow this small means no steam reaches the node
-        for i in range(N):
+        for i in range(start, N):
+            if snaps is not None and i in snaps:
+                snaps[i] = (M[:], E[:], h[:], hv[:], hl[:], F[:], shaft, len(steps), steps)
             if i != src:
                 if M[i] <= trace:
                     raise TrialPointError(f"no steam reaches node {self.names[i]!r}")
