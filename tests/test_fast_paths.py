@@ -96,7 +96,16 @@ def _jacobian_pair(model, cond, x=None):
     eq = equations_for(model, cond, get_backend("seuif97"))
     x = eq.guess() if x is None else x
     F = eq.residuals(x)
-    return eq.fd_jacobian(eq.residuals, x, F), fd_jacobian(eq.residuals, x, F)
+    F_own, J = eq.fd_jacobian(eq.residuals, x, None)
+    assert np.array_equal(F_own, F)
+    F_same, J_given = eq.fd_jacobian(eq.residuals, x, F)
+    assert F_same is F and np.array_equal(J_given, J)
+    eq.structured = False  # whole marches, the property calls still remembered
+    try:
+        assert np.array_equal(eq.fd_jacobian(eq.residuals, x, F)[1], J)
+    finally:
+        eq.structured = True
+    return J, fd_jacobian(eq.residuals, x, F)
 
 
 @pytest.mark.parametrize("case_path", CASES, ids=[p.stem for p in CASES])

@@ -243,15 +243,17 @@ class PointEquations:
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.995))
         return x
 
-    def fd_jacobian(self, fun, x: np.ndarray, F: np.ndarray) -> np.ndarray:
-        """Forward-difference Jacobian at ``x`` [-] with ``F = fun(x)`` [-], equal to
-        :func:`~simulator.solve.newton.fd_jacobian` bit for bit.
+    def fd_jacobian(self, fun, x: np.ndarray, F: np.ndarray | None):
+        """Residuals and forward-difference Jacobian at ``x`` [-]: ``(F, J)``, with
+        ``J`` equal to :func:`~simulator.solve.newton.fd_jacobian` bit for bit.
 
-        The base point is marched once more with the property calls remembered
-        (:class:`~simulator.steam.if97.MemoTables`); each column then asks the
-        backend only for the states its perturbed unknown changes (those
-        downstream of it, and the water side), the rest being identical calls.
-        ``fun`` is the residual function Newton counts evaluations with.
+        The base point is marched with the property calls remembered
+        (:class:`~simulator.steam.if97.MemoTables`) and the march state kept at
+        the first node each unknown touches; each column then re-marches from
+        there and asks the backend only for the states its perturbed unknown
+        changes (those downstream of it, and the water side).  ``fun`` is the
+        residual function Newton counts evaluations with; ``F = fun(x)`` [-]
+        when known (the base is marched once more), ``None`` otherwise.
         """
         from .newton import fd_jacobian
 
@@ -260,10 +262,12 @@ class PointEquations:
         self.steam = memo
         try:
             if not self.structured:
-                fun(x)  # fills the memo with the base point's states
-                return fd_jacobian(fun, x, F)
+                base = fun(x)  # fills the memo with the base point's states
+                F = base if F is None else F
+                return F, fd_jacobian(fun, x, F)
             self._snaps = {i: None for i in self.first_node if i > 0}
-            fun(x)  # fills the memo and keeps the march state at each first node
+            base = fun(x)  # fills the memo and keeps the march state at each first node
+            F = base if F is None else F
             self._resume_from, self._snaps = self._snaps, None
             step = 1e-7  # as fd_jacobian
             n = x.size
@@ -277,7 +281,7 @@ class PointEquations:
                 finally:
                     self._resume = 0
                 xp[j] = x[j]
-            return J
+            return F, J
         finally:
             self._snaps = None
             self.steam = self.raw_steam

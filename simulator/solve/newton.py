@@ -73,9 +73,11 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
     broyden : keep the Jacobian current by Broyden's update between fresh
         finite-difference Jacobians
     max_step : largest change of any unknown in one step
-    jacobian_fn : ``jacobian_fn(f, x, F)`` forms the finite-difference Jacobian
-        instead of :func:`fd_jacobian` (same differences), evaluating through
-        ``f`` so that its evaluations are counted
+    jacobian_fn : ``jacobian_fn(f, x, F)`` returns ``(F, J)``: the residuals and
+        the finite-difference Jacobian at ``x`` (the differences of
+        :func:`fd_jacobian`), evaluating through ``f`` so that its evaluations
+        are counted; ``F`` is ``None`` at a start without a Jacobian, where the
+        base evaluation is its own
 
     Raises
     ------
@@ -90,10 +92,15 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
         evals += 1
         return fun(z)
 
-    F = call(x)
     J = None if jacobian is None else np.array(jacobian, dtype=float)
     fresh = False
     njac = 0
+    if J is None and jacobian_fn is not None:  # a Jacobian first: one base evaluation
+        F, J = jacobian_fn(call, x, None)
+        njac = 1
+        fresh = True
+    else:
+        F = call(x)
     it = 0
     while True:
         res = float(np.max(np.abs(F))) if F.size else 0.0
@@ -106,7 +113,7 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             raise ConvergenceError("Newton's method did not converge", it, res, worst)
         if J is None:
             J = (fd_jacobian(call, x, F) if jacobian_fn is None
-                 else jacobian_fn(call, x, F))
+                 else jacobian_fn(call, x, F)[1])
             njac += 1
             fresh = True
         try:
