@@ -13,6 +13,7 @@ can give, or one beyond the throttle valves, raises :class:`InfeasibleError`.
 from __future__ import annotations
 
 import contextlib
+import functools
 import math
 
 import numpy as np
@@ -45,6 +46,39 @@ def wide_open_capacity(model: Model, cond: Conditions, steam: SteamTables,
     return st["m_T"], st["P_gen"]
 
 
+_BLAS: list = []  # the process's BLAS thread controller, made on first use
+
+
+def one_blas_thread():
+    """A context in which the BLAS libraries numpy uses run on one thread.
+
+    The systems here are small (tens to a few hundred unknowns): threads of a
+    multi-threaded BLAS then cost more than they save, and on a busy machine a
+    solve waits for them (threadpoolctl; a no-op without it).  The previous
+    thread counts come back on leaving.
+    """
+    if not _BLAS:
+        try:
+            from threadpoolctl import ThreadpoolController
+            _BLAS.append(ThreadpoolController().select(user_api="blas"))
+        except Exception:  # noqa: BLE001 - threadpoolctl missing or failing: leave BLAS as is
+            _BLAS.append(None)
+    blas = _BLAS[0]
+    if blas is None or not blas.lib_controllers:
+        return contextlib.nullcontext()
+    return blas.limit(limits=1)
+
+
+def _on_one_blas_thread(f):
+    """``f`` run inside :func:`one_blas_thread`."""
+    @functools.wraps(f)
+    def run(*args, **kwargs):
+        with one_blas_thread():
+            return f(*args, **kwargs)
+    return run
+
+
+@_on_one_blas_thread
 def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
                 guess: np.ndarray | None = None, jacobian: np.ndarray | None = None,
                 broyden: bool = True, check_limits: bool = True,
@@ -71,36 +105,6 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     """
     if steam is None or isinstance(steam, str):
         steam = get_backend(steam or "seuif97")
-    with one_blas_thread():
-        return _solve_point(model, cond, steam, guess, jacobian, broyden, check_limits,
-                            neighbour)
-
-
-_BLAS: list = []  # the process's BLAS thread controller, made on first use
-
-
-def one_blas_thread():
-    """A context in which the BLAS libraries numpy uses run on one thread.
-
-    The systems here are small (tens to a few hundred unknowns): threads of a
-    multi-threaded BLAS then cost more than they save, and on a busy machine a
-    solve waits for them (threadpoolctl; a no-op without it).  The previous
-    thread counts come back on leaving.
-    """
-    if not _BLAS:
-        try:
-            from threadpoolctl import ThreadpoolController
-            _BLAS.append(ThreadpoolController().select(user_api="blas"))
-        except Exception:  # noqa: BLE001 - threadpoolctl missing or failing: leave BLAS as is
-            _BLAS.append(None)
-    blas = _BLAS[0]
-    if blas is None or not blas.lib_controllers:
-        return contextlib.nullcontext()
-    return blas.limit(limits=1)
-
-
-def _solve_point(model, cond, steam, guess, jacobian, broyden, check_limits, neighbour):
-    """:func:`solve_point` with the backend resolved (same parameters)."""
     # Control valves hold their inlet pressure unless they would need less than their
     # wide-open drop; then they are wide open and that pressure floats above its
     # setting.  Start from the neighbour's valve states and switch until consistent.
