@@ -158,7 +158,8 @@ class PointEquations:
             self.first_node.append(0)
         self.structured = True  # False: every column marches the whole graph
         self._snaps = None  # march states at the start of nodes, while a Jacobian is formed
-        self._resume = 0
+        self._resume = 0  # the node a Jacobian column's march starts at
+        self._resume_from: dict = {}  # its kept states, by node
         self._last = None
         self.set_conditions(cond)
 
