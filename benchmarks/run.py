@@ -2,12 +2,17 @@
 
 Run from the project root::
 
-    python benchmarks/run.py            # everything, a few minutes on 2 cores
-    python benchmarks/run.py --quick    # smaller samples, for a smoke test
+    python benchmarks/run.py                     # everything, a few minutes on 2 cores
+    python benchmarks/run.py --quick             # smaller samples, for a smoke test
+    python benchmarks/run.py --baseline REF      # also measure git revision REF
 
 It prints a table and writes ``results/benchmark.json`` holding, for every
 target, the measured value, the target, and a ``met`` flag.  Timings are wall
-clock on this machine; medians over repeated points.
+clock on this machine; medians over repeated points.  With ``--baseline REF``
+the same measurements run a second time, in child processes, on the package
+of git revision ``REF`` (its ``simulator/`` folder taken out with ``git
+archive`` and put first on ``PYTHONPATH``), and every target shows that
+figure beside today's.
 
 What is measured where:
 
@@ -20,6 +25,11 @@ What is measured where:
 * ``comparisons``: ``scipy.optimize.fsolve`` against our Newton on the same
   residuals, start, Jacobian policy and stopping test (see
   :func:`fsolve_to_tolerance`), and the ``iapws`` backend against ``seuif97``.
+* ``startup``: ``partload point CASE`` and ``partload --help`` as whole
+  processes (``python -m partload.cli``).
+* ``accuracy``: every point of the demo sweep and of the first profile chunks
+  as the study solves it, against plain dense Newton from the design-scaled
+  start (``broyden=False``), largest relative difference.
 """
 
 from __future__ import annotations
@@ -41,6 +51,17 @@ from scipy.optimize import fsolve
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
+# the package to measure, first on the path of this process and of its children
+# (set by --baseline for the child that measures another revision)
+PACKAGE_PATH = os.environ.get("PARTLOAD_BENCHMARK_PATH")
+if PACKAGE_PATH:
+    sys.path.insert(0, PACKAGE_PATH)
+
+
+def _child_env() -> dict:
+    """The environment of child processes: they import the package measured here."""
+    path = [PACKAGE_PATH] if PACKAGE_PATH else []
+    return {**os.environ, "PYTHONPATH": os.pathsep.join(path + [str(ROOT)])}
 
 from partload import __version__  # noqa: E402
 from partload.errors import SolveError  # noqa: E402
@@ -211,13 +232,16 @@ def bench_study_path(quick: bool) -> dict:
         results = None
         times = []
         timer = _TimedSolves()
+        cpu = []
         for k in range(repeats + 1):
             t = time.perf_counter()
+            c0 = time.process_time()
             with timer:
                 results = [solve_chunk(spec, c, plan.conditions[c.start:c.stop])
                            for c in chunks]
             if k:
                 times.append(time.perf_counter() - t)
+                cpu.append(time.process_time() - c0)
             else:
                 timer.calls.clear()
         n = sum(c.size for c in chunks)
@@ -237,6 +261,7 @@ def bench_study_path(quick: bool) -> dict:
             "warm_ms": 1e3 * statistics.median(dt for c, dt in timer.calls if not c),
             "cold_ms": 1e3 * statistics.median(dt for c, dt in timer.calls if c),
             "ms_per_point": 1e3 * statistics.median(times) / n,
+            "cpu_ms_per_point": 1e3 * statistics.median(cpu) / n,
             # mean chunk time per point less mean solve_point time per point: the
             # operating-limit checks and the result arrays
             "outside_solve_ms_per_point": 1e3 * (statistics.mean(times)
@@ -253,59 +278,77 @@ def bench_study_path(quick: bool) -> dict:
     return out
 
 
+def _profile_run(case: Path, workers: int, quick: bool) -> dict:
+    """One run of the profile study in a child process: wall time [s] and peak memory."""
+    with tempfile.TemporaryDirectory() as tmp:
+        target = Path(tmp) / "profile.h5"
+        cmd = [sys.executable, "-m", "partload.cli", "study", str(case), "--workers",
+               str(workers), "--output", str(target)]
+        if quick:
+            cmd += ["--limit", "876"]
+        # peak memory of the study process and its workers: time -v is not on
+        # every machine, so the child reports its own and its children's maxrss
+        wrapper = ("import resource, runpy, sys; sys.argv = ['partload'] + sys.argv[1:]; "
+                   "code = 0\n"
+                   "try:\n    runpy.run_module('partload.cli', run_name='__main__')\n"
+                   "except SystemExit as e:\n    code = e.code or 0\n"
+                   "s = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss\n"
+                   "c = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss\n"
+                   "print('PEAK_KB', s, c, file=sys.stderr)\nsys.exit(code)")
+        t = time.perf_counter()
+        proc = subprocess.run([sys.executable, "-c", wrapper, *cmd[3:]], cwd=ROOT,
+                              capture_output=True, text=True, timeout=900, env=_child_env())
+        wall = time.perf_counter() - t
+        peak = None
+        for line in proc.stderr.splitlines():
+            if line.startswith("PEAK_KB"):
+                _, s_kb, c_kb = line.split()
+                # upper bound of the total: the study process plus each worker at
+                # the largest worker's peak (ru_maxrss of children is their maximum)
+                peak = (int(s_kb) + (workers * int(c_kb) if workers > 1 else 0)) / 1024.0
+        return {
+            "wall_s": wall, "returncode": proc.returncode, "peak_memory_mb": peak,
+            "points": 876 if quick else 8760,
+            "file_mb": target.stat().st_size / 2**20 if target.exists() else None,
+            "stderr_tail": proc.stderr.strip().splitlines()[-3:],
+        }
+
+
 def bench_profile(quick: bool) -> dict:
-    """The 8,760-hour profile end to end, HDF5 included, on 1 and 2 workers."""
+    """The 8,760-hour profile end to end, HDF5 included, on 1 and 2 workers: median
+    wall time of three runs (one with ``quick``), the largest peak memory."""
     case = ROOT / "cases" / "reheat_hourly_profile.toml"
     out = {}
     if not case.exists():
         return {"error": f"{case.relative_to(ROOT)} not found"}
+    repeats = 1 if quick else 3
     for workers in (1, 2):
-        with tempfile.TemporaryDirectory() as tmp:
-            target = Path(tmp) / "profile.h5"
-            cmd = [sys.executable, "-m", "partload.cli", "study", str(case), "--workers",
-                   str(workers), "--output", str(target)]
-            if quick:
-                cmd += ["--limit", "876"]
-            # peak memory of the study process and its workers: time -v is not on
-            # every machine, so the child reports its own and its children's maxrss
-            wrapper = ("import resource, runpy, sys; sys.argv = ['partload'] + sys.argv[1:]; "
-                       "code = 0\n"
-                       "try:\n    runpy.run_module('partload.cli', run_name='__main__')\n"
-                       "except SystemExit as e:\n    code = e.code or 0\n"
-                       "s = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss\n"
-                       "c = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss\n"
-                       "print('PEAK_KB', s, c, file=sys.stderr)\nsys.exit(code)")
-            t = time.perf_counter()
-            proc = subprocess.run([sys.executable, "-c", wrapper, *cmd[3:]], cwd=ROOT,
-                                  capture_output=True, text=True, timeout=900,
-                                  env={**os.environ, "PYTHONPATH": str(ROOT)})
-            wall = time.perf_counter() - t
-            peak = None
-            for line in proc.stderr.splitlines():
-                if line.startswith("PEAK_KB"):
-                    _, s_kb, c_kb = line.split()
-                    # upper bound of the total: the study process plus each worker at
-                    # the largest worker's peak (ru_maxrss of children is their maximum)
-                    peak = (int(s_kb) + (workers * int(c_kb) if workers > 1 else 0)) / 1024.0
-            out[f"workers_{workers}"] = {
-                "wall_s": wall, "returncode": proc.returncode, "peak_memory_mb": peak,
-                "points": 876 if quick else 8760,
-                "file_mb": target.stat().st_size / 2**20 if target.exists() else None,
-                "stderr_tail": proc.stderr.strip().splitlines()[-3:],
-            }
+        runs = [_profile_run(case, workers, quick) for _ in range(repeats)]
+        walls = [r["wall_s"] for r in runs]
+        peaks = [r["peak_memory_mb"] for r in runs if r["peak_memory_mb"] is not None]
+        out[f"workers_{workers}"] = {
+            **runs[-1], "wall_s": statistics.median(walls), "wall_s_runs": walls,
+            "peak_memory_mb": max(peaks) if peaks else None,
+            "returncode": max(r["returncode"] for r in runs), "repeats": repeats}
     return out
 
 
 def bench_scaling(quick: bool) -> dict:
-    """Time per point on synthetic networks of growing size."""
+    """Time per point on synthetic networks of growing size: cold points (median
+    of three, from the design-scaled guess, after one untimed point that compiles
+    the equations) and warm points of a sweep from the neighbour (median)."""
     sizes = [10, 20, 50, 100, 200]
     rows = []
     for n in sizes:
         model = build_model(synthetic_model_data(n), file=f"synthetic-{n}")
         m_d = model.throttle.flow
-        t = time.perf_counter()
-        prev = solve_point(model, Conditions(throttle_flow=0.7 * m_d))
-        cold = time.perf_counter() - t
+        solve_point(model, Conditions(throttle_flow=0.69 * m_d))  # compiles the equations
+        colds = []
+        for f in (0.72, 0.71, 0.7):  # cold points: each from the design-scaled guess
+            t = time.perf_counter()
+            prev = solve_point(model, Conditions(throttle_flow=f * m_d))
+            colds.append(time.perf_counter() - t)
+        cold = statistics.median(colds)
         warm = []
         count = 10 if quick else 30
         for f in np.linspace(0.7, 0.95, count + 1)[1:]:
@@ -318,6 +361,66 @@ def bench_scaling(quick: bool) -> dict:
     warm_exp = float(np.polyfit(g, np.log([r["warm_ms"] for r in rows]), 1)[0])
     cold_exp = float(np.polyfit(g, np.log([r["cold_ms"] for r in rows]), 1)[0])
     return {"rows": rows, "warm_exponent": warm_exp, "cold_exponent": cold_exp}
+
+
+def bench_startup(quick: bool) -> dict:
+    """``partload point CASE`` and ``partload --help`` as whole processes, wall
+    clock, median of repeats (``python -m partload.cli``, output discarded)."""
+    case = ROOT / "cases" / "reheat_part_load.toml"
+    out = {}
+    repeats = 3 if quick else 7
+    for key, args in (("point_s", ["point", str(case)]), ("help_s", ["--help"])):
+        times = []
+        for _ in range(repeats):
+            t = time.perf_counter()
+            proc = subprocess.run([sys.executable, "-m", "partload.cli", *args], cwd=ROOT,
+                                  capture_output=True, env=_child_env(), timeout=120)
+            times.append(time.perf_counter() - t)
+            if proc.returncode:
+                return {"error": proc.stderr.decode(errors="replace")[-500:]}
+        out[key] = statistics.median(times)
+    return out
+
+
+def bench_accuracy(quick: bool) -> dict:
+    """Every point of the demo sweep and of the first profile chunk as a study
+    solves it (:func:`solve_chunk`), against plain dense Newton from the
+    design-scaled start (``solve_point(..., broyden=False)``): the largest
+    relative difference of node pressures, group flows and generator output,
+    and the points that either one fails to solve."""
+    worst = 0.0
+    failed_chunk = failed_plain = n = 0
+    for path, n_chunks in ((SWEEP_CASE, None), (PROFILE_CASE, 1)):
+        case = load_case(path)
+        plan = plan_study(case)
+        chunks = plan.chunks if n_chunks is None else plan.chunks[:n_chunks]
+        spec = _spec(case, plan)
+        for c in chunks:
+            conds = plan.conditions[c.start:c.stop]
+            if quick:
+                conds = conds[:40]
+            res = solve_chunk(spec, c, conds)
+            for k, cond in enumerate(conds):
+                n += 1
+                try:
+                    plain = solve_point(case.model, cond, broyden=False)
+                except SolveError:
+                    failed_plain += 1
+                    continue
+                if res.status[k] != 0:
+                    failed_chunk += 1
+                    continue
+                a = res.arrays
+                pairs = [(a["nodes/pressure"][k], plain.node_p),
+                         (a["stage_groups/flow"][k], plain.group_flow),
+                         (a["totals/generator_output"][k],
+                          plain.totals["generator_output"])]
+                for x, y in pairs:
+                    x, y = np.asarray(x, float), np.asarray(y, float)
+                    worst = max(worst, float(np.max(np.abs(x - y) / np.maximum(np.abs(y),
+                                                                               1e-300))))
+    return {"points": n, "largest_relative_difference": worst,
+            "failed_on_study_path_only": failed_chunk, "failed_by_plain_newton": failed_plain}
 
 
 class _Reached(Exception):
@@ -450,108 +553,186 @@ def bench_compare(quick: bool) -> dict:
     }
 
 
-def _target(name, value, target, smaller_is_better=True, unit=""):
-    met = (value is not None and not math.isnan(value)
-           and (value <= target if smaller_is_better else value >= target))
+def _get(report: dict, *keys):
+    """``report[k1][k2]...`` or ``None`` when a part was not measured."""
+    v = report
+    for k in keys:
+        if isinstance(v, list) and isinstance(k, int) and -len(v) <= k < len(v):
+            v = v[k]
+        elif isinstance(v, dict) and k in v:
+            v = v[k]
+        else:
+            return None
+    return v
+
+
+# (name, where in the report, target, smaller is better, unit): the targets of the issue
+# on speed, judged on the paths the command line runs
+TARGETS = [
+    ("8,760-point hourly profile with HDF5, 2 workers, wall", ("profile", "workers_2", "wall_s"),
+     5.0, True, "s"),
+    ("CPU a point on the study path (hourly profile, all in)",
+     ("study_path", "profile", "cpu_ms_per_point"), 0.5, True, "ms"),
+    ("warm point on the study path (hourly profile), median",
+     ("study_path", "profile", "warm_ms"), 0.3, True, "ms"),
+    ("residual evaluations a point, hourly profile, mean",
+     ("study_path", "profile", "evaluations_per_point"), 2.5, True, ""),
+    ("partload point CASE, whole process", ("startup", "point_s"), 0.4, True, "s"),
+    ("partload --help, whole process", ("startup", "help_s"), 0.2, True, "s"),
+    ("cold point, demo reheat unit, median", ("points", "cold_ms"), 3.0, True, "ms"),
+    ("cold point, 200 groups", ("scaling", "rows", -1, "cold_ms"), 30.0, True, "ms"),
+    ("cold exponent, 10-200 groups", ("scaling", "cold_exponent"), 1.15, True, ""),
+    ("warm exponent, 10-200 groups", ("scaling", "warm_exponent"), 1.15, True, ""),
+    ("peak memory of the profile, 2 workers", ("profile", "workers_2", "peak_memory_mb"),
+     200.0, True, "MB"),
+    ("largest relative difference to plain dense Newton",
+     ("accuracy", "largest_relative_difference"), 1e-9, True, ""),
+    ("points plain Newton solves that the study path fails",
+     ("accuracy", "failed_on_study_path_only"), 0, True, ""),
+]
+
+
+def _met(value, target, smaller_is_better) -> bool:
+    return (value is not None and not math.isnan(value)
+            and (value <= target if smaller_is_better else value >= target))
+
+
+def _target(name, value, target, smaller_is_better=True, unit="", baseline=None):
+    met = _met(value, target, smaller_is_better)
     if value is None:
         miss = "not measured"
     elif met:
         miss = ""
-    elif smaller_is_better:
-        miss = f"missed by {value - target:.3g} {unit} ({value / target:.2f}x the target)"
     else:
-        miss = f"missed by {target - value:.3g} {unit} ({value / target:.2f}x the target)"
+        miss = f"missed: {value / target:.2f}x the target" if target else "missed"
     return {"name": name, "value": value, "target": target, "unit": unit,
-            "comparison": "<=" if smaller_is_better else ">=", "met": bool(met), "miss": miss}
+            "comparison": "<=" if smaller_is_better else ">=", "met": bool(met), "miss": miss,
+            "baseline": baseline,
+            "baseline_met": None if baseline is None else _met(baseline, target,
+                                                               smaller_is_better)}
+
+
+def measure(quick: bool, skip_profile: bool) -> dict:
+    """Every measurement of this module, as one report."""
+    report = {}
+    for key, fn in (("startup", bench_startup), ("points", bench_points),
+                    ("study_path", bench_study_path), ("scaling", bench_scaling),
+                    ("accuracy", bench_accuracy), ("comparisons", bench_compare)):
+        print(f"{key} ...", flush=True)
+        report[key] = fn(quick)
+    if not skip_profile:
+        print("hourly profile ...", flush=True)
+        report["profile"] = bench_profile(quick)
+    return report
+
+
+def measure_baseline(ref: str, quick: bool, skip_profile: bool) -> dict:
+    """The same measurements on the package of git revision ``ref``, in a child."""
+    with tempfile.TemporaryDirectory() as tmp:
+        tree = Path(tmp) / "tree"
+        tree.mkdir()
+        archive = subprocess.run(["git", "-C", str(ROOT), "archive", ref, "simulator"],
+                                 capture_output=True, check=True).stdout
+        subprocess.run(["tar", "-x", "-C", str(tree)], input=archive, check=True)
+        (tree / "partload").symlink_to(tree / "simulator", target_is_directory=True)
+        out = Path(tmp) / "baseline.json"
+        cmd = [sys.executable, str(Path(__file__).resolve()), "--measure-only", str(out)]
+        cmd += (["--quick"] if quick else []) + (["--skip-profile"] if skip_profile else [])
+        subprocess.run(cmd, cwd=ROOT, check=True,
+                       env={**os.environ, "PARTLOAD_BENCHMARK_PATH": str(tree)})
+        return json.loads(out.read_text())
 
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller samples (smoke test)")
     ap.add_argument("--skip-profile", action="store_true", help="leave out the hourly year")
+    ap.add_argument("--baseline", metavar="REF", help="also measure git revision REF")
+    ap.add_argument("--measure-only", metavar="PATH", help=argparse.SUPPRESS)
     ap.add_argument("--output", default=str(ROOT / "results" / "benchmark.json"))
     args = ap.parse_args(argv)
     t0 = time.perf_counter()
+    if args.measure_only:
+        rep = measure(args.quick, args.skip_profile)
+        Path(args.measure_only).write_text(json.dumps(rep))
+        return 0
     report = {"software_version": __version__, "python": platform.python_version(),
               "machine": platform.machine(), "cpus": os.cpu_count(), "quick": args.quick,
-              "created": time.strftime("%Y-%m-%dT%H:%M:%S%z")}
-    print("points ...", flush=True)
-    report["points"] = bench_points(args.quick)
-    print("study path ...", flush=True)
-    report["study_path"] = bench_study_path(args.quick)
-    print("scaling ...", flush=True)
-    report["scaling"] = bench_scaling(args.quick)
-    print("comparisons ...", flush=True)
-    report["comparisons"] = bench_compare(args.quick)
-    if not args.skip_profile:
-        print("hourly profile ...", flush=True)
-        report["profile"] = bench_profile(args.quick)
-    pts, sc, cmp_ = report["points"], report["scaling"], report["comparisons"]
-    sp = report["study_path"]
-    prof = report.get("profile", {})
-    w2 = prof.get("workers_2", {})
-    targets = [
-        _target("warm point, study path (demo sweep), median", sp["sweep"]["warm_ms"], 2.0,
-                unit="ms"),
-        _target("cold point, median", pts["cold_ms"], 20.0, unit="ms"),
-        _target("8,760-point profile on 2 workers with HDF5", w2.get("wall_s"), 20.0, unit="s")
-        if not (args.quick or args.skip_profile) else None,
-        _target("scaling exponent 10-200 groups (warm points)", sc["warm_exponent"], 1.3),
-        _target("peak memory of the profile", w2.get("peak_memory_mb"), 400.0, unit="MB")
-        if not (args.quick or args.skip_profile) else None,
-        _target("fsolve / ours, both fresh FD Jacobian", cmp_["fresh_jacobian"]["ratio"], 3.0,
-                False, "x"),
-        _target("fsolve / ours, both given the same Jacobian", cmp_["given_jacobian"]["ratio"],
-                3.0, False, "x"),
-        _target("iapws backend time / seuif97 (warm points)", cmp_["iapws_ratio"], 300.0,
-                False, "x"),
-    ]
-    report["targets"] = [t for t in targets if t is not None]
+              "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"), "baseline_ref": args.baseline}
+    report.update(measure(args.quick, args.skip_profile))
+    base = None
+    if args.baseline:
+        print(f"baseline {args.baseline} ...", flush=True)
+        base = measure_baseline(args.baseline, args.quick, args.skip_profile)
+        report["baseline"] = base
+    def value(rep, where):  # a quick run's profile is 876 points: not the target's year
+        return None if rep is None or (args.quick and where[0] == "profile") else _get(
+            rep, *where)
+
+    report["targets"] = [
+        _target(name, value(report, where), target, smaller, unit, value(base, where))
+        for name, where, target, smaller, unit in TARGETS]
     report["benchmark_seconds"] = time.perf_counter() - t0
     out = Path(args.output)
     out.parent.mkdir(parents=True, exist_ok=True)
     out.write_text(json.dumps(report, indent=2))
+    _print(report)
+    print(f"wrote {out} ({report['benchmark_seconds']:.0f} s)")
+    return 0
+
+
+def _fmt(v) -> str:
+    return "-" if v is None else f"{v:.3g}"
+
+
+def _print(report: dict) -> None:
     print()
-    print(f"{'target':48s} {'measured':>12s} {'target':>10s}  met")
+    ref = report.get("baseline_ref")
+    print(f"{'target':56s} {('at ' + ref) if ref else '':>12s} {'measured':>10s} "
+          f"{'target':>10s}  met")
     for t in report["targets"]:
-        v = "-" if t["value"] is None else f"{t['value']:.3g}"
-        print(f"{t['name']:48s} {v:>12s} {t['comparison']}{t['target']:>9g}  "
+        print(f"{t['name']:56s} {_fmt(t['baseline']) if ref else '':>12s} "
+              f"{_fmt(t['value']):>10s} {t['comparison']}{t['target']:>8g}  "
               f"{'yes' if t['met'] else 'NO  ' + t['miss']}")
     print()
+    pts, sc, cmp_ = report["points"], report["scaling"], report["comparisons"]
     print(f"cold point: {pts['cold_iterations']} iterations, {pts['cold_evaluations']} residual "
           f"evaluations, {pts['cold_property_calls']} property calls")
     print(f"best case, not a study (fine sweep, load step {pts['warm_load_step']:.4f}, "
           f"neighbour predictor): warm point {pts['warm_ms']:.2f} ms, "
           f"{pts['warm_iterations']} iterations, {pts['warm_evaluations']} residual "
           f"evaluations, {pts['warm_property_calls']} property calls")
-    for v in sp.values():
+    for v in report["study_path"].values():
         print(f"study path, {v['case']} ({v['points']} points, {v['chunks']} chunks, "
               f"solve_chunk in this process): warm {v['warm_ms']:.2f} ms, "
               f"{v['warm_iterations']:g} iterations, {v['warm_evaluations']:g} evaluations "
               f"(medians); cold {v['cold_ms']:.2f} ms, {v['cold_evaluations_mean']:.1f} "
-              f"evaluations; all in {v['ms_per_point']:.2f} ms per point, of which "
+              f"evaluations; all in {v['ms_per_point']:.2f} ms per point "
+              f"({v['cpu_ms_per_point']:.2f} ms CPU), of which "
               f"{v['outside_solve_ms_per_point']:.2f} ms outside solve_point "
-              f"(cautions, result arrays)")
+              f"(cautions, result arrays); {v['evaluations_per_point']:.2f} evaluations "
+              f"a point")
     print("scaling (groups: cold ms / warm ms): " + ", ".join(
         f"{r['groups']}: {r['cold_ms']:.1f} / {r['warm_ms']:.2f}" for r in sc["rows"])
         + f"; exponents cold {sc['cold_exponent']:.2f}, warm {sc['warm_exponent']:.2f}")
+    acc = report["accuracy"]
+    print(f"accuracy: {acc['points']} study points against plain dense Newton, largest "
+          f"relative difference {acc['largest_relative_difference']:.1e}; failed on the "
+          f"study path only {acc['failed_on_study_path_only']}, by plain Newton "
+          f"{acc['failed_by_plain_newton']}")
     for policy in ("fresh_jacobian", "given_jacobian"):
         c = cmp_[policy]
         print(f"fsolve vs ours ({policy.replace('_', ' ')}; same start, stop at max|F| <= "
               f"{TOL:g}; {cmp_['fsolve_points']} warm points of the demo sweep): "
               f"{c['fsolve_ms_per_point']:.2f} / {c['ours_ms_per_point']:.2f} ms = "
               f"{c['ratio']:.2f}x; evaluations {c['fsolve_evaluations_per_point']:.1f} / "
-              f"{c['ours_evaluations_per_point']:.1f}, Jacobians "
-              f"{c['fsolve_jacobians_per_point']:.1f} / {c['ours_jacobians_per_point']:.1f}; "
-              f"fsolve reached the tolerance on {c['fsolve_reached_tolerance']} of "
-              f"{cmp_['fsolve_points']}")
-    print(f"backends agree on pressures to {cmp_['backends_pressure_agreement']:.1e}")
-    for k, v in prof.items():
+              f"{c['ours_evaluations_per_point']:.1f}")
+    print(f"iapws backend / seuif97 (warm points): {cmp_['iapws_ratio']:.0f}x; backends agree "
+          f"on pressures to {cmp_['backends_pressure_agreement']:.1e}")
+    for k, v in report.get("profile", {}).items():
         if isinstance(v, dict):
             print(f"profile {k}: {v['points']} points in {v['wall_s']:.1f} s, peak "
                   f"{v['peak_memory_mb']} MB, exit {v['returncode']}")
-    print(f"wrote {out} ({report['benchmark_seconds']:.0f} s)")
-    return 0
 
 
 if __name__ == "__main__":

@@ -56,7 +56,22 @@ class Where:
 
 @functools.lru_cache(maxsize=1)
 def _registry():
-    import pint
+    """The pint unit registry, built once per process on first use.
+
+    pint looks for Dask when it is imported and imports it when found; partload
+    passes pint no Dask arrays, so Dask is hidden while pint is imported (it is
+    imported later, and only by the commands that use it).
+    """
+    import sys
+
+    hide = "dask" not in sys.modules
+    if hide:
+        sys.modules["dask"] = None  # import dask raises ImportError; find_spec gives None
+    try:
+        import pint
+    finally:
+        if hide and sys.modules.get("dask", 0) is None:
+            del sys.modules["dask"]
 
     ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
     ureg.define("bara = bar")
@@ -65,6 +80,25 @@ def _registry():
     ureg.define("MPaa = MPa")
     return ureg
 
+
+# Units read without pint: unit -> (dimensions, factor, offset), SI = value * factor +
+# offset.  Each gives the same float as pint's conversion, bit for bit (tests/test_units.py
+# compares them); any other unit, and every mistake, goes through pint.
+_PRESSURE = ("pressure", "pressure_difference")
+_FAST = {
+    "Pa": (_PRESSURE, 1.0, 0.0), "kPa": (_PRESSURE, 1e3, 0.0), "MPa": (_PRESSURE, 1e6, 0.0),
+    "bar": (_PRESSURE, 1e5, 0.0), "bara": (_PRESSURE, 1e5, 0.0), "mbar": (_PRESSURE, 1e2, 0.0),
+    "kPaa": (_PRESSURE, 1e3, 0.0), "MPaa": (_PRESSURE, 1e6, 0.0),
+    "K": (("temperature",), 1.0, 0.0), "degC": (("temperature",), 1.0, 273.15),
+    "kg/s": (("mass_flow",), 1.0, 0.0), "t/h": (("mass_flow",), 1000.0 / 3600.0, 0.0),
+    "kg/h": (("mass_flow",), 1.0 / 3600.0, 0.0),
+    "W": (("power",), 1.0, 0.0), "kW": (("power",), 1e3, 0.0), "MW": (("power",), 1e6, 0.0),
+    "m^2": (("area",), 1.0, 0.0), "m/s": (("velocity",), 1.0, 0.0),
+    "J/kg": (("specific_enthalpy",), 1.0, 0.0), "kJ/kg": (("specific_enthalpy",), 1e3, 0.0),
+    "W/K": (("heat_transfer_coefficient_area",), 1.0, 0.0),
+    "kW/K": (("heat_transfer_coefficient_area",), 1e3, 0.0),
+    "MW/K": (("heat_transfer_coefficient_area",), 1e6, 0.0),
+}
 
 # dimension name -> (SI unit, example written in files)
 DIMENSIONS = {
@@ -177,15 +211,19 @@ def parse(value, dimension: str, where: Where, atmosphere: float | None = None) 
                 f"absolute unit such as bar or psia")
         number_abs = parse(f"{number} {_GAUGE[unit.lower()]}", "pressure", where)
         return number_abs + atmosphere
-    ureg = _registry()
-    try:
-        q = ureg.Quantity(number, unit.replace("^", "**") if unit else "dimensionless")
-        si = q.to(DIMENSIONS[dimension][0].replace("^", "**"))
-    except Exception:  # pint raises several types; all mean the same to the user
-        raise where.error(
-            f"expected {_article(dimension)} {dimension.replace('_', ' ')} such as {example!r}, "
-            f"got {value!r}{_what_unit(unit, dimension)}") from None
-    result = float(si.magnitude)
+    fast = _FAST.get(unit)
+    if fast is not None and dimension in fast[0]:
+        result = number * fast[1] + fast[2]
+    else:
+        ureg = _registry()
+        try:
+            q = ureg.Quantity(number, unit.replace("^", "**") if unit else "dimensionless")
+            si = q.to(DIMENSIONS[dimension][0].replace("^", "**"))
+        except Exception:  # pint raises several types; all mean the same to the user
+            raise where.error(
+                f"expected {_article(dimension)} {dimension.replace('_', ' ')} such as "
+                f"{example!r}, got {value!r}{_what_unit(unit, dimension)}") from None
+        result = float(si.magnitude)
     if not math.isfinite(result):
         raise where.error(f"{value!r} is not a finite number")
     if dimension in ("temperature", "pressure") and result <= 0.0:

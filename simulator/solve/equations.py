@@ -32,7 +32,7 @@ from ..errors import SolveError
 from ..plant.case import Conditions
 from ..plant.model import Model
 from ..plant.water_side import FeedwaterMarch, heat_rejected
-from ..steam.if97 import SteamTables
+from ..steam.if97 import SteamTables, remembering
 
 __all__ = ["PointEquations", "equations_for", "TrialPointError"]
 
@@ -61,6 +61,8 @@ class PointEquations:
         self.model = model
         self.wide_open = frozenset(wide_open)  # control valves that are wide open
         self.steam = steam
+        self.raw_steam = steam
+        self.memo_steam = remembering(steam)  # while a Jacobian is formed
         self.mode = mode
         g = model.graph
         names = model.order
@@ -150,6 +152,24 @@ class PointEquations:
         self.unknown_names = ([f"ln p({names[i]})" for i in self.free]
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
+        # the first node of the march each unknown touches: a node's pressure is read
+        # by the components leaving it and by those entering it (evaluated at their
+        # inlet, earlier in the order); a heater's bleed at its extraction node; the
+        # throttle flow at the source.  A finite-difference column re-marches from there.
+        pred_first = list(range(N))
+        for i in range(N):
+            for _c, j in self.outs[i]:
+                pred_first[j] = min(pred_first[j], i)
+        self.first_node = [pred_first[i] for i in self.free]
+        for k in range(self.n_h):
+            self.first_node.append(min((i for _n, i, kind, v in self.bleeds
+                                        if kind == 2 and v == k), default=0))
+        if self.flow_unknown:
+            self.first_node.append(0)
+        self.structured = True  # False: every column marches the whole graph
+        self._snaps = None  # march states at the start of nodes, while a Jacobian is formed
+        self._resume = 0  # the node a Jacobian column's march starts at
+        self._resume_from: dict = {}  # its kept states, by node
         self._last = None
         self.set_conditions(cond)
 
@@ -234,6 +254,50 @@ class PointEquations:
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.995))
         return x
 
+    def fd_jacobian(self, fun, x: np.ndarray, F: np.ndarray | None):
+        """Residuals and forward-difference Jacobian at ``x`` [-]: ``(F, J)``, with
+        ``J`` equal to :func:`~simulator.solve.newton.fd_jacobian` bit for bit.
+
+        The base point is marched with the property calls remembered
+        (:class:`~simulator.steam.if97.MemoTables`) and the march state kept at
+        the first node each unknown touches; each column then re-marches from
+        there and asks the backend only for the states its perturbed unknown
+        changes (those downstream of it, and the water side).  ``fun`` is the
+        residual function Newton counts evaluations with; ``F = fun(x)`` [-]
+        when known (the base is marched once more), ``None`` otherwise.
+        """
+        from .newton import fd_jacobian
+
+        memo = self.memo_steam
+        memo.clear()
+        self.steam = memo
+        try:
+            if not self.structured:
+                base = fun(x)  # fills the memo with the base point's states
+                F = base if F is None else F
+                return F, fd_jacobian(fun, x, F)
+            self._snaps = {i: None for i in self.first_node if i > 0}
+            base = fun(x)  # fills the memo and keeps the march state at each first node
+            F = base if F is None else F
+            self._resume_from, self._snaps = self._snaps, None
+            step = 1e-7  # as fd_jacobian
+            n = x.size
+            J = np.empty((F.size, n))
+            xp = x.copy()
+            for j in range(n):
+                xp[j] = x[j] + step
+                self._resume = self.first_node[j]
+                try:
+                    J[:, j] = (fun(xp) - F) / step
+                finally:
+                    self._resume = 0
+                xp[j] = x[j]
+            return F, J
+        finally:
+            self._snaps = None
+            self.steam = self.raw_steam
+            memo.clear()
+
     # ---------------------------------------------------------------- residuals
     def residuals(self, x: np.ndarray) -> np.ndarray:
         try:
@@ -276,23 +340,32 @@ class PointEquations:
                 heater_bleed[v] = b
             bleed_flow.append(b)
             bleed_node[i] += b
-        M = [0.0] * N
-        E = [0.0] * N
-        h = [0.0] * N
-        hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
-        hl = [math.nan] * N
         src = self.src
-        M[src] = m_T
-        h[src] = steam.h_pT(p[src], self.T_throttle)
-        F = [0.0] * self.n_res
+        start = self._resume
+        snaps = self._snaps  # a base point of a Jacobian: keep states to resume from
+        if start:  # a Jacobian column: the march before node `start` is the base point's
+            M, E, h, hv, hl, F, shaft, n_steps, steps = self._resume_from[start]
+            M, E, h, hv, hl, F = M[:], E[:], h[:], hv[:], hl[:], F[:]
+            steps = steps[:n_steps]
+        else:
+            M = [0.0] * N
+            E = [0.0] * N
+            h = [0.0] * N
+            hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
+            hl = [math.nan] * N
+            M[src] = m_T
+            h[src] = steam.h_pT(p[src], self.T_throttle)
+            F = [0.0] * self.n_res
+            shaft = 0.0
+            steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
         row_of = self.row_of
         passes_net = self.passes_net
         p_design = self.p_design
-        shaft = 0.0
-        steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
         self.p, self.h, self.hv, self.hl = p, h, hv, hl  # what the components read
         trace = 1e-9 * md  # a flow this small means no steam reaches the node
-        for i in range(N):
+        for i in range(start, N):
+            if snaps is not None and i in snaps:
+                snaps[i] = (M[:], E[:], h[:], hv[:], hl[:], F[:], shaft, len(steps), steps)
             if i != src:
                 if M[i] <= trace:
                     raise TrialPointError(f"no steam reaches node {self.names[i]!r}")

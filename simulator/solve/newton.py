@@ -56,7 +56,8 @@ def fd_jacobian(fun: Callable[[np.ndarray], np.ndarray], x: np.ndarray, F: np.nd
 
 def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: float = 1e-10,
            max_iter: int = 50, names: Sequence[str] = (), jacobian: np.ndarray | None = None,
-           broyden: bool = True, max_step: float = 0.5) -> NewtonResult:
+           broyden: bool = True, max_step: float = 0.5,
+           jacobian_fn: Callable | None = None) -> NewtonResult:
     """Solve ``fun(x) = 0`` to ``max|fun| <= tol``.
 
     Parameters
@@ -72,6 +73,11 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
     broyden : keep the Jacobian current by Broyden's update between fresh
         finite-difference Jacobians
     max_step : largest change of any unknown in one step
+    jacobian_fn : ``jacobian_fn(f, x, F)`` returns ``(F, J)``: the residuals and
+        the finite-difference Jacobian at ``x`` (the differences of
+        :func:`fd_jacobian`), evaluating through ``f`` so that its evaluations
+        are counted; ``F`` is ``None`` at a start without a Jacobian, where the
+        base evaluation is its own
 
     Raises
     ------
@@ -86,10 +92,15 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
         evals += 1
         return fun(z)
 
-    F = call(x)
     J = None if jacobian is None else np.array(jacobian, dtype=float)
     fresh = False
     njac = 0
+    if J is None and jacobian_fn is not None:  # a Jacobian first: one base evaluation
+        F, J = jacobian_fn(call, x, None)
+        njac = 1
+        fresh = True
+    else:
+        F = call(x)
     it = 0
     while True:
         res = float(np.max(np.abs(F))) if F.size else 0.0
@@ -101,7 +112,8 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             worst = names[int(np.argmax(np.abs(F)))] if len(names) else "?"
             raise ConvergenceError("Newton's method did not converge", it, res, worst)
         if J is None:
-            J = fd_jacobian(call, x, F)
+            J = (fd_jacobian(call, x, F) if jacobian_fn is None
+                 else jacobian_fn(call, x, F)[1])
             njac += 1
             fresh = True
         try:

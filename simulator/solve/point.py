@@ -12,6 +12,8 @@ can give, or one beyond the throttle valves, raises :class:`InfeasibleError`.
 
 from __future__ import annotations
 
+import contextlib
+import functools
 import math
 
 import numpy as np
@@ -95,6 +97,39 @@ def valve_points(model: Model, cond: Conditions, steam: SteamTables | str | None
     return out
 
 
+_BLAS: list = []  # the process's BLAS thread controller, made on first use
+
+
+def one_blas_thread():
+    """A context in which the BLAS libraries numpy uses run on one thread.
+
+    The systems here are small (tens to a few hundred unknowns): threads of a
+    multi-threaded BLAS then cost more than they save, and on a busy machine a
+    solve waits for them (threadpoolctl; a no-op without it).  The previous
+    thread counts come back on leaving.
+    """
+    if not _BLAS:
+        try:
+            from threadpoolctl import ThreadpoolController
+            _BLAS.append(ThreadpoolController().select(user_api="blas"))
+        except Exception:  # noqa: BLE001 - threadpoolctl missing or failing: leave BLAS as is
+            _BLAS.append(None)
+    blas = _BLAS[0]
+    if blas is None or not blas.lib_controllers:
+        return contextlib.nullcontext()
+    return blas.limit(limits=1)
+
+
+def _on_one_blas_thread(f):
+    """``f`` run inside :func:`one_blas_thread`."""
+    @functools.wraps(f)
+    def run(*args, **kwargs):
+        with one_blas_thread():
+            return f(*args, **kwargs)
+    return run
+
+
+@_on_one_blas_thread
 def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
                 guess: np.ndarray | None = None, jacobian: np.ndarray | None = None,
                 broyden: bool = True, check_limits: bool = True,
@@ -219,12 +254,12 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
                        and np.shape(jacobian) == shape) else None
     try:
         nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
-                    broyden=broyden)
+                    broyden=broyden, jacobian_fn=eq.fd_jacobian)
     except ConvergenceError:
         if not usable:
             raise
         nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
-                    broyden=broyden)
+                    broyden=broyden, jacobian_fn=eq.fd_jacobian)
     F, st = eq.evaluate(nr.x, detail=True)
     return nr, st, F, scaled
 

@@ -37,8 +37,8 @@ import math
 from ..errors import InputError, PropertyRangeError
 from .constants import H_ABOVE_SAT_VAP, P_CRIT, P_MAX, P_MIN, T_CRIT, T_MAX, T_MIN
 
-__all__ = ["SteamTables", "get_backend", "BACKENDS", "P_MIN", "P_MAX", "T_MIN", "T_MAX",
-           "P_CRIT", "T_CRIT"]
+__all__ = ["SteamTables", "MemoTables", "remembering", "get_backend", "BACKENDS", "P_MIN",
+           "P_MAX", "T_MIN", "T_MAX", "P_CRIT", "T_CRIT"]
 
 # seuif97 works in MPa and kJ/kg: the critical pressure and the enthalpy above every
 # saturated vapour (see :mod:`simulator.steam.constants`) in those units
@@ -367,6 +367,59 @@ class IapwsTables(SteamTables):
 
     def v_liq_sat(self, p):
         return self._sat(p, 0.0, "saturated liquid volume").v
+
+
+class MemoTables(SteamTables):
+    """A backend that remembers its last answers: the same call with the same
+    arguments returns the same float without asking ``inner`` again.
+
+    One residual evaluation of a point asks for many identical states (a node's
+    volume for each component leaving it, the saturation properties of a heater
+    for its shell and its drain), and each column of a finite-difference
+    Jacobian repeats every call upstream of the unknown it perturbs.  The answers
+    are those of ``inner`` bit for bit; errors are not remembered.  Each method
+    keeps at most ``size`` answers and starts afresh when full.
+
+    Parameters
+    ----------
+    inner : the backend asked for answers not yet remembered [-]
+    size : answers kept per method [-]
+    """
+
+    METHODS = ("h_pT", "s_pT", "v_pT", "T_ph", "s_ph", "v_ph", "x_ph", "h_ps", "vs_ph",
+               "Tsx_ph", "T_sat", "h_liq_sat", "h_vap_sat", "v_liq_sat")
+
+    def __init__(self, inner: SteamTables, size: int = 8192):
+        self.inner = inner
+        self.name = inner.name
+        self._memos: list[dict] = []
+        for method in self.METHODS:
+            setattr(self, method, self._remembering(getattr(inner, method), size))
+
+    def _remembering(self, f, size):
+        memo: dict = {}
+        self._memos.append(memo)
+        get = memo.get
+
+        def call(*args):
+            r = get(args)
+            if r is None:
+                if len(memo) >= size:
+                    memo.clear()
+                r = memo[args] = f(*args)
+            return r
+
+        return call
+
+    def clear(self) -> None:
+        """Forget every remembered answer."""
+        for memo in self._memos:
+            memo.clear()
+
+
+def remembering(steam: SteamTables) -> SteamTables:
+    """``steam`` wrapped in a :class:`MemoTables` (itself when it already is one)."""
+    return steam if isinstance(steam, MemoTables) else MemoTables(steam)
 
 
 BACKENDS = {"seuif97": Seuif97Tables, "iapws": IapwsTables}

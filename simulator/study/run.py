@@ -28,6 +28,7 @@ from .plan import Chunk
 __all__ = [
     "ChunkResult",
     "Continuation",
+    "SolutionFit",
     "SolveSpec",
     "init_worker",
     "keep_model",
@@ -113,10 +114,102 @@ def _boundary(cond: Conditions) -> tuple:
             cond.minimum_throttle_pressure)
 
 
+def _family(cond: Conditions) -> tuple:
+    """Everything of ``cond`` but its numbers (load, pressures, temperatures):
+    points that share it have the same unknowns, so that their solutions can be
+    fitted as a function of those numbers (:class:`Continuation`)."""
+    return (cond.valve_mode, cond.pressure_mode, cond.output is None,
+            cond.throttle_flow is None, cond.extraction_control, cond.heaters_out,
+            cond.held_pressures, cond.settings)
+
+
+def _numbers(model: Model, cond: Conditions) -> np.ndarray:
+    """The numbers of ``cond`` that a family varies, each over its design value [-]
+    (a number the case leaves unset is its design value, 1)."""
+    th = model.throttle
+    load = (cond.output / model.generator.rating if cond.output is not None
+            else (cond.throttle_flow or 0.0) / th.flow)
+    exhaust = model.design_pressure[model.exhaust_nodes[0]]
+    return np.array([
+        load,
+        1.0 if cond.exhaust_pressure is None else cond.exhaust_pressure / exhaust,
+        1.0 if cond.throttle_pressure is None else cond.throttle_pressure / th.pressure,
+        1.0 if cond.throttle_temperature is None else cond.throttle_temperature / th.temperature,
+        1.0 if cond.reheat_temperature is None else cond.reheat_temperature / th.temperature,
+    ])
+
+
+class SolutionFit:
+    """The solutions of a family of points as a function of their numbers.
+
+    Keeps the last :attr:`KEEP` solved points of one family (:func:`_family`)
+    and predicts the unknowns of a new point by a least-squares fit through
+    the points nearest it: a plane through the :attr:`NEAR` nearest, or a
+    quadratic through :attr:`NEAR_QUADRATIC` of them when that many are kept.
+    In an hourly profile, where load and condenser pressure change together,
+    this starts Newton about a hundred times closer than the last solution
+    scaled by the ellipse law (measured on the demo profile).
+    """
+
+    KEEP = 64
+    NEAR = 3
+    NEAR_QUADRATIC = 8
+
+    def __init__(self):
+        self.family = None
+        self.numbers: list[np.ndarray] = []
+        self.solutions: list[np.ndarray] = []
+        self.valves = None
+
+    def add(self, family: tuple, numbers: np.ndarray, r: PointResult) -> None:
+        """Keep the solved point ``r`` of ``family`` with its ``numbers`` [-]."""
+        if r.unknowns is None:
+            return
+        if (family != self.family or r.wide_open_valves != self.valves
+                or (self.solutions and len(r.unknowns) != len(self.solutions[0]))):
+            self.family, self.valves = family, r.wide_open_valves
+            self.numbers, self.solutions = [], []
+        self.numbers.append(numbers)
+        self.solutions.append(np.array(r.unknowns, dtype=float))
+        if len(self.numbers) > self.KEEP:
+            del self.numbers[0], self.solutions[0]
+
+    def predict(self, family: tuple, numbers: np.ndarray) -> np.ndarray | None:
+        """Predicted unknowns of a point of ``family`` at ``numbers`` [-], or ``None``
+        when fewer than :attr:`NEAR` + 1 points of the family are kept."""
+        if family != self.family or len(self.numbers) <= self.NEAR:
+            return None
+        T = np.array(self.numbers)
+        X = np.array(self.solutions)
+        d = T - numbers
+        varying = np.ptp(T, axis=0) > 0.0
+        d = d[:, varying]
+        dist = np.einsum("ij,ij->i", d, d)
+        if len(X) >= self.NEAR_QUADRATIC and d.shape[1] <= 2:
+            near = np.argsort(dist, kind="stable")[:self.NEAR_QUADRATIC]
+            t = d[near]
+            cols = [np.ones(len(near))] + [t[:, a] for a in range(t.shape[1])]
+            cols += [t[:, a] * t[:, b] for a in range(t.shape[1]) for b in range(a, t.shape[1])]
+            A = np.column_stack(cols)
+        else:
+            near = np.argsort(dist, kind="stable")[:self.NEAR + 1]
+            A = np.column_stack([np.ones(len(near)), d[near]])
+        C, _res, rank, _sv = np.linalg.lstsq(A, X[near], rcond=None)
+        if rank < A.shape[1]:
+            return None
+        x = C[0]
+        return x if np.all(np.isfinite(x)) else None
+
+
 class Continuation:
     """Solves points one after another, each starting from the last one solved.
 
-    Three starts are tried in turn, and the first that gives an answer wins:
+    Starts are tried in turn, and the first that gives an answer wins.  When
+    this point differs from the last one in more than the load (a profile:
+    load and condenser pressure change together), the first start is the fit
+    of the family's solutions (:class:`SolutionFit`) with the last point's
+    Jacobian; a start that is not physical or fails moves on to the three
+    starts below:
 
     1. the last solution scaled to this load by the ellipse law, plus the
        secant (and quadratic) predictor along the load
@@ -150,17 +243,31 @@ class Continuation:
         self.last: PointResult | None = None
         self.last_boundary: tuple | None = None
         self.slope_ok = False  # the last solution's slope is along the load alone
+        self.fit = SolutionFit()
+        self.fitted = True  # False: never start from the fit
 
     def solve(self, cond: Conditions) -> PointResult:
         """Solve ``cond`` from the last solution; remember the answer."""
         last = self.last
         boundary = _boundary(cond)
+        self._family, self._numbers = _family(cond), _numbers(self.model, cond)
         kw = {"check_limits": self.check_limits}
         if last is None:
             r = solve_point(self.model, cond, self.steam, **kw)
             self._keep(r, boundary, False)
             return r
         same = boundary == self.last_boundary
+        if self.fitted and not (same and self.slope_ok):
+            start = self.fit.predict(self._family, self._numbers)
+            if start is not None and last.wide_open_valves == self.fit.valves:
+                try:
+                    r = solve_point(self.model, cond, self.steam, guess=start,
+                                    jacobian=last.jacobian, neighbour=last, **kw)
+                except SolveError:
+                    pass
+                else:
+                    self._keep(r, boundary, same)
+                    return r
         neighbour = last if (same and self.slope_ok) else dataclasses.replace(
             last, unknowns_slope=None, unknowns_curvature=None)
         try:
@@ -185,6 +292,7 @@ class Continuation:
 
     def _keep(self, r: PointResult, boundary: tuple, slope_ok: bool) -> None:
         self.last, self.last_boundary, self.slope_ok = r, boundary, slope_ok
+        self.fit.add(self._family, self._numbers, r)
 
 
 def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions]) -> ChunkResult:

@@ -1,0 +1,99 @@
+"""The study's continuation: the fit of a family's solutions starts points of a
+profile, and every answer equals the point solved alone."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from partload.plant.case import Conditions, load_case
+from partload.solve.point import solve_point
+from partload.solve.result import PointResult
+from partload.steam.if97 import get_backend
+from partload.study import plan_study, solve_order
+from partload.study.run import Continuation, SolutionFit
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def _result(x):
+    return PointResult(converged=True, iterations=0, residual=0.0, evaluations=0,
+                       message="", model_name="m", valve_mode="throttle",
+                       pressure_mode="sliding", backend="seuif97", tables={}, totals={},
+                       heaters=[], unknowns=np.asarray(x, float))
+
+
+def test_fit_reproduces_a_plane():
+    # identity: solutions that are linear in the numbers are predicted exactly
+    # (least squares through points of a plane), at a point away from all of them
+    fit = SolutionFit()
+    rng = np.random.default_rng(3)
+    a, B = np.array([1.0, -2.0, 0.5]), rng.normal(size=(5, 3))
+    for _ in range(5):
+        t = np.concatenate([rng.uniform(0.4, 1.0, 2), [1.0, 1.0, 1.0]])
+        fit.add("f", t, _result(a + t @ B))
+    t = np.array([0.7, 0.9, 1.0, 1.0, 1.0])
+    np.testing.assert_allclose(fit.predict("f", t), a + t @ B, rtol=1e-12)
+
+
+def test_fit_reproduces_a_quadratic_with_enough_points():
+    # identity: with eight points kept the fit is quadratic in two numbers
+    fit = SolutionFit()
+    rng = np.random.default_rng(5)
+
+    def f(t):
+        return np.array([1.0 + t[0] - 3.0 * t[1] + 2.0 * t[0] * t[1] + t[1] ** 2, t[0] ** 2])
+
+    for _ in range(12):
+        t = np.concatenate([rng.uniform(0.4, 1.0, 2), [1.0, 1.0, 1.0]])
+        fit.add("f", t, _result(f(t)))
+    t = np.array([0.66, 0.77, 1.0, 1.0, 1.0])
+    np.testing.assert_allclose(fit.predict("f", t), f(t), rtol=1e-10)
+
+
+def test_fit_forgets_another_family():
+    # a point of another family (other heaters out, other unknowns) starts afresh
+    fit = SolutionFit()
+    for k in range(5):
+        fit.add("a", np.array([0.5 + 0.1 * k, 1, 1, 1, 1.0]), _result([k, k]))
+    assert fit.predict("a", np.array([0.75, 1, 1, 1, 1.0])) is not None
+    assert fit.predict("b", np.array([0.75, 1, 1, 1, 1.0])) is None
+    fit.add("b", np.array([0.5, 1, 1, 1, 1.0]), _result([1.0, 2.0, 3.0]))
+    assert fit.predict("a", np.array([0.75, 1, 1, 1, 1.0])) is None
+
+
+def test_profile_points_from_the_fit_equal_points_solved_alone():
+    # the demo hourly profile (load and condenser pressure change together): every
+    # point of a chunk solved by the continuation equals the point solved cold to
+    # 1e-9, and the fit starts most of them (the continuation's own counts)
+    case = load_case(ROOT / "cases" / "reheat_hourly_profile.toml")
+    plan = plan_study(case)
+    conds = plan.conditions[:60]
+    chain = Continuation(case.model, get_backend("seuif97"))
+    plain = Continuation(case.model, get_backend("seuif97"))
+    plain.fitted = False
+    ev_fit, ev_plain = [], []
+    for i in solve_order(conds):
+        warm = chain.solve(conds[i])
+        ev_fit.append(warm.evaluations)
+        ev_plain.append(plain.solve(conds[i]).evaluations)
+        cold = solve_point(case.model, conds[i], broyden=False)
+        np.testing.assert_allclose(warm.node_p, cold.node_p, rtol=1e-9)
+        np.testing.assert_allclose(warm.group_flow, cold.group_flow, rtol=1e-9)
+        assert warm.totals["heat_rate"] == pytest.approx(cold.totals["heat_rate"], rel=1e-9)
+    # fewer residual evaluations than from the last solution scaled (regression of the
+    # method: counts, not timings)
+    assert sum(ev_fit[10:]) < sum(ev_plain[10:])
+
+
+def test_sweep_keeps_the_load_predictor(reheat_model):
+    # points that differ only in load keep the secant predictor (the fit is not asked):
+    # the answers equal the points solved alone
+    chain = Continuation(reheat_model, get_backend("seuif97"))
+    m_d = reheat_model.throttle.flow
+    for f in np.linspace(0.5, 0.9, 9):
+        cond = Conditions(throttle_flow=f * m_d)
+        warm = chain.solve(cond)
+        cold = solve_point(reheat_model, cond, broyden=False)
+        np.testing.assert_allclose(warm.node_p, cold.node_p, rtol=1e-9)
