@@ -40,7 +40,8 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
     from .study import StudyPlan, StudySummary
 
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
-           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS"]
+           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS", "open_dataset",
+           "to_dataframe"]
 
 
 
@@ -508,3 +509,58 @@ def open_result(path: str | Path) -> StudyData:
         The file is missing, not HDF5, damaged, or another program's.
     """
     return _store().read_study(path)
+
+
+def open_dataset(path: str | Path, group: str = "totals", units: str = "si"):
+    """One group of a study result as an ``xarray.Dataset`` (needs
+    ``pip install 'partload[notebook]'``).
+
+    Parameters
+    ----------
+    path : the HDF5 result file [-]
+    group : ``"totals"`` (default), ``"inputs"``, ``"solver"``, ``"nodes"``, a
+        kind's result group (``"stage_groups"``, ``"heaters"``, ...) or
+        ``"cautions"`` [-]
+    units : ``"si"`` (as stored, default), ``"metric"`` or ``"us"`` [-]
+
+    Returns
+    -------
+    xarray.Dataset
+        Dimensions ``point`` and the group's items; coordinates ``point``, the
+        items, ``label`` and ``series``; ``units`` (CF spelling) and
+        ``long_name`` on every variable.
+
+    Raises
+    ------
+    ResultFileError
+        The file is missing, not HDF5, damaged, or another program's.
+    InputError
+        An unknown group or units system, or xarray not installed.
+    """
+    from .store.notebook import open_dataset as _open_dataset
+
+    return _open_dataset(path, group, units)
+
+
+def to_dataframe(path: str | Path, group: str = "totals", units: str = "si",
+                 solved_only: bool = False):
+    """One group of a study result as a ``pandas.DataFrame``, a row a point
+    (needs ``pip install 'partload[notebook]'``).
+
+    Parameters
+    ----------
+    path : the HDF5 result file [-]
+    group : as for :func:`open_dataset` [-]
+    units : ``"si"`` (default), ``"metric"`` or ``"us"`` [-]
+    solved_only : keep only the points that converged [-]
+
+    Returns
+    -------
+    pandas.DataFrame
+        Index ``point``; columns ``label``, ``series`` and the group's
+        quantities (``"<quantity> <item>"`` for one column an item);
+        ``df.attrs["units"]`` maps a column to its unit.
+    """
+    from .store.notebook import to_dataframe as _to_dataframe
+
+    return _to_dataframe(path, group, units, solved_only)

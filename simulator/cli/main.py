@@ -34,7 +34,8 @@ def _cmd_check(args) -> int:
     if args.json:
         print(json.dumps({"model": model.name, "file": model.file,
                           "warnings": list(model.warnings),
-                          "design": point_to_dict(result, "design")}, indent=2))
+                          "design": point_to_dict(result, "design", units=args.units)},
+                         indent=2))
         return 0
     print(format_model(model))
     if model.warnings:
@@ -44,7 +45,7 @@ def _cmd_check(args) -> int:
     print()
     print("Design heat balance as calibrated")
     print("=================================")
-    print(format_point(result, "design"))
+    print(format_point(result, "design", units=args.units))
     if model.stated_output is not None:
         diff = result.totals["generator_output"] - model.stated_output
         print(f"\nstated design output {model.stated_output / 1e6:.3f} MW; calibrated model gives "
@@ -68,9 +69,9 @@ def _cmd_point(args) -> int:
     result = solve_point(case.model, case.conditions, backend)
     cautions = _cautions(case.model, case.conditions, result)
     if args.json:
-        print(json.dumps(point_to_dict(result, case.name, cautions), indent=2))
+        print(json.dumps(point_to_dict(result, case.name, cautions, args.units), indent=2))
     else:
-        print(format_point(result, case.name, cautions))
+        print(format_point(result, case.name, cautions, args.units))
     return 0
 
 
@@ -101,6 +102,14 @@ def _say(text: str) -> None:
     print(text.encode("utf-8", "backslashreplace").decode("utf-8"), file=sys.stderr)
 
 
+def add_units_option(c) -> None:
+    """The ``--units`` choice of a command that shows results."""
+    c.add_argument("--units", choices=("metric", "us"), default="metric",
+                   help="display units: metric (bar, degC, kJ/kg, t/h as kg/s, kJ/kWh; "
+                        "default) or us (psia, degF, Btu/lb, klb/h, Btu/kWh, inHg for back "
+                        "pressure)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="partload",
@@ -117,6 +126,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--backend", default="seuif97", help="steam property backend: seuif97 "
                                                         "(default) or iapws")
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    add_units_option(c)
     c.set_defaults(func=_cmd_check)
 
     c = sub.add_parser("point", help="solve one operating case and print its tables")
@@ -124,6 +134,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--backend", default=None, help="steam property backend: seuif97 or iapws "
                                                    "(default: the case's, else seuif97)")
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    add_units_option(c)
     c.set_defaults(func=_cmd_point)
 
     c = sub.add_parser("valve-points", help="list the valve points of a nozzle-governed "

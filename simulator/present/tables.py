@@ -27,9 +27,10 @@ _TOTALS = {c.name: c for c in TOTALS}
 _NOT_SHOWN = ("steam_path",)
 
 
-def shown(values, column) -> tuple[np.ndarray, str]:
-    """Values of a declared column in its display unit, and that unit."""
-    return to_display_unit(values, column.unit, column.display)
+def shown(values, column, units: str = "metric") -> tuple[np.ndarray, str]:
+    """Values of a declared column in its display unit of the system ``units``
+    (``"metric"`` or ``"us"``), and that unit."""
+    return to_display_unit(values, column.unit, column.display, units, column.name)
 
 
 def _f(v) -> float | None:
@@ -37,17 +38,19 @@ def _f(v) -> float | None:
     return None if math.isnan(v) else v
 
 
-def _value(v, column):
+def _value(v, column, units: str = "metric"):
     """One JSON value of a declared column."""
     if column.dtype == "text":
         return v
     if column.dtype == "u1":
         return bool(v)
-    return _f(shown(v, column)[0])
+    return _f(shown(v, column, units)[0])
 
 
-def point_to_dict(r: PointResult, case_name: str = "", cautions=()) -> dict:
-    """A JSON-ready dict of a point in display units, with the units stated."""
+def point_to_dict(r: PointResult, case_name: str = "", cautions=(),
+                  units: str = "metric") -> dict:
+    """A JSON-ready dict of a point in display units (``units``: ``"metric"``
+    or ``"us"``, see :data:`partload.units.SYSTEMS`), with the units stated."""
     out = {
         "converged": bool(r.converged),
         "model": r.model_name,
@@ -68,25 +71,26 @@ def point_to_dict(r: PointResult, case_name: str = "", cautions=()) -> dict:
             if table.node is not None:
                 row["node"] = table.node[i]
             for col in table.declared:
-                row[col.name] = _value(table.columns[col.name][i], col)
+                row[col.name] = _value(table.columns[col.name][i], col, units)
             rows.append(row)
         out[group] = rows
-        out["units"][group] = {c.name: shown(0.0, c)[1] for c in table.declared
+        out["units"][group] = {c.name: shown(0.0, c, units)[1] for c in table.declared
                                if c.dtype not in ("text", "u1")}
     totals = {}
-    units = {}
+    total_units = {}
     for k, v in r.totals.items():
         col = _TOTALS[k]
         if k in ("makeup_flow", "process_steam_energy") and abs(v) < 1e-6 * abs(
                 r.totals["throttle_flow"]):
             v = 0.0  # a balance that closes to round-off is shown as zero
-        value, units[k] = shown(v, col)
+        value, total_units[k] = shown(v, col, units)
         totals[k] = _f(value)
-        if k == "heat_rate":
+        if k == "heat_rate" and units == "metric":
             totals["heat_rate_btu"] = _f(v * 3600.0 * BTU_PER_KJ)
-            units["heat_rate_btu"] = "Btu/kWh"
+            total_units["heat_rate_btu"] = "Btu/kWh"
     out["totals"] = totals
-    out["units"]["totals"] = units
+    out["units"]["totals"] = total_units
+    out["units_system"] = units
     out["cautions"] = [c.to_dict() if hasattr(c, "to_dict") else c for c in cautions]
     return out
 
@@ -163,9 +167,10 @@ def format_valve_points(model, results, case_name: str = "") -> str:
         f"{r['not_reached']}" for r in missing)
 
 
-def format_point(r: PointResult, case_name: str = "", cautions=()) -> str:
-    """Readable tables of a solved point."""
-    d = point_to_dict(r, case_name, cautions)
+def format_point(r: PointResult, case_name: str = "", cautions=(),
+                 units: str = "metric") -> str:
+    """Readable tables of a solved point (``units``: ``"metric"`` or ``"us"``)."""
+    d = point_to_dict(r, case_name, cautions, units)
     out = [f"partload: {d['model']}" + (f" / case {case_name}" if case_name else ""),
            f"converged in {r.iterations} Newton iterations ({r.evaluations} residual "
            f"evaluations), largest residual {r.residual:.2e}; properties: {r.backend}; "
