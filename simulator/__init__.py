@@ -48,6 +48,7 @@ _LAZY = {
     "open_result": ".api",
     "open_dataset": ".api",
     "to_dataframe": ".api",
+    "correction_curves": ".api",
     "StudyOutcome": ".api",
     "Conditions": ".plant.case",
     "Case": ".plant.case",
@@ -58,8 +59,8 @@ _LAZY = {
 
 __all__ = [
     "__version__", "load_model", "load_case", "point", "run_study", "open_result",
-    "open_dataset", "to_dataframe", "StudyOutcome", "Conditions", "Case", "Model",
-    "PointResult", "solve_point",
+    "open_dataset", "to_dataframe", "correction_curves", "StudyOutcome", "Conditions",
+    "Case", "Model", "PointResult", "solve_point",
     "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
     "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]

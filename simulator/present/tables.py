@@ -18,7 +18,8 @@ import numpy as np
 from ..solve.result import TOTALS, PointResult
 from ..units import to_display_unit
 
-__all__ = ["point_to_dict", "format_point", "format_model", "shown"]
+__all__ = ["point_to_dict", "format_point", "format_model", "shown", "format_corrections",
+           "corrections_to_dict"]
 
 BTU_PER_KJ = 1.0 / 1.05505585262  # International Table Btu
 _TOTALS = {c.name: c for c in TOTALS}
@@ -273,3 +274,76 @@ def format_model(model) -> str:
                  f"{g.mechanical_loss / 1e6:.3f} MW, fixed {g.fixed_loss / 1e6:.3f} MW, "
                  f"load {g.load_loss_rated / 1e6:.3f} MW at rating")
     return "\n".join(lines)
+
+
+def _curve_values(curve, units: str) -> tuple[list, str]:
+    """A correction curve's values in display units, and that unit."""
+    if curve.name == "heaters_out":
+        return list(curve.values), ""
+    if curve.unit == "-":
+        return [float(v) for v in curve.values], "x design"
+    v, u = to_display_unit(np.asarray(curve.values, dtype=float), curve.unit, None, units,
+                           curve.name)
+    return v.tolist(), u
+
+
+def format_corrections(cc, units: str = "metric") -> str:
+    """Correction curves as console tables: per condition, each value's change of
+    output and of heat rate from the reference value, in per cent, at each load
+    (``(factor - 1) x 100``; a test value divided by its factor is corrected to
+    reference)."""
+    p_ref = to_display_unit(cc.reference_throttle_pressure, "Pa", None, units)
+    out = [f"partload: correction curves of {cc.model_name}"
+           + (f" / case {cc.case_name}" if cc.case_name else ""),
+           f"basis: {cc.basis}",
+           f"throttle pressure held at {float(p_ref[0]):.2f} {p_ref[1]}; loads in % of "
+           f"design throttle flow; dP, dHR: change of output and heat rate from the "
+           f"reference value [%] (ASME PTC 6 describes how such curves are used)", ""]
+    for c in cc.curves:
+        values, unit = _curve_values(c, units)
+        ref = values[c.reference_index]
+        headers = [c.name.replace("_", " ")]
+        units_row = [unit]
+        for load in cc.loads:
+            headers += [f"dP {100 * load:g}%", f"dHR {100 * load:g}%"]
+            units_row += ["%", "%"]
+        rows = []
+        for j, v in enumerate(values):
+            row = [v]
+            for i in range(len(cc.loads)):
+                row += [100.0 * (c.output_factor[i, j] - 1.0),
+                        100.0 * (c.heat_rate_factor[i, j] - 1.0)]
+            rows.append(row)
+        title = f"{c.description} (reference {ref:.4g} {unit})" if not isinstance(
+            ref, str) else f"{c.description} (reference: all in service)"
+        out.append(_table(title[0].upper() + title[1:], headers, rows, units_row))
+        for (i, j), why in sorted(c.failed.items()):
+            v = values[j] if isinstance(values[j], str) else f"{values[j]:.5g} {unit}"
+            out.append(f"  not solved at {100 * cc.loads[i]:g} %, {v}: {why}")
+        out.append("")
+    return "\n".join(out).rstrip()
+
+
+def corrections_to_dict(cc, units: str = "metric") -> dict:
+    """Correction curves as a JSON-ready dict in display units."""
+    p_unit = to_display_unit(0.0, "W", None, units)[1]
+    hr_unit = to_display_unit(0.0, "J/J", None, units)[1]
+    curves = {}
+    for c in cc.curves:
+        values, unit = _curve_values(c, units)
+        out = to_display_unit(c.output, "W", None, units)[0]
+        hr = to_display_unit(c.heat_rate, "J/J", None, units)[0]
+
+        def listed(a):
+            return [[_f(x) for x in row] for row in np.asarray(a)]
+
+        curves[c.name] = {"description": c.description, "unit": unit, "values": values,
+                          "reference": values[c.reference_index],
+                          "output": listed(out), "heat_rate": listed(hr),
+                          "output_factor": listed(c.output_factor),
+                          "heat_rate_factor": listed(c.heat_rate_factor),
+                          "not_solved": [{"load": cc.loads[i], "value": values[j],
+                                          "why": why} for (i, j), why in c.failed.items()]}
+    return {"model": cc.model_name, "case": cc.case_name, "basis": cc.basis,
+            "loads": cc.loads, "units": {"output": p_unit, "heat_rate": hr_unit},
+            "curves": curves}

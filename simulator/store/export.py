@@ -21,7 +21,8 @@ from ..errors import InputError, ResultFileError
 from ..units import to_display_unit
 from .reader import read_study
 
-__all__ = ["to_display", "export_csv", "write_whole", "exhaust_nodes", "CSV_DIGITS"]
+__all__ = ["to_display", "export_csv", "write_whole", "exhaust_nodes", "CSV_DIGITS",
+           "csv_text"]
 
 # display rules of files of format version 1, which do not store them
 _V1_DISPLAY = {"heaters/ttd": "K", "heaters/dca": "K", "stage_groups/efficiency": "%",
@@ -68,7 +69,7 @@ CSV_DIGITS = 6
 CSV_DIGITS_SI = 9
 
 
-def _fmt(col: np.ndarray, digits: int = CSV_DIGITS) -> list[str]:
+def csv_text(col: np.ndarray, digits: int = CSV_DIGITS) -> list[str]:
     """Text of a CSV column: numbers to ``digits`` significant figures [-] (six in
     display units: a sweep's neighbouring points differ in the fourth or fifth,
     and the model itself is good to a few tenths of a per cent), no ``-0``."""
@@ -214,7 +215,7 @@ def write_whole(path: Path, write: Callable[[Path], None]) -> Path:
 
 
 def _write_csv(path: Path, cols: list[tuple[str, np.ndarray]], digits: int) -> Path:
-    texts = [_fmt(c, digits) for _, c in cols]
+    texts = [csv_text(c, digits) for _, c in cols]
 
     def write(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
