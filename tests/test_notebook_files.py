@@ -246,4 +246,8 @@ def test_point_and_check_in_us_units(capsys):
     assert "[degF]" in text and "Btu/kWh" in text and "[bar]" not in text
     model = Path(__file__).resolve().parents[1] / "models" / "demo_reheat_unit.toml"
     assert main(["check", str(model), "--units", "us"]) == 0
-    assert "Btu/kWh" in capsys.readouterr().out
+    text = capsys.readouterr().out
+    # the demo unit's design throttle: 166 bar, 538 degC (its model file) by hand
+    # with NIST SP 811 factors: 2407.63 psia, 1000.4 degF
+    assert "throttle: 2407.63 psia, 1000.4 degF" in text
+    assert "Btu/kWh" in text and "[delta_degF]" in text

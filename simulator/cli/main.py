@@ -37,7 +37,7 @@ def _cmd_check(args) -> int:
                           "design": point_to_dict(result, "design", units=args.units)},
                          indent=2))
         return 0
-    print(format_model(model))
+    print(format_model(model, args.units))
     if model.warnings:
         print("\nWARNINGS")
         for w in model.warnings:

@@ -221,51 +221,77 @@ def format_point(r: PointResult, case_name: str = "", cautions=(),
     return "\n".join(out)
 
 
-def format_model(model) -> str:
-    """The calibrated model: design heat balance and component constants."""
+def _d(value, si_unit: str, units: str, display: str | None = None,
+       quantity: str | None = None) -> tuple[float, str]:
+    """One SI value in the display unit of ``units``, and that unit."""
+    v, u = to_display_unit(value, si_unit, display, units, quantity)
+    return float(v), u
+
+
+def format_model(model, units: str = "metric") -> str:
+    """The calibrated model: design heat balance and component constants, in the
+    display units of ``units`` (``"metric"`` or ``"us"``; the lines each kind adds
+    with ``describe()`` are its own, in metric units)."""
     lines = [f"partload: model {model.name!r} ({model.file})", "calibrated to its design "
              "heat balance", ""]
     if model.description:
         lines.insert(1, model.description)
     th = model.throttle
-    lines.append(f"throttle: {th.pressure / 1e5:.2f} bar, {th.temperature - 273.15:.1f} degC, "
-                 f"{th.flow:.3f} kg/s (highest allowed pressure {th.max_pressure / 1e5:.2f} bar)")
+    p, pu = _d(th.pressure, "Pa", units)
+    t, tu = _d(th.temperature, "K", units)
+    m, mu = _d(th.flow, "kg/s", units)
+    pmax, _ = _d(th.max_pressure, "Pa", units)
+    lines.append(f"throttle: {p:.2f} {pu}, {t:.1f} {tu}, {m:.3f} {mu} (highest allowed "
+                 f"pressure {pmax:.2f} {pu})")
     for c in model.components:
         lines += c.describe()
     lines.append("")
+    flow_u = _d(0.0, "kg/s", units)[1]
+    dh_u = _d(0.0, "J/kg", units)[1]
     rows = []
     for c in model.groups:
-        rows.append([c.name, c.inlet, c.outlet, model.design_group_flow[c.name],
+        rows.append([c.name, c.inlet, c.outlet, _d(model.design_group_flow[c.name], "kg/s",
+                                                   units)[0],
                      c.eta_design * 100, c.eta_dry_design * 100, c.K * 1e4,
-                     c.dh_s_design / 1e3, c.q_design, c.correction_name,
+                     _d(c.dh_s_design, "J/kg", units)[0], c.q_design, c.correction_name,
                      f"{c.exhaust.area:.3g} m^2" if c.exhaust else ""])
     lines.append(_table("Stage groups (constants from calibration)",
                         ["group", "from", "to", "design flow", "eta", "eta dry", "K",
                          "dh_s design", "Q_in design", "correction", "annulus"], rows,
-                        ["", "", "", "kg/s", "%", "%", "cm^2", "kJ/kg", "m^3/s", "", ""]))
+                        ["", "", "", flow_u, "%", "%", "cm^2", dh_u, "m^3/s", "", ""]))
     lines.append("")
     if model.reheaters or model.pipes:
+        drop_u = _d(0.0, "Pa", units, quantity="pressure_drop")[1]
+        temp_u = _d(300.0, "K", units)[1]
         lines.append(_table("Reheaters and pipes", ["name", "from", "to", "design drop",
                                                     "outlet T"],
-                            [[c.name, c.inlet, c.outlet, c.dp_design / 1e5,
-                              c.outlet_temperature - 273.15 if c in model.reheaters else None]
+                            [[c.name, c.inlet, c.outlet,
+                              _d(c.dp_design, "Pa", units, quantity="pressure_drop")[0],
+                              _d(c.outlet_temperature, "K", units)[0]
+                              if c in model.reheaters else None]
                              for c in model.reheaters + model.pipes],
-                            ["", "", "", "bar", "degC"]))
+                            ["", "", "", drop_u, temp_u]))
         lines.append("")
     if model.extractions:
         lines.append(_table("Extractions", ["extraction", "node", "design flow", "control",
                                             "heater"],
-                            [[e.name, e.node, e.design_flow, e.control, e.heater or ""]
-                             for e in model.extractions.values()], ["", "", "kg/s", "", ""]))
+                            [[e.name, e.node, _d(e.design_flow, "kg/s", units)[0], e.control,
+                              e.heater or ""]
+                             for e in model.extractions.values()], ["", "", flow_u, "", ""]))
         lines.append("")
     if model.heaters:
+        diff_u = _d(0.0, "K", units, display="K")[1]
         lines.append(_table("Heaters", ["heater", "type", "extraction", "TTD", "DCA", "drains to",
                                         "design duty", "closure"],
                             [[h.name, h.heater_type, h.extraction,
-                              h.ttd if h.heater_type == "closed" else None, h.dca, h.drain_to
-                              if h.heater_type == "closed" else "", h.duty_design / 1e6, h.closure]
+                              _d(h.ttd, "K", units, display="K")[0]
+                              if h.heater_type == "closed" else None,
+                              _d(h.dca, "K", units, display="K")[0] if h.dca is not None
+                              else None,
+                              h.drain_to if h.heater_type == "closed" else "",
+                              h.duty_design / 1e6, h.closure]
                              for h in model.heaters.values()],
-                            ["", "", "", "K", "K", "", "MW", "-"]))
+                            ["", "", "", diff_u, diff_u, "", "MW", "-"]))
         lines.append("  closure = feedwater duty / heat given up by bleed and drains at design;"
                      " 1 for a consistent heat balance")
         lines.append("")
