@@ -165,6 +165,8 @@ def study_file_size(plan, layout) -> int:
     for fl in layout.fields():
         size += n * max(fl.width, 1) * np.dtype(fl.dtype).itemsize + 1024
     size += n * (1 + 4 + 4)  # points/done, series, chunk
+    size += n * 8 + 1024 * (len(layout.groups) + 8)  # /point and the item coordinates
+    size += sum(text(g.names) for g in layout.groups)
     size += text(plan.labels) + text(plan.series_labels)
     for col in plan.inputs.values():
         size += (col.values.nbytes if isinstance(col.values, np.ndarray)
