@@ -46,6 +46,9 @@ _LAZY = {
     "point": ".api",
     "run_study": ".api",
     "open_result": ".api",
+    "open_dataset": ".api",
+    "to_dataframe": ".api",
+    "correction_curves": ".api",
     "StudyOutcome": ".api",
     "Conditions": ".plant.case",
     "Case": ".plant.case",
@@ -56,7 +59,8 @@ _LAZY = {
 
 __all__ = [
     "__version__", "load_model", "load_case", "point", "run_study", "open_result",
-    "StudyOutcome", "Conditions", "Case", "Model", "PointResult", "solve_point",
+    "open_dataset", "to_dataframe", "correction_curves", "StudyOutcome", "Conditions",
+    "Case", "Model", "PointResult", "solve_point",
     "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
     "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]

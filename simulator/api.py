@@ -41,7 +41,8 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
     from .study import StudyPlan, StudySummary
 
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
-           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS"]
+           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS", "open_dataset",
+           "to_dataframe", "correction_curves"]
 
 
 
@@ -510,3 +511,96 @@ def open_result(path: str | Path) -> StudyData:
         The file is missing, not HDF5, damaged, or another program's.
     """
     return _store().read_study(path)
+
+
+def open_dataset(path: str | Path, group: str = "totals", units: str = "si"):
+    """One group of a study result as an ``xarray.Dataset`` (needs
+    ``pip install 'partload[notebook]'``).
+
+    Parameters
+    ----------
+    path : the HDF5 result file [-]
+    group : ``"totals"`` (default), ``"inputs"``, ``"solver"``, ``"nodes"``, a
+        kind's result group (``"stage_groups"``, ``"heaters"``, ...) or
+        ``"cautions"`` [-]
+    units : ``"si"`` (as stored, default), ``"metric"`` or ``"us"`` [-]
+
+    Returns
+    -------
+    xarray.Dataset
+        Dimensions ``point`` and the group's items; coordinates ``point``, the
+        items, ``label`` and ``series``; ``units`` (CF spelling) and
+        ``long_name`` on every variable.
+
+    Raises
+    ------
+    ResultFileError
+        The file is missing, not HDF5, damaged, or another program's.
+    InputError
+        An unknown group or units system, or xarray not installed.
+    """
+    from .store.notebook import open_dataset as _open_dataset
+
+    return _open_dataset(path, group, units)
+
+
+def to_dataframe(path: str | Path, group: str = "totals", units: str = "si",
+                 solved_only: bool = False):
+    """One group of a study result as a ``pandas.DataFrame``, a row a point
+    (needs ``pip install 'partload[notebook]'``).
+
+    Parameters
+    ----------
+    path : the HDF5 result file [-]
+    group : as for :func:`open_dataset` [-]
+    units : ``"si"`` (default), ``"metric"`` or ``"us"`` [-]
+    solved_only : keep only the points that converged [-]
+
+    Returns
+    -------
+    pandas.DataFrame
+        Index ``point``; columns ``label``, ``series`` and the group's
+        quantities (``"<quantity> <item>"`` for one column an item);
+        ``df.attrs["units"]`` maps a column to its unit.
+    """
+    from .store.notebook import to_dataframe as _to_dataframe
+
+    return _to_dataframe(path, group, units, solved_only)
+
+
+def correction_curves(model_or_case, *, loads=(0.5, 0.7, 0.9), conditions=None,
+                      backend: str | None = None, check_limits: bool = True):
+    """Correction curves of output and heat rate (the ``partload corrections``
+    command for scripts); see :mod:`partload.study.corrections` for the basis.
+
+    Parameters
+    ----------
+    model_or_case : a model, a case, or the path of a model or case file; a
+        case's conditions are the reference, a model's design point otherwise [-]
+    loads : throttle flows as fractions of design [-]
+    conditions : names of the curves (default all the model has):
+        ``throttle_pressure``, ``throttle_temperature``, ``reheat_temperature``,
+        ``reheater_pressure_drop``, ``exhaust_pressure``, ``heaters_out`` [-]
+    backend : steam property backend (default: the case's, else seuif97) [-]
+    check_limits : leave out points beyond valves wide open [-]
+
+    Returns
+    -------
+    CorrectionCurves
+        ``loads``, ``curves`` (each with ``values``, ``reference``, ``output``
+        [W], ``heat_rate`` [J/J], ``output_factor``, ``heat_rate_factor`` [-],
+        ``output_change`` [W], ``failed``), ``curve(name)``, ``basis``.
+    """
+    from .plant.case import Case
+    from .study.corrections import correction_curves as _curves
+
+    if isinstance(model_or_case, (str, Path)):
+        from .inputs.reading import load_toml
+
+        data, _ = load_toml(model_or_case)
+        model_or_case = (load_case(model_or_case) if "model" in data
+                         else load_model(model_or_case))
+    case_name = model_or_case.name if isinstance(model_or_case, Case) else ""
+    model, base, default_backend = _model_and_base(model_or_case)
+    return _curves(model, base, case_name=case_name, loads=loads, conditions=conditions,
+                   backend=backend or default_backend, check_limits=check_limits)

@@ -29,7 +29,7 @@ import numpy as np
 from .errors import InputError
 
 __all__ = ["Where", "parse", "linear_factors", "format_like", "DIMENSIONS", "DISPLAY",
-           "to_display_unit"]
+           "DISPLAY_US", "SYSTEMS", "BACK_PRESSURE_NAMES", "to_display_unit"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 _GAUGE = {"barg": "bar", "psig": "psia", "kpag": "kPa", "mpag": "MPa"}
@@ -311,14 +311,57 @@ DISPLAY = {
     "kg/J": ("kg/kWh", 3.6e6, 0.0),
 }
 
+# US customary display units.  Factors from NIST Special Publication 811
+# (B. N. Taylor and A. Thompson, "Guide for the Use of the International System
+# of Units (SI)", NIST SP 811, 2008 edition, Appendix B.8 and B.9): pound
+# (avoirdupois) = 0.45359237 kg (exact), British thermal unit (International
+# Table) = 1055.05585262 J (exact), pound-force per square inch =
+# 6894.757293168 Pa (from the exact lbf and inch), foot = 0.3048 m (exact),
+# inch of mercury (conventional) = 3386.389 Pa, degF = K * 1.8 - 459.67 (exact).
+LB = 0.45359237  # [kg]
+BTU = 1055.05585262  # [J], International Table
+PSI = 6894.757293168  # [Pa], lbf/in^2
+INHG = 3386.389  # [Pa], conventional inch of mercury
+FOOT = 0.3048  # [m]
+DISPLAY_US = {
+    "Pa": ("psia", 1.0 / PSI, 0.0),
+    "K": ("degF", 1.8, -459.67),
+    "J/kg": ("Btu/lb", LB / BTU, 0.0),
+    "J/(kg K)": ("Btu/(lb degR)", LB / BTU / 1.8, 0.0),
+    "W": ("MW", 1e-6, 0.0),
+    "J/J": ("Btu/kWh", 3.6e6 / BTU, 0.0),
+    "kg/J": ("lb/kWh", 3.6e6 / LB, 0.0),
+    "kg/s": ("klb/h", 3600.0 / LB / 1000.0, 0.0),
+    "m/s": ("ft/s", 1.0 / FOOT, 0.0),
+    "m^2": ("ft^2", 1.0 / FOOT**2, 0.0),
+    "m^3/kg": ("ft^3/lb", LB / FOOT**3, 0.0),
+}
 
-def to_display_unit(values, si_unit: str, display: str | None = None) -> tuple[np.ndarray, str]:
-    """Convert SI values to the display unit of :data:`DISPLAY`.
+#: the display systems: name -> table of display units
+SYSTEMS = {"metric": DISPLAY, "us": DISPLAY_US}
 
-    Pressure to bar, temperature to degC, specific enthalpy to kJ/kg, entropy
-    to kJ/(kg K), power to MW, heat rate (J/J) to kJ/kWh, steam rate (kg/J)
-    to kg/kWh.  A temperature in K is taken as a temperature, not a
-    difference: keep differences (TTD, DCA) out of this function.
+# a back (exhaust, condenser) pressure is shown in its own unit: these names
+# of quantities are back pressures
+BACK_PRESSURE_NAMES = ("exhaust_pressure", "condenser_pressure", "back_pressure")
+BACK_PRESSURE = {"metric": ("kPa", 1e-3, 0.0), "us": ("inHg", 1.0 / INHG, 0.0)}
+# a temperature difference (a column whose display rule is "K") in each system
+DIFFERENCE = {"metric": ("K", 1.0), "us": ("delta_degF", 1.8)}
+
+
+def to_display_unit(values, si_unit: str, display: str | None = None,
+                    system: str = "metric", quantity: str | None = None
+                    ) -> tuple[np.ndarray, str]:
+    """Convert SI values to the display unit of a system of :data:`SYSTEMS`.
+
+    Metric (:data:`DISPLAY`): pressure to bar, temperature to degC, specific
+    enthalpy to kJ/kg, entropy to kJ/(kg K), power to MW, heat rate (J/J) to
+    kJ/kWh, steam rate (kg/J) to kg/kWh.  US customary (:data:`DISPLAY_US`):
+    psia, degF, Btu/lb, Btu/(lb degR), MW, Btu/kWh, lb/kWh, klb/h, ft/s, ft^2,
+    ft^3/lb.  A back pressure (``quantity`` in :data:`BACK_PRESSURE_NAMES`) in
+    kPa or inHg; a pressure drop (``quantity`` naming a drop) in psi, not
+    psia.  A temperature in K is taken as a temperature, not a difference:
+    keep differences (TTD, DCA) out of this function, or give them their
+    display rule ``"K"``.
 
     Parameters
     ----------
@@ -328,22 +371,39 @@ def to_display_unit(values, si_unit: str, display: str | None = None) -> tuple[n
         The SI unit of ``values``, as in :data:`DISPLAY` [-].
     display
         A declared column's own rule (``Column.display``), which comes first:
-        ``"%"`` shows a fraction in per cent; any other unit keeps the values as
-        they are in it (a temperature difference in K) [-].
+        ``"%"`` shows a fraction in per cent; ``"K"`` a temperature
+        difference (K, or delta_degF in US units); any other unit keeps the
+        values as they are in it [-].
+    system
+        ``"metric"`` (default) or ``"us"`` [-].
+    quantity
+        The name of the quantity (``"exhaust_pressure"``), for the few shown
+        by name rather than by unit [-].
 
     Returns
     -------
     values, unit : tuple
         The converted float array [display unit] and the display unit; the
-        values as a float array and ``si_unit`` unchanged when
-        ``si_unit`` is not in :data:`DISPLAY`.
+        values as a float array and ``si_unit`` unchanged when the system
+        has no rule for ``si_unit``.
     """
     v = np.asarray(values, dtype=float)
+    if system not in SYSTEMS:  # a bug, not a user mistake: the edges check the choice
+        raise ValueError(f"unknown units system {system!r}")
     if display == "%":
         return v * 100.0, "%"
+    if display == "K" and si_unit in ("K", ""):
+        unit, factor = DIFFERENCE[system]
+        return v * factor, unit
     if display is not None:
         return v, display
-    if si_unit in DISPLAY:
-        unit, factor, offset = DISPLAY[si_unit]
+    if si_unit == "Pa" and quantity in BACK_PRESSURE_NAMES:
+        unit, factor, offset = BACK_PRESSURE[system]
+        return v * factor + offset, unit
+    if si_unit == "Pa" and system == "us" and quantity and "drop" in quantity:
+        return v / PSI, "psi"  # a difference of pressures is not absolute
+    table = SYSTEMS[system]
+    if si_unit in table:
+        unit, factor, offset = table[si_unit]
         return v * factor + offset, unit
     return v, si_unit

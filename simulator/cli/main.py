@@ -34,9 +34,10 @@ def _cmd_check(args) -> int:
     if args.json:
         print(json.dumps({"model": model.name, "file": model.file,
                           "warnings": list(model.warnings),
-                          "design": point_to_dict(result, "design")}, indent=2))
+                          "design": point_to_dict(result, "design", units=args.units)},
+                         indent=2))
         return 0
-    print(format_model(model))
+    print(format_model(model, args.units))
     if model.warnings:
         print("\nWARNINGS")
         for w in model.warnings:
@@ -44,7 +45,7 @@ def _cmd_check(args) -> int:
     print()
     print("Design heat balance as calibrated")
     print("=================================")
-    print(format_point(result, "design"))
+    print(format_point(result, "design", units=args.units))
     if model.stated_output is not None:
         diff = result.totals["generator_output"] - model.stated_output
         print(f"\nstated design output {model.stated_output / 1e6:.3f} MW; calibrated model gives "
@@ -71,9 +72,9 @@ def _cmd_point(args) -> int:
     result = solve_point(case.model, case.conditions, backend)
     cautions = _cautions(case.model, case.conditions, result)
     if args.json:
-        print(json.dumps(point_to_dict(result, case.name, cautions), indent=2))
+        print(json.dumps(point_to_dict(result, case.name, cautions, args.units), indent=2))
     else:
-        print(format_point(result, case.name, cautions))
+        print(format_point(result, case.name, cautions, args.units))
     return 0
 
 
@@ -92,6 +93,52 @@ def _cmd_valve_points(args) -> int:
     return 0
 
 
+def _cmd_corrections(args) -> int:
+    from ..api import correction_curves
+    from ..present.tables import corrections_to_dict, format_corrections
+
+    cc = correction_curves(args.file, loads=args.loads, conditions=args.conditions,
+                           backend=args.backend, check_limits=not args.beyond_limits)
+    if args.json:
+        print(json.dumps(corrections_to_dict(cc, args.units), indent=2))
+    else:
+        print(format_corrections(cc, args.units))
+    if args.csv or args.hdf5:
+        from pathlib import Path
+
+        from ..store.corrections import write_corrections_csv, write_corrections_hdf5
+
+        for target, write in ((args.csv, lambda p: write_corrections_csv(cc, p, args.units)),
+                              (args.hdf5, lambda p: write_corrections_hdf5(cc, p))):
+            if target:
+                Path(target).parent.mkdir(parents=True, exist_ok=True)
+                print(f"partload: wrote {write(Path(target))}", file=sys.stderr)
+    return 0
+
+
+def _percentages(text: str) -> list[float]:
+    try:
+        vals = [float(x) / 100.0 for x in text.replace(";", ",").split(",") if x.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"expected percentages of design throttle flow such as 50,75,100; got {text!r}"
+        ) from None
+    if not vals or any(not v > 0 for v in vals):
+        raise argparse.ArgumentTypeError("give positive percentages such as 50,70,90")
+    return vals
+
+
+def _names(text: str) -> list[str]:
+    from ..study.corrections import CONDITIONS
+
+    names = [x.strip() for x in text.split(",") if x.strip()]
+    bad = [n for n in names if n not in CONDITIONS]
+    if bad or not names:
+        raise argparse.ArgumentTypeError(f"unknown condition {bad[0] if bad else text!r}; "
+                                         f"known: {', '.join(CONDITIONS)}")
+    return names
+
+
 def _cautions(model, cond, result):
     from ..cautions.checks import check_point
 
@@ -102,6 +149,14 @@ def _say(text: str) -> None:
     """Print an error line to stderr; bytes a damaged file put into the text that
     cannot be written are shown escaped rather than raising."""
     print(text.encode("utf-8", "backslashreplace").decode("utf-8"), file=sys.stderr)
+
+
+def add_units_option(c) -> None:
+    """The ``--units`` choice of a command that shows results."""
+    c.add_argument("--units", choices=("metric", "us"), default="metric",
+                   help="display units: metric (bar, degC, kJ/kg, t/h as kg/s, kJ/kWh; "
+                        "default) or us (psia, degF, Btu/lb, klb/h, Btu/kWh, inHg for back "
+                        "pressure)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -120,6 +175,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--backend", default="seuif97", help="steam property backend: seuif97 "
                                                         "(default) or iapws")
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    add_units_option(c)
     c.set_defaults(func=_cmd_check)
 
     c = sub.add_parser("point", help="solve one operating case and print its tables")
@@ -127,6 +183,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--backend", default=None, help="steam property backend: seuif97 or iapws "
                                                    "(default: the case's, else seuif97)")
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    add_units_option(c)
     c.set_defaults(func=_cmd_point)
 
     c = sub.add_parser("valve-points", help="list the valve points of a nozzle-governed "
@@ -138,6 +195,35 @@ def build_parser() -> argparse.ArgumentParser:
                                                    "(default: the case's, else seuif97)")
     c.add_argument("--json", action="store_true", help="print JSON instead of a table")
     c.set_defaults(func=_cmd_valve_points)
+
+    c = sub.add_parser(
+        "corrections", help="correction curves of output and heat rate for throttle "
+                            "pressure and temperature, reheat temperature, reheater pressure "
+                            "drop, back pressure and heaters out of service, at several loads",
+        description="Solve the model with one condition varied at a time around the "
+                    "reference (the case's conditions, else the design point) at each load "
+                    "(a held throttle flow; throttle pressure held), and print the change of "
+                    "output and heat rate from the reference in per cent. ASME PTC 6 "
+                    "describes how such curves correct an acceptance test to reference "
+                    "conditions.")
+    c.add_argument("file", help="case file or model file (TOML)")
+    c.add_argument("--loads", type=_percentages, default=[0.5, 0.7, 0.9], metavar="PCT,...",
+                   help="throttle flows in %% of design (default 50,70,90)")
+    c.add_argument("--conditions", type=_names, default=None, metavar="NAME,...",
+                   help="the curves to draw (default all the model has): throttle_pressure, "
+                        "throttle_temperature, reheat_temperature, reheater_pressure_drop, "
+                        "exhaust_pressure, heaters_out")
+    c.add_argument("--csv", default=None, metavar="FILE", help="also write the curves as CSV")
+    c.add_argument("--hdf5", default=None, metavar="FILE", help="also write them as HDF5 "
+                                                               "(SI units)")
+    c.add_argument("--backend", default=None, help="steam property backend: seuif97 or iapws "
+                                                   "(default: the case's, else seuif97)")
+    c.add_argument("--beyond-limits", action="store_true",
+                   help="solve points beyond valves wide open as what-ifs instead of "
+                        "leaving them out")
+    c.add_argument("--json", action="store_true", help="print JSON instead of tables")
+    add_units_option(c)
+    c.set_defaults(func=_cmd_corrections)
 
     from . import study_commands as study_cli
 

@@ -157,7 +157,7 @@ def _cmd_study(args) -> int:
 def _cmd_export(args) -> int:
     from ..store import export_csv
 
-    files = export_csv(args.result, args.output, si=args.si)
+    files = export_csv(args.result, args.output, si=args.si, units=args.units)
     for f in files:
         print(f)
     return 0
@@ -241,6 +241,10 @@ def add_commands(sub) -> None:
                    help="folder for the CSV files (default: that of the result file)")
     c.add_argument("--si", action="store_true",
                    help="SI units as in the HDF5 file (default: bar, degC, MW, kJ/kWh, ...)")
+    c.add_argument("--units", choices=("metric", "us"), default="metric",
+                   help="display units: metric (bar, back pressure in kPa, degC, kJ/kg, "
+                        "kJ/kWh; default) or us (psia, back pressure in inHg, degF, Btu/lb, "
+                        "klb/h, Btu/kWh)")
     c.set_defaults(func=_cmd_export)
 
     c = sub.add_parser("plot", help="draw the charts of a study result (PNG)",

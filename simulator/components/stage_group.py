@@ -16,7 +16,13 @@ from typing import ClassVar
 from ..errors import InputError
 from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correction
 from ..physics.ellipse import ellipse_flow, flow_constant
-from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
+from ..physics.exhaust import (
+    annulus_velocity,
+    exhaust_loss,
+    exhaust_loss_pchip,
+    pchip_pieces,
+    used_energy_end_point,
+)
 from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
 from ..steam.constants import H_ABOVE_SAT_VAP
 from .base import Column, ReadContext, SteamPathComponent, Tunable
@@ -29,13 +35,28 @@ __all__ = ["StageGroup", "ExhaustEnd"]
 class ExhaustEnd:
     """Last-stage annulus of an exhaust group and its exhaust-loss curve.
 
-    area [m^2]; curve_velocity [m/s] increasing; curve_loss [J/kg dry flow].
+    area [m^2]; curve_velocity [m/s] increasing; curve_loss [J/kg dry flow];
+    interpolation (``"linear"`` or ``"pchip"``, the curve's key, see
+    :mod:`simulator.physics.exhaust`) [-]; pieces: the cubic pieces of a
+    ``"pchip"`` curve, made once here [-].
     """
 
     area: float
     curve_velocity: list[float]
     curve_loss: list[float]
     curve_name: str = ""
+    interpolation: str = "linear"
+    pieces: list | None = None
+
+    def __post_init__(self):
+        if self.interpolation == "pchip" and self.pieces is None:
+            self.pieces = pchip_pieces(self.curve_velocity, self.curve_loss)
+
+    def loss(self, velocity: float) -> float:
+        """Exhaust loss [J/kg dry flow] at annulus ``velocity`` [m/s] from the curve."""
+        if self.pieces is None:
+            return exhaust_loss(velocity, self.curve_velocity, self.curve_loss)
+        return exhaust_loss_pchip(velocity, self.curve_velocity, self.pieces)
 
 
 @dataclass
@@ -115,7 +136,9 @@ class StageGroup(SteamPathComponent):
             area = gr.quantity("annulus_area", "area", positive=True)
             curve = gr.string("loss_curve", choices=list(ctx.curves) or None)
             if area and curve in ctx.curves:
-                exhaust = ExhaustEnd(area, ctx.curves[curve][0], ctx.curves[curve][1], curve)
+                c = ctx.curves[curve]
+                exhaust = ExhaustEnd(area, c[0], c[1], curve,
+                                     c[2] if len(c) > 2 else "linear")
         gr.finish(also_valid=("annulus_area", "loss_curve", "correction_table"))
         if None in (gname, g_from, g_to, eta):
             return None
@@ -190,7 +213,7 @@ class StageGroup(SteamPathComponent):
             return m, h_elep, h_elep, eta, dh_s, y_out, 0.0, 0.0, h_vap, h_liq
         ex = self.exhaust
         vel = annulus_velocity(abs(m), steam.v_ph(p_out, h_elep), ex.area)
-        loss = exhaust_loss(vel, ex.curve_velocity, ex.curve_loss)
+        loss = ex.loss(vel)
         h_used = used_energy_end_point(h_elep, loss, y_out)
         return m, h_used, h_elep, eta, dh_s, y_out, vel, loss, h_vap, h_liq
 

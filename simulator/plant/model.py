@@ -45,6 +45,7 @@ from ..components import (
 from ..components.checks import check_superheated
 from ..errors import InputError
 from ..inputs.reading import Problems, TableReader, load_toml
+from ..physics.exhaust import INTERPOLATIONS
 from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
 from ..units import Where, parse
 from .calibrate import calibrate
@@ -276,9 +277,10 @@ def build_model(data: dict, text: str = "", file: str = "<model>",
     for cname, cdata in curves_data.items():
         cr = reader(cdata, f"exhaust.loss_curves.{cname}")
         xv, yv = _curve(cr, "annulus_velocity", "velocity", "loss", "specific_enthalpy")
+        how = cr.string("interpolation", default="linear", choices=list(INTERPOLATIONS))
         cr.finish()
         if xv is not None:
-            curves[cname] = (xv, yv)
+            curves[cname] = (xv, yv, how or "linear")
     ex.finish()
 
     # --- every component table, read by its kind -----------------------------------

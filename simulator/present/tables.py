@@ -18,7 +18,8 @@ import numpy as np
 from ..solve.result import TOTALS, PointResult
 from ..units import to_display_unit
 
-__all__ = ["point_to_dict", "format_point", "format_model", "shown"]
+__all__ = ["point_to_dict", "format_point", "format_model", "shown", "format_corrections",
+           "corrections_to_dict"]
 
 BTU_PER_KJ = 1.0 / 1.05505585262  # International Table Btu
 _TOTALS = {c.name: c for c in TOTALS}
@@ -27,9 +28,10 @@ _TOTALS = {c.name: c for c in TOTALS}
 _NOT_SHOWN = ("steam_path",)
 
 
-def shown(values, column) -> tuple[np.ndarray, str]:
-    """Values of a declared column in its display unit, and that unit."""
-    return to_display_unit(values, column.unit, column.display)
+def shown(values, column, units: str = "metric") -> tuple[np.ndarray, str]:
+    """Values of a declared column in its display unit of the system ``units``
+    (``"metric"`` or ``"us"``), and that unit."""
+    return to_display_unit(values, column.unit, column.display, units, column.name)
 
 
 def _f(v) -> float | None:
@@ -37,7 +39,7 @@ def _f(v) -> float | None:
     return None if math.isnan(v) else v
 
 
-def _value(v, column):
+def _value(v, column, units: str = "metric"):
     """One JSON value of a declared column."""
     if column.dtype == "text":
         return v
@@ -45,11 +47,13 @@ def _value(v, column):
         return bool(v)
     if column.dtype.startswith("i"):
         return int(v)
-    return _f(shown(v, column)[0])
+    return _f(shown(v, column, units)[0])
 
 
-def point_to_dict(r: PointResult, case_name: str = "", cautions=()) -> dict:
-    """A JSON-ready dict of a point in display units, with the units stated."""
+def point_to_dict(r: PointResult, case_name: str = "", cautions=(),
+                  units: str = "metric") -> dict:
+    """A JSON-ready dict of a point in display units (``units``: ``"metric"``
+    or ``"us"``, see :data:`partload.units.SYSTEMS`), with the units stated."""
     out = {
         "converged": bool(r.converged),
         "model": r.model_name,
@@ -70,25 +74,26 @@ def point_to_dict(r: PointResult, case_name: str = "", cautions=()) -> dict:
             if table.node is not None:
                 row["node"] = table.node[i]
             for col in table.declared:
-                row[col.name] = _value(table.columns[col.name][i], col)
+                row[col.name] = _value(table.columns[col.name][i], col, units)
             rows.append(row)
         out[group] = rows
-        out["units"][group] = {c.name: shown(0.0, c)[1] for c in table.declared
+        out["units"][group] = {c.name: shown(0.0, c, units)[1] for c in table.declared
                                if c.dtype not in ("text", "u1")}
     totals = {}
-    units = {}
+    total_units = {}
     for k, v in r.totals.items():
         col = _TOTALS[k]
         if k in ("makeup_flow", "process_steam_energy") and abs(v) < 1e-6 * abs(
                 r.totals["throttle_flow"]):
             v = 0.0  # a balance that closes to round-off is shown as zero
-        value, units[k] = shown(v, col)
+        value, total_units[k] = shown(v, col, units)
         totals[k] = _f(value)
-        if k == "heat_rate":
+        if k == "heat_rate" and units == "metric":
             totals["heat_rate_btu"] = _f(v * 3600.0 * BTU_PER_KJ)
-            units["heat_rate_btu"] = "Btu/kWh"
+            total_units["heat_rate_btu"] = "Btu/kWh"
     out["totals"] = totals
-    out["units"]["totals"] = units
+    out["units"]["totals"] = total_units
+    out["units_system"] = units
     out["cautions"] = [c.to_dict() if hasattr(c, "to_dict") else c for c in cautions]
     return out
 
@@ -165,9 +170,10 @@ def format_valve_points(model, results, case_name: str = "") -> str:
         f"{r['not_reached']}" for r in missing)
 
 
-def format_point(r: PointResult, case_name: str = "", cautions=()) -> str:
-    """Readable tables of a solved point."""
-    d = point_to_dict(r, case_name, cautions)
+def format_point(r: PointResult, case_name: str = "", cautions=(),
+                 units: str = "metric") -> str:
+    """Readable tables of a solved point (``units``: ``"metric"`` or ``"us"``)."""
+    d = point_to_dict(r, case_name, cautions, units)
     out = [f"partload: {d['model']}" + (f" / case {case_name}" if case_name else ""),
            f"converged in {r.iterations} Newton iterations ({r.evaluations} residual "
            f"evaluations), largest residual {r.residual:.2e}; properties: {r.backend}; "
@@ -217,51 +223,77 @@ def format_point(r: PointResult, case_name: str = "", cautions=()) -> str:
     return "\n".join(out)
 
 
-def format_model(model) -> str:
-    """The calibrated model: design heat balance and component constants."""
+def _d(value, si_unit: str, units: str, display: str | None = None,
+       quantity: str | None = None) -> tuple[float, str]:
+    """One SI value in the display unit of ``units``, and that unit."""
+    v, u = to_display_unit(value, si_unit, display, units, quantity)
+    return float(v), u
+
+
+def format_model(model, units: str = "metric") -> str:
+    """The calibrated model: design heat balance and component constants, in the
+    display units of ``units`` (``"metric"`` or ``"us"``; the lines each kind adds
+    with ``describe()`` are its own, in metric units)."""
     lines = [f"partload: model {model.name!r} ({model.file})", "calibrated to its design "
              "heat balance", ""]
     if model.description:
         lines.insert(1, model.description)
     th = model.throttle
-    lines.append(f"throttle: {th.pressure / 1e5:.2f} bar, {th.temperature - 273.15:.1f} degC, "
-                 f"{th.flow:.3f} kg/s (highest allowed pressure {th.max_pressure / 1e5:.2f} bar)")
+    p, pu = _d(th.pressure, "Pa", units)
+    t, tu = _d(th.temperature, "K", units)
+    m, mu = _d(th.flow, "kg/s", units)
+    pmax, _ = _d(th.max_pressure, "Pa", units)
+    lines.append(f"throttle: {p:.2f} {pu}, {t:.1f} {tu}, {m:.3f} {mu} (highest allowed "
+                 f"pressure {pmax:.2f} {pu})")
     for c in model.components:
         lines += c.describe()
     lines.append("")
+    flow_u = _d(0.0, "kg/s", units)[1]
+    dh_u = _d(0.0, "J/kg", units)[1]
     rows = []
     for c in model.groups:
-        rows.append([c.name, c.inlet, c.outlet, model.design_group_flow[c.name],
+        rows.append([c.name, c.inlet, c.outlet, _d(model.design_group_flow[c.name], "kg/s",
+                                                   units)[0],
                      c.eta_design * 100, c.eta_dry_design * 100, c.K * 1e4,
-                     c.dh_s_design / 1e3, c.q_design, c.correction_name,
+                     _d(c.dh_s_design, "J/kg", units)[0], c.q_design, c.correction_name,
                      f"{c.exhaust.area:.3g} m^2" if c.exhaust else ""])
     lines.append(_table("Stage groups (constants from calibration)",
                         ["group", "from", "to", "design flow", "eta", "eta dry", "K",
                          "dh_s design", "Q_in design", "correction", "annulus"], rows,
-                        ["", "", "", "kg/s", "%", "%", "cm^2", "kJ/kg", "m^3/s", "", ""]))
+                        ["", "", "", flow_u, "%", "%", "cm^2", dh_u, "m^3/s", "", ""]))
     lines.append("")
     if model.reheaters or model.pipes:
+        drop_u = _d(0.0, "Pa", units, quantity="pressure_drop")[1]
+        temp_u = _d(300.0, "K", units)[1]
         lines.append(_table("Reheaters and pipes", ["name", "from", "to", "design drop",
                                                     "outlet T"],
-                            [[c.name, c.inlet, c.outlet, c.dp_design / 1e5,
-                              c.outlet_temperature - 273.15 if c in model.reheaters else None]
+                            [[c.name, c.inlet, c.outlet,
+                              _d(c.dp_design, "Pa", units, quantity="pressure_drop")[0],
+                              _d(c.outlet_temperature, "K", units)[0]
+                              if c in model.reheaters else None]
                              for c in model.reheaters + model.pipes],
-                            ["", "", "", "bar", "degC"]))
+                            ["", "", "", drop_u, temp_u]))
         lines.append("")
     if model.extractions:
         lines.append(_table("Extractions", ["extraction", "node", "design flow", "control",
                                             "heater"],
-                            [[e.name, e.node, e.design_flow, e.control, e.heater or ""]
-                             for e in model.extractions.values()], ["", "", "kg/s", "", ""]))
+                            [[e.name, e.node, _d(e.design_flow, "kg/s", units)[0], e.control,
+                              e.heater or ""]
+                             for e in model.extractions.values()], ["", "", flow_u, "", ""]))
         lines.append("")
     if model.heaters:
+        diff_u = _d(0.0, "K", units, display="K")[1]
         lines.append(_table("Heaters", ["heater", "type", "extraction", "TTD", "DCA", "drains to",
                                         "design duty", "closure"],
                             [[h.name, h.heater_type, h.extraction,
-                              h.ttd if h.heater_type == "closed" else None, h.dca, h.drain_to
-                              if h.heater_type == "closed" else "", h.duty_design / 1e6, h.closure]
+                              _d(h.ttd, "K", units, display="K")[0]
+                              if h.heater_type == "closed" else None,
+                              _d(h.dca, "K", units, display="K")[0] if h.dca is not None
+                              else None,
+                              h.drain_to if h.heater_type == "closed" else "",
+                              h.duty_design / 1e6, h.closure]
                              for h in model.heaters.values()],
-                            ["", "", "", "K", "K", "", "MW", "-"]))
+                            ["", "", "", diff_u, diff_u, "", "MW", "-"]))
         lines.append("  closure = feedwater duty / heat given up by bleed and drains at design;"
                      " 1 for a consistent heat balance")
         lines.append("")
@@ -270,3 +302,76 @@ def format_model(model) -> str:
                  f"{g.mechanical_loss / 1e6:.3f} MW, fixed {g.fixed_loss / 1e6:.3f} MW, "
                  f"load {g.load_loss_rated / 1e6:.3f} MW at rating")
     return "\n".join(lines)
+
+
+def _curve_values(curve, units: str) -> tuple[list, str]:
+    """A correction curve's values in display units, and that unit."""
+    if curve.name == "heaters_out":
+        return list(curve.values), ""
+    if curve.unit == "-":
+        return [float(v) for v in curve.values], "x design"
+    v, u = to_display_unit(np.asarray(curve.values, dtype=float), curve.unit, None, units,
+                           curve.name)
+    return v.tolist(), u
+
+
+def format_corrections(cc, units: str = "metric") -> str:
+    """Correction curves as console tables: per condition, each value's change of
+    output and of heat rate from the reference value, in per cent, at each load
+    (``(factor - 1) x 100``; a test value divided by its factor is corrected to
+    reference)."""
+    p_ref = to_display_unit(cc.reference_throttle_pressure, "Pa", None, units)
+    out = [f"partload: correction curves of {cc.model_name}"
+           + (f" / case {cc.case_name}" if cc.case_name else ""),
+           f"basis: {cc.basis}",
+           f"throttle pressure held at {float(p_ref[0]):.2f} {p_ref[1]}; loads in % of "
+           f"design throttle flow; dP, dHR: change of output and heat rate from the "
+           f"reference value [%] (ASME PTC 6 describes how such curves are used)", ""]
+    for c in cc.curves:
+        values, unit = _curve_values(c, units)
+        ref = values[c.reference_index]
+        headers = [c.name.replace("_", " ")]
+        units_row = [unit]
+        for load in cc.loads:
+            headers += [f"dP {100 * load:g}%", f"dHR {100 * load:g}%"]
+            units_row += ["%", "%"]
+        rows = []
+        for j, v in enumerate(values):
+            row = [v]
+            for i in range(len(cc.loads)):
+                row += [100.0 * (c.output_factor[i, j] - 1.0),
+                        100.0 * (c.heat_rate_factor[i, j] - 1.0)]
+            rows.append(row)
+        title = f"{c.description} (reference {ref:.4g} {unit})" if not isinstance(
+            ref, str) else f"{c.description} (reference: all in service)"
+        out.append(_table(title[0].upper() + title[1:], headers, rows, units_row))
+        for (i, j), why in sorted(c.failed.items()):
+            v = values[j] if isinstance(values[j], str) else f"{values[j]:.5g} {unit}"
+            out.append(f"  not solved at {100 * cc.loads[i]:g} %, {v}: {why}")
+        out.append("")
+    return "\n".join(out).rstrip()
+
+
+def corrections_to_dict(cc, units: str = "metric") -> dict:
+    """Correction curves as a JSON-ready dict in display units."""
+    p_unit = to_display_unit(0.0, "W", None, units)[1]
+    hr_unit = to_display_unit(0.0, "J/J", None, units)[1]
+    curves = {}
+    for c in cc.curves:
+        values, unit = _curve_values(c, units)
+        out = to_display_unit(c.output, "W", None, units)[0]
+        hr = to_display_unit(c.heat_rate, "J/J", None, units)[0]
+
+        def listed(a):
+            return [[_f(x) for x in row] for row in np.asarray(a)]
+
+        curves[c.name] = {"description": c.description, "unit": unit, "values": values,
+                          "reference": values[c.reference_index],
+                          "output": listed(out), "heat_rate": listed(hr),
+                          "output_factor": listed(c.output_factor),
+                          "heat_rate_factor": listed(c.heat_rate_factor),
+                          "not_solved": [{"load": cc.loads[i], "value": values[j],
+                                          "why": why} for (i, j), why in c.failed.items()]}
+    return {"model": cc.model_name, "case": cc.case_name, "basis": cc.basis,
+            "loads": cc.loads, "units": {"output": p_unit, "heat_rate": hr_unit},
+            "curves": curves}

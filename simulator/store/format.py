@@ -5,27 +5,37 @@ Result files (HDF5)
 
 A study writes one HDF5 file (``results/<case file name>.h5`` by default).  Every
 number in it is in **SI units**, and every numeric dataset says its unit in
-its ``unit`` attribute (``"-"`` for dimensionless, ``"J/J"`` for a heat rate:
-multiply by 3600 for kJ/kWh) and what it is in its ``description``
-attribute.  Text is UTF-8 (read it with ``dataset.asstr()[...]``).  Points are
-numbered ``0 .. n-1``: one *series* after the other (one series per
-combination of the swept values other than the load), the load increasing
-inside a series of a sweep; a profile keeps its file order.
+its ``units`` attribute, spelled as the CF conventions ask (``"1"`` for
+dimensionless, ``"J/J"`` for a heat rate: multiply by 3600 for kJ/kWh), again
+in ``unit`` (format 2's attribute, ``"-"`` for dimensionless), and what it is
+in its ``description`` and ``long_name`` attributes (a heat rate's names which
+one).  The file opens in xarray (``engine="h5netcdf"``) with named dimensions
+(:mod:`partload.store.dimensions`).  Text is UTF-8 (read it with
+``dataset.asstr()[...]``).  Points are numbered ``0 .. n-1``: one *series*
+after the other (one series per combination of the swept values other than
+the load), the load increasing inside a series of a sweep; a profile keeps its
+file order.
 
 Versions
-    2 (this partload writes it): one result group per kind of component
+    3 (this partload writes it): as 2, plus named dimensions (HDF5 dimension
+    scales: ``/point`` linked into every per-point group, a coordinate of item
+    names per result group named after it, ``/points/series_labels``), the
+    ``units`` and ``long_name`` attributes, and the root attributes naming the
+    input files renamed ``model_path``, ``case_path``, ``profile_path`` (they
+    were ``model_file``, ... as the datasets holding the texts).
+    2: one result group per kind of component
     (``/throttle_valve``, ``/reheaters``, ``/pipes``, ``/control_valves`` are
     new), ``/inputs/valve_mode`` and ``/inputs/pressure_mode`` instead of
     ``/inputs/governing``, control valves in ``/paths``, text columns of 16
-    bytes.  1: the first layout.  Both are read (plots, export); only files of
-    the version this partload writes are resumed.
+    bytes.  1: the first layout.  All three are read (plots, export); only
+    files of the version this partload writes are resumed.
 
 Root attributes
     ``format`` = ``"partload-study"``, ``format_version`` (2), ``software``
     (``"partload"``), ``software_version``, ``created`` (UTC, ISO 8601),
     ``property_backend``, ``units`` (a reminder that all is SI),
-    ``model_name``, ``model_file``, ``model_sha256``, ``case_name``,
-    ``case_description``, ``case_file``, ``case_sha256``, ``profile_file``
+    ``model_name``, ``model_path``, ``model_sha256``, ``case_name``,
+    ``case_description``, ``case_path``, ``case_sha256``, ``profile_path``
     and ``profile_sha256`` (profile studies), ``throttle_node`` and
     ``valve_outlet_node`` (the throttle valves' nodes),
     ``design_throttle_flow`` [kg/s], ``generator_rating`` [W],
@@ -185,11 +195,12 @@ __all__ = [
     "H5_ERRORS",
     "READ_ERRORS",
     "NAME_LISTS",
+    "is_scale",
 ]
 
 FORMAT = "partload-study"
-FORMAT_VERSION = 2  # the version this software writes
-READABLE_VERSIONS = (1, 2)  # the versions this software reads
+FORMAT_VERSION = 3  # the version this software writes
+READABLE_VERSIONS = (1, 2, 3)  # the versions this software reads
 HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
 TEXT = h5py.string_dtype("utf-8")  # variable-length UTF-8 text
 # what h5py raises for a file it cannot read or write (damaged, full disk, ...)
@@ -200,6 +211,11 @@ READ_ERRORS = (*H5_ERRORS, KeyError, TypeError, IndexError, AttributeError)
 NAME_LISTS = ("names", "inlet", "outlet", "nodes", "kind")
 OUR_MARK = FORMAT.encode()  # the root attribute 'format', stored near the start
 HEAD_BYTES = 1 << 16  # [B] the part of a file searched for it
+
+
+def is_scale(ds) -> bool:
+    """Whether an HDF5 dataset is a dimension scale (a coordinate of format 3) [-]."""
+    return isinstance(ds, h5py.Dataset) and h5py.h5ds.is_scale(ds.id)
 
 
 def damaged(path: Path, exc: BaseException | str) -> ResultFileError:
@@ -270,7 +286,14 @@ def open_hdf5(path: Path, mode: str) -> h5py.File:
         if mode == "r":
             # the layout never changes after creation, so reading needs no lock: the
             # finished points of a running study can be read
-            return h5py.File(path, "r", locking=False)
+            try:
+                return h5py.File(path, "r", locking=False)
+            except OSError as exc:
+                if "locking flag values don't match" not in str(exc):
+                    raise
+                # this process holds the file open already with a lock (xarray or
+                # h5py in a notebook): HDF5 shares that handle, opened as it was
+                return h5py.File(path, "r")
         return h5py.File(path, mode)
     except OSError as exc:
         text = str(exc)
@@ -377,6 +400,8 @@ def check_shapes(f: h5py.File, path: Path) -> None:
         if status.shape != (n,):
             raise damaged(path, f"/solver/status has shape {status.shape}, the file has "
                                 f"{n} points")
+        if "point" in f and f["point"].shape != (n,):
+            raise damaged(path, f"/point has shape {f['point'].shape}, the file has {n} points")
         for gname, g in f.items():
             if not isinstance(g, h5py.Group):
                 continue
@@ -395,6 +420,11 @@ def check_shapes(f: h5py.File, path: Path) -> None:
                                         f"/{gname}/names has {width} entries")
             for dname, ds in g.items():
                 if not isinstance(ds, h5py.Dataset) or dname in lists:
+                    continue
+                if is_scale(ds):  # a coordinate: the point numbers or the item names
+                    if gname != "points" and (ds.ndim != 1 or ds.shape[0] not in (n, width)):
+                        raise damaged(path, f"/{gname}/{dname} has shape {ds.shape}, and the "
+                                            f"file has {n} points and {width} items there")
                     continue
                 if gname == "points" and dname == "series_labels":
                     continue

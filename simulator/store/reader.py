@@ -16,7 +16,15 @@ import h5py
 import numpy as np
 
 from ..errors import ResultFileError
-from .format import READ_ERRORS, attr_value, check_format, check_shapes, damaged, open_hdf5
+from .format import (
+    READ_ERRORS,
+    attr_value,
+    check_format,
+    check_shapes,
+    damaged,
+    is_scale,
+    open_hdf5,
+)
 
 __all__ = ["StudyData", "open_result", "read_study"]
 
@@ -129,6 +137,9 @@ def read_study(path: str | Path) -> StudyData:
 def _read(f: h5py.File, path: Path) -> StudyData:
     """Everything of an open, checked result file (see :func:`read_study`)."""
     attrs = {k: attr_value(v) for k, v in f.attrs.items()}
+    for old in ("model", "case", "profile"):  # format 1 and 2 named these as the datasets
+        if f"{old}_file" in attrs:
+            attrs.setdefault(f"{old}_path", attrs.pop(f"{old}_file"))
     # every group of per-point results: the solver record, the totals, the
     # cautions and one group per result group of the point (nodes, each kind)
     result_groups = [g for g, obj in f.items() if isinstance(obj, h5py.Group)
@@ -140,6 +151,8 @@ def _read(f: h5py.File, path: Path) -> StudyData:
         for dname, ds in f[gname].items():
             if dname in ("names", "inlet", "outlet", "nodes", "kind") and gname != "totals":
                 continue
+            if is_scale(ds):  # the coordinates of format 3: point numbers, item names
+                continue
             key = f"{gname}/{dname}"
             data[key] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
             units[key] = attr_value(ds.attrs.get("unit", ""))
@@ -148,6 +161,8 @@ def _read(f: h5py.File, path: Path) -> StudyData:
                 display[key] = attr_value(ds.attrs["display"])
     inputs = {}
     for name, ds in f["inputs"].items():
+        if is_scale(ds):
+            continue
         inputs[name] = ds.asstr()[...] if ds.dtype.kind in "SO" else ds[...]
         units[f"inputs/{name}"] = attr_value(ds.attrs.get("unit", ""))
         desc[f"inputs/{name}"] = attr_value(ds.attrs.get("description", ""))

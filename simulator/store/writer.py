@@ -36,6 +36,7 @@ import numpy as np
 
 from ..errors import ResultFileError
 from ..version import __version__
+from .dimensions import add_dimensions
 from .format import (
     FORMAT,
     FORMAT_VERSION,
@@ -164,6 +165,8 @@ def study_file_size(plan, layout) -> int:
     for fl in layout.fields():
         size += n * max(fl.width, 1) * np.dtype(fl.dtype).itemsize + 1024
     size += n * (1 + 4 + 4)  # points/done, series, chunk
+    size += n * 8 + 1024 * (len(layout.groups) + 8)  # /point and the item coordinates
+    size += sum(text(g.names) for g in layout.groups)
     size += text(plan.labels) + text(plan.series_labels)
     for col in plan.inputs.values():
         size += (col.values.nbytes if isinstance(col.values, np.ndarray)
@@ -432,8 +435,8 @@ class StudyFile:
             if found != FORMAT_VERSION:
                 raise ResultFileError(
                     f"cannot resume {path}: it has result format version {found}, and this "
-                    f"partload writes version {FORMAT_VERSION} (one result group per kind of "
-                    f"component); plot or export it as it is, or run the study anew with "
+                    f"partload writes version {FORMAT_VERSION} (named dimensions and "
+                    f"coordinates); plot or export it as it is, or run the study anew with "
                     f"--force or another --output")
             _check_same_study(f, path, plan)
             if int(f.attrs.get("check_limits", 1)) != int(check_limits):
@@ -509,20 +512,21 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
     a["software_version"] = __version__
     a["created"] = _utc_now()
     a["property_backend"] = plan.backend
-    a["units"] = "SI; every numeric dataset states its unit in its 'unit' attribute"
+    a["units"] = ("SI; every numeric dataset states its unit in its 'units' attribute (CF "
+                  "spelling) and in 'unit'")
     a["model_name"] = model.name
     # as the case file names it (relative to the case), not this machine's path
     try:
-        a["model_file"] = os.path.relpath(model.file, Path(case.file).resolve().parent)
+        a["model_path"] = os.path.relpath(model.file, Path(case.file).resolve().parent)
     except ValueError:  # another drive
-        a["model_file"] = Path(model.file).name
+        a["model_path"] = Path(model.file).name
     a["model_sha256"] = model.sha256
     a["case_name"] = case.name
     a["case_description"] = case.description
-    a["case_file"] = str(case.file)
+    a["case_path"] = str(case.file)
     a["case_sha256"] = case.sha256
     if plan.profile is not None:
-        a["profile_file"] = plan.profile.file
+        a["profile_path"] = plan.profile.file
         a["profile_sha256"] = plan.profile.sha256
     a["throttle_node"] = layout.valve[0]
     a["valve_outlet_node"] = layout.valve[1]
@@ -588,6 +592,7 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
             obj.attrs["unit"] = "-"
 
     f.visititems(dimensionless)
+    add_dimensions(f, n)
 
 
 def _check_same_study(f: h5py.File, path: Path, plan) -> None:
@@ -607,7 +612,7 @@ def _check_same_study(f: h5py.File, path: Path, plan) -> None:
     if attr("model_sha256") != model.sha256:
         raise ResultFileError(
             f"cannot resume {path}: the model has changed since this study was started. The "
-            f"file was made with model {attr('model_name')!r} ({attr('model_file')}, sha256 "
+            f"file was made with model {attr('model_name')!r} ({attr('model_path')}, sha256 "
             f"{attr('model_sha256')[:12]}...), but {model.file} now has sha256 "
             f"{model.sha256[:12]}...; resuming would mix results of two models. {fix}")
     if attr("case_sha256") != plan.case.sha256:
