@@ -279,20 +279,24 @@ class Condenser(Component):
         m_w = march.setting(self, "cooling_water_flow", self.m_water_design)
         if self.tower is not None:
             T_wb = march.setting(self, "wet_bulb_temperature", self.tower["wet_bulb"])
-            T_in = self.cold_water(T_wb, circuit_duty, m_w)
+            key = ("approach", self.name)
+            T_in = self.cold_water(T_wb, circuit_duty, m_w, march.scratch.get(key))
+            march.scratch[key] = T_in - T_wb
         else:
             T_in = march.setting(self, "inlet_temperature", self.T_in_design)
         return self.state(duty, T_in, m_w, cf)
 
-    def cold_water(self, T_wb: float, circuit_duty: float, m_w: float) -> float:
+    def cold_water(self, T_wb: float, circuit_duty: float, m_w: float,
+                   start: float | None = None) -> float:
         """Cold-water temperature [K] of the tower at wet bulb ``T_wb`` [K] for the
         heat of the circuit ``circuit_duty`` [W] and water flow ``m_w`` [kg/s]: its
-        design Merkel number corrected as ``(L/G)^-n`` with the air flow constant."""
+        design Merkel number corrected as ``(L/G)^-n`` with the air flow constant;
+        ``start`` [K] an approach to start the search from."""
         t = self.tower
         lg = t["ratio"] * m_w / self.m_water_design
         merkel = self.tower_merkel * (lg / t["ratio"]) ** -t["exponent"]
         rng = circuit_duty / (m_w * CP_WATER)
-        return cold_water_temperature(T_wb, rng, merkel, lg, t["air_pressure"])
+        return cold_water_temperature(T_wb, rng, merkel, lg, t["air_pressure"], start)
 
     def residual(self, p: float, st: CondenserState, steam) -> float:
         """The condenser's law at pressure ``p`` [Pa]: saturation temperature less the

@@ -78,14 +78,30 @@ def merkel_number(T_cold: float, T_hot: float, T_wet_bulb: float, l_over_g: floa
 
 
 def cold_water_temperature(T_wet_bulb: float, rng: float, merkel: float, l_over_g: float,
-                           p: float) -> float:
+                           p: float, start: float | None = None) -> float:
     """Cold-water temperature [K] of a tower with characteristic ``merkel`` [-] at
     wet bulb ``T_wet_bulb`` [K], range ``rng`` [K], ratio ``l_over_g`` [-] and air
     pressure ``p`` [Pa]: where the Merkel number the duty needs equals the tower's
-    (it falls as the approach grows)."""
+    (it falls as the approach grows).
+
+    ``start`` [K] is an approach to start from (a neighbour's): the secant method
+    from there, which needs three or four Merkel numbers near a neighbour; the
+    bracketed search when it does not settle within eight steps."""
     def needed_minus(approach):
         return -merkel_number(T_wet_bulb + approach, T_wet_bulb + approach + rng, T_wet_bulb,
                               l_over_g, p)
+    if start is not None and start > 0.0:
+        a0, a1 = start, start * (1.0 + 1e-4)
+        f0, f1 = needed_minus(a0) + merkel, needed_minus(a1) + merkel
+        for _ in range(8):
+            if not (math.isfinite(f0) and math.isfinite(f1)) or f1 == f0:
+                break
+            a2 = a1 - f1 * (a1 - a0) / (f1 - f0)
+            if not a2 > 0.0:
+                break
+            if abs(a2 - a1) <= 1e-12 * (T_wet_bulb + a2):
+                return T_wet_bulb + a2
+            a0, f0, a1, f1 = a1, f1, a2, needed_minus(a2) + merkel
     hi = 5.0
     while needed_minus(hi) < -merkel and hi < 80.0:
         hi *= 2.0
