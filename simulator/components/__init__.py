@@ -11,6 +11,7 @@ from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import HEATER_TYPES, TTD_METHODS, Heater
 from .pipe import Pipe
+from .plant_balance import HEATING_VALUES, Auxiliaries, Boiler
 from .pump import Pump
 from .registry import KINDS, kind_of_results, register, unregister
 from .reheater import Reheater
@@ -20,7 +21,8 @@ from .throttle_valve import ThrottleValve
 __all__ = [
     "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable",
     "KINDS", "register", "unregister", "kind_of_results",
-    "Condenser", "CondenserState", "ControlValve", "Extraction", "EXTRACTION_CONTROLS",
+    "Auxiliaries", "Boiler", "HEATING_VALUES", "Condenser", "CondenserState",
+    "ControlValve", "Extraction", "EXTRACTION_CONTROLS",
     "Generator", "GoverningStage", "Heater", "HEATER_TYPES",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

@@ -161,6 +161,10 @@ class Component:
     # a kind at a node whose pressure it sets by its own law (a condenser at an
     # exhaust node): the pressure becomes an unknown and the law its residual
     frees_node: ClassVar[bool] = False
+    # a kind whose results follow from the point's totals (net output, fuel): its
+    # point_row runs after the totals, and the point view gives ``totals``,
+    # ``tables`` (the tables built before it), ``rating`` and ``setting``
+    reads_totals: ClassVar[bool] = False
     # such a kind provides node_state(duty, march, upstream) -> record and
     # residual(p, record, steam) -> float; its record reaches point_row as
     # point.records[name]

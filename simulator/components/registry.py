@@ -15,6 +15,7 @@ from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import Heater
 from .pipe import Pipe
+from .plant_balance import Auxiliaries, Boiler
 from .pump import Pump
 from .reheater import Reheater
 from .stage_group import StageGroup
@@ -25,7 +26,7 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
     for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
-                Generator, Heater, Pump, Condenser)
+                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler)
 }
 
 

@@ -170,6 +170,14 @@ def format_valve_points(model, results, case_name: str = "") -> str:
         f"{r['not_reached']}" for r in missing)
 
 
+def _singular(group: str) -> str:
+    """A result group's name for one of its rows: ``stage_groups`` -> ``stage group``."""
+    word = group.replace("_", " ")
+    if word.endswith("ies"):
+        return word[:-3] + "y"
+    return word[:-1] if word.endswith("s") and not word.endswith("ss") else word
+
+
 def format_point(r: PointResult, case_name: str = "", cautions=(),
                  units: str = "metric") -> str:
     """Readable tables of a solved point (``units``: ``"metric"`` or ``"us"``)."""
@@ -182,7 +190,7 @@ def format_point(r: PointResult, case_name: str = "", cautions=(),
         if group in _NOT_SHOWN or not table.names:
             continue
         cols = [c for c in table.declared if c.console]
-        headers = [group.rstrip("s").replace("_", " ")]
+        headers = [_singular(group)]
         units = [""]
         if table.inlet is not None:
             headers += ["from", "to"]

@@ -469,9 +469,13 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
     view = PointView(eq.idx, p, h, {b[0]: (f, ctl) for b, f, ctl in zip(
         eq.bleeds, st["bleed_flow"], eq.bleed_control)}, heater_states, steam,
         st.get("node_records", {}))
+    late = []
     for kind in KINDS.values():
         comps = model.of_kind(kind)
         if not kind.results or not comps:
+            continue
+        if kind.reads_totals:
+            late.append((kind, comps))
             continue
         inlet = outlet = node = None
         if issubclass(kind, SteamPathComponent):
@@ -492,6 +496,12 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
                 [n for c in comps for n in c.part_names()], _columns(kind.part_columns, parts),
                 kind.part_columns)
     totals = _totals(model, eq, st, tables)
+    view.totals, view.tables, view.rating = totals, tables, model.generator.rating
+    view.settings = {(name, key): value for _t, name, key, value in cond.settings}
+    for kind, comps in late:  # results that follow from the totals
+        rows = [c.point_row(view) for c in comps]
+        tables[kind.results] = ResultTable([c.name for c in comps],
+                                           _columns(kind.columns, rows), kind.columns)
     return PointResult(
         converged=True, iterations=nr.iterations, residual=nr.residual,
         evaluations=nr.evaluations, message="converged", model_name=model.name,
@@ -512,6 +522,14 @@ class PointView:
         self.heaters = heaters
         self._steam = steam
         self.records = records or {}
+        self.totals: dict = {}
+        self.tables: dict = {}
+        self.rating = math.nan
+        self.settings: dict = {}
+
+    def setting(self, component, key: str, default):
+        """A component's case setting ``key`` (SI), or ``default``."""
+        return self.settings.get((component.name, key), default)
 
     def saturation_temperature(self, node: str) -> float:
         """Saturation temperature [K] at the node's pressure."""
