@@ -46,7 +46,8 @@ from ..store import StudyData, read_study, to_display, write_whole
 from ..units import to_display_unit
 
 __all__ = ["CHARTS", "FIGSIZE", "DPI", "plot_study", "plot_willans", "plot_heat_rate",
-           "plot_node_pressures", "plot_bleed_flows", "plot_expansion", "saturation_line"]
+           "plot_node_pressures", "plot_bleed_flows", "plot_expansion", "saturation_line",
+           "PROFILE_CHARTS", "plot_time_series", "plot_load_duration", "profile_times"]
 
 FIGSIZE = (8.0, 5.0)  # [in]
 DPI = 100  # [1/in] so a chart is 800 x 500 pixels
@@ -443,3 +444,99 @@ def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
         write_whole(out, lambda tmp, fig=fig: fig.savefig(tmp, dpi=DPI))
         written.append(out)
     return written
+
+
+def profile_times(st: StudyData):
+    """Time stamps of a profile's points and the hours each stands for.
+
+    Parameters
+    ----------
+    st : a profile study [-]
+
+    Returns
+    -------
+    times, hours : list of datetime or None, float
+        The points' time stamps (``None`` when the profile has no ``time``
+        column or one cannot be read) and the duration of one point [h]: the
+        median step between stamps, else 1 h.
+    """
+    import datetime as _dt
+
+    raw = st.inputs.get("time")
+    if raw is None:
+        return None, 1.0
+    try:
+        times = [_dt.datetime.fromisoformat(str(t).strip()) for t in raw]
+    except ValueError:
+        return None, 1.0
+    if len(times) > 1:
+        steps = np.diff([t.timestamp() for t in times]) / 3600.0
+        steps = steps[steps > 0]
+        if steps.size:
+            return times, float(np.median(steps))
+    return times, 1.0
+
+
+def plot_time_series(studies: Sequence[StudyData]) -> Figure:
+    """Generator output [MW] and heat rate [kJ/kWh] of a profile against time."""
+    fig = _figure()
+    ax1 = fig.add_subplot(211)
+    ax2 = fig.add_subplot(212, sharex=ax1)
+    for k, st in enumerate(studies):
+        times, _dt_h = profile_times(st)
+        x_all = np.array(times, dtype=object) if times is not None else \
+            np.arange(st.n_points, dtype=float)
+        ok = st.ok
+        c = f"C{k % 10}"
+        name = _label(st, studies)
+        P = _disp(st, "totals/generator_output")
+        ax1.plot(x_all[ok], P[ok], color=c, linewidth=0.6, label=name)
+        if "totals/heat_rate" in st.data:
+            HR = _disp(st, "totals/heat_rate")
+            ax2.plot(x_all[ok], HR[ok], color=c, linewidth=0.6, label=name)
+        cz = st.cautions
+        if cz is not None:
+            ring = ok & (cz > 0)
+            if ring.any():
+                ax1.plot(x_all[ring], P[ring], linestyle="none", marker="o", markersize=5,
+                         markerfacecolor="none", markeredgecolor=_CAUTION, markeredgewidth=0.7,
+                         label="cautions")
+    ax1.set_ylabel("output [MW]")
+    ax2.set_ylabel("heat rate [kJ/kWh]")
+    ax2.set_xlabel("time" if any(profile_times(s)[0] is not None for s in studies)
+                   else "profile point")
+    ax1.set_title("Output and turbine-cycle heat rate over the profile")
+    for ax in (ax1, ax2):
+        ax.grid(True, alpha=0.3)
+    ax1.legend(fontsize=7, loc="upper right")
+    fig.autofmt_xdate()
+    fig.subplots_adjust(left=0.11, right=0.97, top=0.93, bottom=0.2, hspace=0.15)
+    _note(fig, studies)
+    return fig
+
+
+def plot_load_duration(studies: Sequence[StudyData]) -> Figure:
+    """Load-duration curve: generator output [MW] against the hours [h] it is
+    reached or exceeded over the profile."""
+    fig = _figure()
+    ax = fig.add_subplot(111)
+    for k, st in enumerate(studies):
+        _times, dt_h = profile_times(st)
+        P = _disp(st, "totals/generator_output")[st.ok]
+        P = np.sort(P)[::-1]
+        hours = dt_h * np.arange(1, len(P) + 1)
+        ax.step(hours, P, where="pre", color=f"C{k % 10}", label=_label(st, studies))
+    ax.set_xlabel("hours at or above this output [h]")
+    ax.set_ylabel("generator output [MW]")
+    ax.set_title("Load-duration curve")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=8, loc="upper right")
+    fig.subplots_adjust(left=0.11, right=0.97, top=0.92, bottom=0.15)
+    _note(fig, studies)
+    return fig
+
+
+PROFILE_CHARTS = {
+    "time_series": plot_time_series,
+    "load_duration": plot_load_duration,
+}
