@@ -338,7 +338,7 @@ def study_report(path) -> str:
     from . import charts as ch
 
     st = read_study(path)
-    profile = ch._is_profile(st)
+    profile = ch.is_profile(st)
     kind = "profile" if profile else "study"
     body = [f"<h1>{'Profile' if profile else 'Study'}: {_esc(st.name)}</h1>",
             f"<p>{_esc(st.attrs.get('model_name', ''))}"
