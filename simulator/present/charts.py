@@ -725,10 +725,9 @@ def plot_time_series(studies: Sequence[StudyData]) -> Figure:
         cz = st.cautions
         if cz is not None:
             ring = ok & (cz > 0)
-            if ring.any():
-                ax1.plot(x_all[ring], P[ring], linestyle="none", marker="o", markersize=5,
-                         markerfacecolor="none", markeredgecolor=_CAUTION, markeredgewidth=0.7,
-                         label="cautions")
+            _rings(ax1, x_all[ring], P[ring], small=True)
+            if "totals/heat_rate" in st.data:
+                _rings(ax2, x_all[ring], HR[ring], small=True)
     ax1.set_ylabel("output [MW]")
     ax2.set_ylabel("heat rate [kJ/kWh]")
     ax2.set_xlabel("time" if any(profile_times(s)[0] is not None for s in studies)
@@ -751,9 +750,14 @@ def plot_load_duration(studies: Sequence[StudyData]) -> Figure:
     for k, st in enumerate(studies):
         _times, dt_h = profile_times(st)
         P = _disp(st, "totals/generator_output")[st.ok]
-        P = np.sort(P)[::-1]
+        order = np.argsort(-P, kind="stable")
+        P = P[order]
         hours = dt_h * np.arange(1, len(P) + 1)
         ax.step(hours, P, where="pre", color=f"C{k % 10}", label=_label(st, studies))
+        cz = st.cautions
+        if cz is not None:
+            ring = (cz[st.ok] > 0)[order]
+            _rings(ax, hours[ring], P[ring], small=True)
     ax.set_xlabel("hours at or above this output [h]")
     ax.set_ylabel("generator output [MW]")
     ax.set_title("Load-duration curve")

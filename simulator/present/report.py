@@ -8,6 +8,8 @@ sheet inline; there is no script and nothing is fetched from a network.
   diagram, the same with the differences from design, the cautions, the
   totals and every result table of the point, and the provenance (model and
   case file names and SHA-256, partload version, property backend, date).
+* **A point of a study** (:func:`study_point`): the same page for one point of a
+  result file, re-solved from the study's case (checked unchanged).
 * **Study** (:func:`study_report`, from a result file): the charts of
   :data:`simulator.present.charts.CHARTS`, a summary table per series and the
   provenance stored in the file.
@@ -36,7 +38,7 @@ import numpy as np
 from ..errors import InputError
 from ..version import __version__
 
-__all__ = ["point_report", "study_report", "profile_totals", "write_report"]
+__all__ = ["point_report", "study_report", "study_point", "profile_totals", "write_report"]
 
 _STYLE = """
 body{font-family:Helvetica,Arial,sans-serif;font-size:13px;margin:16px 24px;color:#111;
@@ -115,7 +117,9 @@ def _file_sha(path) -> str:
 
 # --- a point ----------------------------------------------------------------------------
 
-def point_report(case, *, backend: str | None = None, design: bool = True) -> str:
+def point_report(case, *, backend: str | None = None, design: bool = True,
+                 conditions=None, label: str = "", source: list | None = None,
+                 check_limits: bool = True) -> str:
     """The report of one operating point of a case, as HTML text.
 
     Parameters
@@ -124,6 +128,11 @@ def point_report(case, *, backend: str | None = None, design: bool = True) -> st
         file [-]
     backend : steam properties (default: the case's) [-]
     design : also solve the design point and draw the difference view [-]
+    conditions : the point's conditions (default: the case's own) [-]
+    label : what the point is, shown with the case name (a study point) [-]
+    source : further provenance rows ``[item, value]`` (HTML) [-]
+    check_limits : refuse a point beyond the valves wide open (``False``: solve
+        it as a what-if, as a study run with ``--beyond-limits`` did) [-]
     """
     from ..cautions.checks import check_point
     from ..plant.case import design_conditions, load_case
@@ -135,11 +144,13 @@ def point_report(case, *, backend: str | None = None, design: bool = True) -> st
         case = load_case(case)
     model = case.model
     backend = backend or case.backend
-    r = solve_point(model, case.conditions, backend)
-    cautions = check_point(model, case.conditions, r)
+    cond = conditions if conditions is not None else case.conditions
+    r = solve_point(model, cond, backend, check_limits=check_limits)
+    cautions = check_point(model, cond, r)
     d = solve_point(model, design_conditions(model), backend) if design else None
     info = point_to_dict(r, case.name, cautions)
-    body = [f"<h1>Operating point: {_esc(case.name)}</h1>",
+    name = case.name + (f", {label}" if label else "")
+    body = [f"<h1>Operating point: {_esc(name)}</h1>",
             f'<p>{_esc(model.name)}{": " + _esc(case.description) if case.description else ""}'
             f"</p>"]
     body.append("<h2>Provenance</h2>")
@@ -153,8 +164,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True) -> st
         ["solver", _esc(f"converged in {r.iterations} Newton iterations, largest residual "
                         f"{r.residual:.1e}")],
         ["governing", _esc(f"valves {r.valve_mode}, throttle pressure {r.pressure_mode}")],
-        ["report written", _esc(_now())],
-    ], left=2))
+    ] + list(source or []) + [["report written", _esc(_now())]], left=2))
     body.append("<h2>Cautions</h2>")
     if cautions:
         body.append("<ul>" + "".join(
@@ -164,11 +174,11 @@ def point_report(case, *, backend: str | None = None, design: bool = True) -> st
         body.append("<p>None of the operating-limit checks is exceeded (the checks cover "
                     "only what the model knows).</p>")
     body.append("<h2>Heat balance</h2>")
-    svg = diagram_svg(model, r, case_name=case.name, cautions=cautions)
+    svg = diagram_svg(model, r, case_name=name, cautions=cautions)
     body.append(f'<div class="figure">{_svg_body(svg)}</div>')
     if d is not None:
         body.append("<h2>Difference from design</h2>")
-        svg = diagram_svg(model, r, case_name=case.name, design=d, cautions=cautions)
+        svg = diagram_svg(model, r, case_name=name, design=d, cautions=cautions)
         body.append(f'<div class="figure">{_svg_body(svg)}</div>')
     body.append("<h2>Totals</h2>")
     tu = info["units"]["totals"]
@@ -213,7 +223,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True) -> st
             rows.append(cells)
         body.append(f"<h2>{_esc(group.replace('_', ' ').capitalize())}</h2>")
         body.append(_table(heads, rows, units, left=len(heads) - len(cols)))
-    return _page(f"partload: {case.name}", body)
+    return _page(f"partload: {name}", body)
 
 
 def _svg_body(svg: str) -> str:
@@ -381,15 +391,70 @@ def study_report(path) -> str:
     return _page(f"partload {kind}: {st.name}", body)
 
 
-def write_report(source, output=None, *, backend: str | None = None) -> Path:
+def study_point(path, index: int, backend: str | None = None):
+    """The case and conditions of point ``index`` of a study result file.
+
+    The case file is read from the path stored in the result (relative to the
+    folder the study ran in, else to the result file's folder) and must be the
+    one the study ran: same SHA-256, same number of points.
+
+    Parameters
+    ----------
+    path : the result file [-]
+    index : the point, counted from 0 as in the file's ``/points`` [-]
+    backend : steam properties (default: the study's) [-]
+
+    Returns
+    -------
+    case, conditions, label, rows, backend, check_limits
+        ``rows``: provenance rows naming the result file and the point;
+        ``check_limits`` as the study ran (off after ``--beyond-limits``).
+    """
+    from ..errors import ResultFileError
+    from ..plant.case import load_case
+    from ..store import read_study
+    from ..study.plan import plan_study
+
+    st = read_study(path)
+    if not 0 <= index < st.n_points:
+        raise InputError(f"{st.path}: point {index} does not exist; the study has points 0 "
+                         f"to {st.n_points - 1}", key="--point")
+    stored = str(st.attrs.get("case_file", ""))
+    candidates = [Path(stored), st.path.parent / Path(stored).name]
+    case_path = next((c for c in candidates if c.is_file()), None)
+    if case_path is None:
+        raise ResultFileError(f"{st.path}: its case file {stored} is not found (looked in "
+                              f"{', '.join(str(c) for c in candidates)}); run the report "
+                              f"from the folder the study ran in")
+    case = load_case(case_path)
+    if case.sha256 != st.attrs.get("case_sha256"):
+        raise ResultFileError(f"{st.path}: the case file {case_path} changed since the study "
+                              f"ran (SHA-256 differs); its points cannot be re-solved as "
+                              f"they were")
+    plan = plan_study(case, backend or str(st.attrs.get("property_backend", "")) or None)
+    if plan.n_points < st.n_points:
+        raise ResultFileError(f"{st.path}: the case plans {plan.n_points} points, the file "
+                              f"has {st.n_points}")
+    label = st.labels[index]
+    rows = [["result file", f"<code>{_esc(st.path.name)}</code>"],
+            ["point of the study", _esc(f"{index} ({label})")]]
+    check = bool(int(st.attrs.get("check_limits", 1)))
+    return case, plan.conditions[index], label, rows, plan.backend, check
+
+
+def write_report(source, output=None, *, backend: str | None = None,
+                 point: int | None = None) -> Path:
     """Write the report of a case file (one point) or a result file (a study).
 
     Parameters
     ----------
     source : a case file (``.toml``) or a study result file (``.h5``) [-]
     output : the HTML file (default: ``results/<case>_report.html`` for a
-        case, ``<result stem>_report.html`` next to a result file) [-]
+        case, ``<result stem>_report.html`` next to a result file,
+        ``<result stem>_point<N>_report.html`` for one of its points) [-]
     backend : steam properties for a case (default: the case's) [-]
+    point : with a result file, the report of this point (index from 0)
+        instead of the study's: the point re-solved from the study's case [-]
 
     Returns
     -------
@@ -402,6 +467,11 @@ def write_report(source, output=None, *, backend: str | None = None) -> Path:
     if source.suffix.lower() == ".toml":
         text = point_report(source, backend=backend)
         default = Path("results") / f"{source.stem}_report.html"
+    elif source.suffix.lower() in (".h5", ".hdf5") and point is not None:
+        case, cond, label, rows, be, check = study_point(source, point, backend)
+        text = point_report(case, backend=be, conditions=cond, label=label, source=rows,
+                            check_limits=check)
+        default = source.with_name(f"{source.stem}_point{point}_report.html")
     elif source.suffix.lower() in (".h5", ".hdf5"):
         text = study_report(source)
         default = source.with_name(f"{source.stem}_report.html")
