@@ -88,6 +88,10 @@ def test_difference_view_shows_the_change_from_design():
     dP = (r.totals["generator_output"] - d.totals["generator_output"]) / 1e6
     assert f"({dP:+.2f})" in joined
     assert dP > 0  # README worked example: output rises with HP8 out (+6.2 %)
+    # the numbers the README's worked example "a page to send" quotes (regression values)
+    for quoted in ("generator output 343.49 (+20.09) MW",
+                   "turbine-cycle heat rate 7927.2 (+58.4) kJ/kWh", "79.10 (+7.10) bar"):
+        assert quoted in texts, quoted
     # the heater taken out is marked as such
     assert "out of service" in joined
     # the closed extraction E8 carries no steam: drawn grey with 0.00 kg/s
