@@ -139,6 +139,24 @@ def test_profile_totals_are_sums_of_the_points(reports):
     assert "2030-02" in text
 
 
+def test_profile_times_a_sweep_axis_totals_each_series(tmp_path):
+    (tmp_path / "p.csv").write_text(PROFILE, encoding="utf-8")
+    h5 = _study(tmp_path, "ps", '[profile]\nfile = "p.csv"\n[sweep]\n'
+                'heater_out = ["none", "HP8"]\n')
+    st = read_study(h5)
+    none, hp8 = profile_totals(st, 0), profile_totals(st, 1)
+    assert [r["hours"] for r in none] == [r["hours"] for r in hp8] == [2.0, 3.0, 5.0]
+    # the same demand in both series (the profile's outputs, invented above)
+    assert none[-1]["energy"] == pytest.approx(hp8[-1]["energy"], rel=1e-9)
+    # HP8 out of service: higher heat rate at the same output (less regeneration;
+    # common practice for a top heater out of service)
+    assert hp8[-1]["heat_rate"] > none[-1]["heat_rate"]
+    out = tmp_path / "ps.html"
+    assert main(["report", str(h5), "--output", str(out)]) == 0
+    text = out.read_text(encoding="utf-8")
+    assert "<h3>heater_out=none</h3>" in text and "<h3>heater_out=HP8</h3>" in text
+
+
 def test_a_point_of_a_study_is_re_solved_as_stored(reports, tmp_path):
     from partload.present.report import study_point
     from partload.solve.point import solve_point

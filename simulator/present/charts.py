@@ -706,28 +706,31 @@ def profile_times(st: StudyData):
 
 
 def plot_time_series(studies: Sequence[StudyData]) -> Figure:
-    """Generator output [MW] and heat rate [kJ/kWh] of a profile against time."""
+    """Generator output [MW] and heat rate [kJ/kWh] of a profile against time,
+    one line per file and series."""
     fig = _figure()
     ax1 = fig.add_subplot(211)
     ax2 = fig.add_subplot(212, sharex=ax1)
-    for k, st in enumerate(studies):
+    j = 0
+    for st in studies:
         times, _dt_h = profile_times(st)
         x_all = np.array(times, dtype=object) if times is not None else \
             np.arange(st.n_points, dtype=float)
-        ok = st.ok
-        c = f"C{k % 10}"
-        name = _label(st, studies)
         P = _disp(st, "totals/generator_output")
-        ax1.plot(x_all[ok], P[ok], color=c, linewidth=0.6, label=name)
-        if "totals/heat_rate" in st.data:
-            HR = _disp(st, "totals/heat_rate")
-            ax2.plot(x_all[ok], HR[ok], color=c, linewidth=0.6, label=name)
+        HR = _disp(st, "totals/heat_rate") if "totals/heat_rate" in st.data else None
         cz = st.cautions
-        if cz is not None:
-            ring = ok & (cz > 0)
-            _rings(ax1, x_all[ring], P[ring], small=True)
-            if "totals/heat_rate" in st.data:
-                _rings(ax2, x_all[ring], HR[ring], small=True)
+        for _s, text, idx in _curves(st):
+            c = f"C{j % 10}"
+            j += 1
+            name = _label(st, studies) + (f": {text}" if text else "")
+            ax1.plot(x_all[idx], P[idx], color=c, linewidth=0.6, label=name)
+            if HR is not None:
+                ax2.plot(x_all[idx], HR[idx], color=c, linewidth=0.6)
+            if cz is not None:
+                ring = idx[cz[idx] > 0]
+                _rings(ax1, x_all[ring], P[ring], small=True)
+                if HR is not None:
+                    _rings(ax2, x_all[ring], HR[ring], small=True)
     ax1.set_ylabel("output [MW]")
     ax2.set_ylabel("heat rate [kJ/kWh]")
     ax2.set_xlabel("time" if any(profile_times(s)[0] is not None for s in studies)
@@ -735,35 +738,40 @@ def plot_time_series(studies: Sequence[StudyData]) -> Figure:
     ax1.set_title("Output and turbine-cycle heat rate over the profile")
     for ax in (ax1, ax2):
         ax.grid(True, alpha=0.3)
-    ax1.legend(fontsize=7, loc="upper right")
     fig.autofmt_xdate()
     fig.subplots_adjust(left=0.11, right=0.97, top=0.93, bottom=0.2, hspace=0.15)
+    _legend_beside(fig, [ln for ln in ax1.lines if not ln.get_label().startswith("_")])
     _note(fig, studies)
     return fig
 
 
 def plot_load_duration(studies: Sequence[StudyData]) -> Figure:
     """Load-duration curve: generator output [MW] against the hours [h] it is
-    reached or exceeded over the profile."""
+    reached or exceeded over the profile, one line per file and series."""
     fig = _figure()
     ax = fig.add_subplot(111)
-    for k, st in enumerate(studies):
+    fig.subplots_adjust(left=0.11, right=0.97, top=0.92, bottom=0.2)
+    j = 0
+    for st in studies:
         _times, dt_h = profile_times(st)
-        P = _disp(st, "totals/generator_output")[st.ok]
-        order = np.argsort(-P, kind="stable")
-        P = P[order]
-        hours = dt_h * np.arange(1, len(P) + 1)
-        ax.step(hours, P, where="pre", color=f"C{k % 10}", label=_label(st, studies))
+        P_all = _disp(st, "totals/generator_output")
         cz = st.cautions
-        if cz is not None:
-            ring = (cz[st.ok] > 0)[order]
-            _rings(ax, hours[ring], P[ring], small=True)
+        for _s, text, idx in _curves(st):
+            P = P_all[idx]
+            order = np.argsort(-P, kind="stable")
+            P = P[order]
+            hours = dt_h * np.arange(1, len(P) + 1)
+            ax.step(hours, P, where="pre", color=f"C{j % 10}",
+                    label=_label(st, studies) + (f": {text}" if text else ""))
+            j += 1
+            if cz is not None:
+                ring = (cz[idx] > 0)[order]
+                _rings(ax, hours[ring], P[ring], small=True)
     ax.set_xlabel("hours at or above this output [h]")
     ax.set_ylabel("generator output [MW]")
     ax.set_title("Load-duration curve")
     ax.grid(True, alpha=0.3)
-    ax.legend(fontsize=8, loc="upper right")
-    fig.subplots_adjust(left=0.11, right=0.97, top=0.92, bottom=0.15)
+    _legend_beside(fig, [ln for ln in ax.lines if not ln.get_label().startswith("_")])
     _note(fig, studies)
     return fig
 

@@ -293,12 +293,14 @@ def _series_summary(st) -> str:
     return _table(heads, rows, units)
 
 
-def profile_totals(st) -> list[dict]:
+def profile_totals(st, series: int | None = None) -> list[dict]:
     """Monthly and annual totals of a profile study.
 
     Parameters
     ----------
     st : a profile study read with :func:`simulator.store.read_study` [-]
+    series : only the points of this series (a profile times a sweep axis has
+        one series per swept value, each a whole profile) [-]
 
     Returns
     -------
@@ -319,6 +321,7 @@ def profile_totals(st) -> list[dict]:
          else np.full(st.n_points, np.nan))
     ok = st.ok & np.isfinite(P)
     periods = [f"{t.year:04d}-{t.month:02d}" for t in times] if times is not None else None
+    mine = np.ones(st.n_points, dtype=bool) if series is None else st.series == series
 
     def total(sel, name):
         s = sel & ok
@@ -331,9 +334,9 @@ def profile_totals(st) -> list[dict]:
     out = []
     if periods is not None:
         arr = np.array(periods)
-        for name in dict.fromkeys(periods):
-            out.append(total(arr == name, name))
-    out.append(total(np.ones(st.n_points, dtype=bool), "year" if periods else "all points"))
+        for name in dict.fromkeys(arr[mine].tolist()):
+            out.append(total((arr == name) & mine, name))
+    out.append(total(mine, "year" if periods else "all points"))
     return out
 
 
@@ -368,13 +371,18 @@ def study_report(path) -> str:
     body.append(_series_summary(st))
     if profile:
         body.append("<h2>Monthly and annual totals</h2>")
-        rows = []
-        for t in profile_totals(st):
-            rows.append([_esc(t["period"]), _num(t["hours"], 0), _num(t["solved_hours"], 0),
-                         _num(t["energy"], 0), _num(t["heat"], 0), _num(t["heat_rate"], 1)])
-        body.append(_table(["period", "hours", "solved hours", "energy generated",
-                            "heat added", "average heat rate"], rows,
-                           ["", "h", "h", "MWh", "MWh", "kJ/kWh"]))
+        labels = st.series_labels if len(st.series_labels) > 1 else [None]
+        for k, label in enumerate(labels):
+            if label is not None:
+                body.append(f"<h3>{_esc(label)}</h3>")
+            rows = []
+            for t in profile_totals(st, None if label is None else k):
+                rows.append([_esc(t["period"]), _num(t["hours"], 0),
+                             _num(t["solved_hours"], 0), _num(t["energy"], 0),
+                             _num(t["heat"], 0), _num(t["heat_rate"], 1)])
+            body.append(_table(["period", "hours", "solved hours", "energy generated",
+                                "heat added", "average heat rate"], rows,
+                               ["", "h", "h", "MWh", "MWh", "kJ/kWh"]))
         body.append('<p class="note">Average heat rate: heat added over energy generated in '
                     "the period (converged points only), the turbine-cycle heat rate weighted "
                     "by energy.</p>")
