@@ -105,6 +105,8 @@ def test_point_report_names_files_hashes_and_cautions(reports):
     tags = _tags(reports["point"])
     assert sum(1 for t, a in tags if t == "svg" and a.get("class") == "heat-balance") == 2
     assert "Difference from design" in text
+    ids = [a["id"] for _t, a in tags if "id" in a]
+    assert ids and len(ids) == len(set(ids))  # two diagrams on one page: no id twice
     assert "governing stage" in text and "V1" in text
 
 

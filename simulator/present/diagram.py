@@ -38,6 +38,7 @@ kJ/kWh).
 
 from __future__ import annotations
 
+import hashlib
 import math
 import textwrap
 from dataclasses import dataclass
@@ -138,8 +139,9 @@ class _Fmt:
 
 
 class _Svg:
-    def __init__(self):
+    def __init__(self, ident: str = "arrow"):
         self.parts: list[str] = []
+        self.ident = ident  # id of the arrow marker, unique on a page of several diagrams
 
     def add(self, text: str) -> None:
         self.parts.append(text)
@@ -162,7 +164,7 @@ class _Svg:
     def line(self, points, colour="#000000", width=1.5, dash=None, arrow=False) -> None:
         pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in points)
         d = f' stroke-dasharray="{dash}"' if dash else ""
-        a = ' marker-end="url(#arrow)"' if arrow else ""
+        a = f' marker-end="url(#{self.ident})"' if arrow else ""
         self.add(f'<polyline points="{pts}" fill="none" stroke="{colour}" '
                  f'stroke-width="{width}"{d}{a}/>')
 
@@ -227,7 +229,9 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
     """
     fmt = _Fmt(design is not None)
     lay = layout(model.graph, model.throttle.node, COLUMN if design is None else 1.3 * COLUMN)
-    svg = _Svg()
+    svg = _Svg("arrow-" + hashlib.sha256(repr((model.name, case_name, design is not None,
+                                                result.totals.get("generator_output")))
+                                          .encode()).hexdigest()[:10])
     nodes = result.tables["nodes"]
     ni = {n: i for i, n in enumerate(nodes.names)}
     dnodes = design.tables["nodes"] if design is not None else None
@@ -389,7 +393,8 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
         f'<svg xmlns="http://www.w3.org/2000/svg" width="{width:.0f}" height="{height:.0f}" '
         f'viewBox="0 0 {width:.0f} {height:.0f}" class="heat-balance">',
         f"<title>{escape(head)}</title>",
-        '<defs><marker id="arrow" viewBox="0 0 10 10" refX="9" refY="5" markerWidth="6" '
+        f'<defs><marker id="{svg.ident}" viewBox="0 0 10 10" refX="9" refY="5" '
+        'markerWidth="6" '
         'markerHeight="6" orient="auto-start-reverse"><path d="M0,0 L10,5 L0,10 z" '
         'fill="#555555"/></marker></defs>',
         f'<rect x="0" y="0" width="{width:.0f}" height="{height:.0f}" fill="#ffffff"/>',
