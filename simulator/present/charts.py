@@ -422,7 +422,8 @@ def _design_pressures(st: StudyData) -> dict:
     from ..plant.model import build_model
 
     text = st.texts.get("model_file", "")
-    model = build_model(tomllib.loads(text), text, file=str(st.attrs.get("model_file", "")))
+    name = st.attrs.get("model_path", st.attrs.get("model_file", "<model>"))
+    model = build_model(tomllib.loads(text), text, file=str(name))
     return dict(model.design_pressure)
 
 

@@ -38,7 +38,8 @@ import numpy as np
 from ..errors import InputError
 from ..version import __version__
 
-__all__ = ["point_report", "study_report", "study_point", "profile_totals", "write_report"]
+__all__ = ["point_report", "study_report", "study_point", "profile_totals", "write_report",
+           "stored_path"]
 
 _STYLE = """
 body{font-family:Helvetica,Arial,sans-serif;font-size:13px;margin:16px 24px;color:#111;
@@ -106,6 +107,12 @@ def _page(title: str, body: list[str]) -> str:
 
 def _now() -> str:
     return dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat()
+
+
+def stored_path(attrs: dict, what: str) -> str:
+    """The path of the model, case or profile file a result file names [-]:
+    attribute ``<what>_path`` (format 3), else ``<what>_file`` (earlier formats)."""
+    return str(attrs.get(f"{what}_path", attrs.get(f"{what}_file", "")))
 
 
 def _file_sha(path) -> str:
@@ -243,13 +250,14 @@ def _provenance(st) -> list[list[str]]:
                        ("software_version", "partload version of the study"),
                        ("property_backend", "steam properties"),
                        ("created", "study created")):
-        if key in a:
+        if key.endswith("_file"):
+            v = stored_path(a, key[:-len("_file")])
+            if v:
+                rows.append([label, f"<code>{_esc(Path(v).name)}</code>"])
+        elif key in a:
             v = a[key]
-            if key.endswith(("_file", "sha256")):
-                v = Path(str(v)).name if key.endswith("_file") else v
-                rows.append([label, f"<code>{_esc(v)}</code>"])
-            else:
-                rows.append([label, _esc(v)])
+            rows.append([label, f"<code>{_esc(v)}</code>" if key.endswith("sha256")
+                         else _esc(v)])
     rows.append(["result file", f"<code>{_esc(st.path.name)}</code>"])
     rows.append(["result file SHA-256", f"<code>{_esc(_file_sha(st.path))}</code>"])
     rows.append(["partload version of this report", _esc(__version__)])
@@ -427,7 +435,9 @@ def study_point(path, index: int, backend: str | None = None):
     if not 0 <= index < st.n_points:
         raise InputError(f"{st.path}: point {index} does not exist; the study has points 0 "
                          f"to {st.n_points - 1}", key="--point")
-    stored = str(st.attrs.get("case_file", ""))
+    stored = stored_path(st.attrs, "case")
+    if not stored:
+        raise ResultFileError(f"{st.path} names no case file; its points cannot be re-solved")
     candidates = [Path(stored), st.path.parent / Path(stored).name]
     case_path = next((c for c in candidates if c.is_file()), None)
     if case_path is None:
