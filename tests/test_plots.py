@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 from matplotlib.image import imread
 from partload.cli.main import main
+from partload.plant.model import load_model
 from partload.present.charts import CHARTS, DPI, FIGSIZE, plot_study, saturation_line
 from partload.store import read_study
 
@@ -189,3 +190,104 @@ def test_valve_points_marked(tmp_path):
         marks = [ln for ln in ax.lines if ln.get_marker() == "D"]
         assert len(marks) == 3
         assert [t.get_text() for t in ax.texts] == ["CV1", "CV2", "CV3"]
+
+
+# ------------------------------------------------------- chart fixes (issue 14)
+
+def _red_rings(fig) -> int:
+    """Points ringed in the caution colour on every axes of a figure."""
+    from matplotlib.colors import to_rgba
+
+    red = to_rgba("#d62728")
+    n = 0
+    for ax in fig.axes:
+        for coll in ax.collections:
+            ec = coll.get_edgecolor()
+            if len(ec) and np.allclose(ec[0], red):
+                n += len(coll.get_offsets())
+    return n
+
+
+def test_pressure_ratio_beside_the_absolute_view(results):
+    from partload.present.charts import plot_node_pressures
+
+    st = read_study(results[0])
+    fig = plot_node_pressures([st])
+    absolute, ratio = fig.axes[0], fig.axes[1]
+    assert absolute.get_yscale() == "log" and ratio.get_yscale() == "linear"
+    nodes = st.names["nodes"]
+    design = load_model(MODEL).design_pressure
+    lines = [ln for ln in ratio.lines if len(ln.get_xdata()) == 5][:len(nodes)]
+    absolute_lines = [ln for ln in absolute.lines if len(ln.get_xdata()) == 5][:len(nodes)]
+    assert len(lines) == len(nodes)
+    for node, ln, ab in zip(nodes, lines, absolute_lines):
+        x, y = np.asarray(ln.get_xdata()), np.asarray(ln.get_ydata())
+        # hand calculation: each point is the absolute one over the node's design
+        # pressure, at throttle flow over the design 280 kg/s (models/demo_reheat_unit.toml)
+        np.testing.assert_allclose(y, np.asarray(ab.get_ydata()) * 1e5 / design[node],
+                                   rtol=1e-12)
+        np.testing.assert_allclose(x, np.asarray(ab.get_xdata()) / 280.0, rtol=1e-12)
+        k = int(np.argmin(abs(x - 1.0)))
+        assert x[k] == pytest.approx(1.0, rel=1e-9)
+        if node == "condenser":
+            # the case's 5 kPa over the design 6.8 kPa (hand calculation)
+            assert y[k] == pytest.approx(5.0 / 6.8, rel=1e-9)
+        elif node in ("throttle", "hp_inlet", "hp_mid", "cold_reheat", "hot_reheat"):
+            # at design flow the HP and IP nodes are at design pressure: the ellipse
+            # law makes them insensitive to the back pressure (common practice, no
+            # source; measured 1 - 3e-6)
+            assert y[k] == pytest.approx(1.0, abs=1e-4)
+
+
+def test_series_styles_are_distinct_beyond_a_few():
+    from partload.present.charts import series_style
+
+    styles = [series_style(j) for j in range(70)]
+    assert len(set(styles)) == 70  # 10 colours x 7 markers, co-prime: all pairs
+
+
+def test_legends_inside_the_figure_and_rings_and_captions_on_every_chart(results):
+    from partload.present.charts import plot_expansion
+
+    studies = [read_study(results[0]), read_study(results[1])]
+    assert all((st.cautions > 0).any() for st in studies)  # HP8 out at full flow
+    for name, fn in CHARTS.items():
+        fig = fn(studies)
+        fig.canvas.draw()
+        renderer = fig.canvas.get_renderer()
+        box = fig.bbox
+        legends = list(fig.legends) + [ax.get_legend() for ax in fig.axes if ax.get_legend()]
+        assert legends, name
+        for leg in legends:
+            bb = leg.get_window_extent(renderer)
+            assert bb.x0 >= box.x0 - 0.5 and bb.x1 <= box.x1 + 0.5, name
+            assert bb.y0 >= box.y0 - 0.5 and bb.y1 <= box.y1 + 0.5, name
+        # the axes keep clear of the legends
+        right = min(leg.get_window_extent(renderer).x0 for leg in fig.legends)
+        for ax in fig.axes:
+            assert ax.get_window_extent(renderer).x1 <= right, name
+        assert _red_rings(fig) > 0, f"{name}: no caution rings"
+        note = " ".join(t.get_text() for t in fig.texts).replace("\n", " ")
+        assert "valves throttle" in note and "throttle pressure sliding" in note, name
+        # back pressures of the two files (the cases above: 5 and 10 kPa)
+        assert "back pressure 5.00 kPa" in note and "back pressure 10.00 kPa" in note, name
+        assert "boiler efficiency not included" in note, name
+    # the h-s chart: every series of each file (3 loads x 2 series x 2 files), and the
+    # second LP casing of the reheat unit as a line of its own (dash-dotted)
+    fig = plot_expansion(studies)
+    entries = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert len(entries) == 12
+    assert sum("heater_out=HP8" in e for e in entries) == 6
+    ax = fig.axes[0]
+    assert any(ln.get_linestyle() == "-." for ln in ax.lines)
+
+
+def test_small_multiples_beyond_four_series(tmp_path):
+    from partload.present.charts import plot_bleed_flows
+
+    out = study(tmp_path, "bp", '[sweep]\nthrottle_flow_fraction = [0.6, 1.0]\n'
+                'exhaust_pressure = ["4 kPa", "6 kPa", "8 kPa", "10 kPa", "12 kPa"]\n')
+    st = read_study(out)
+    fig = plot_bleed_flows([st])
+    assert len(fig.axes) == 5  # one panel per back pressure
+    assert [ax.get_title() for ax in fig.axes] == st.series_labels

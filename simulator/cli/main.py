@@ -228,6 +228,9 @@ def build_parser() -> argparse.ArgumentParser:
     from . import study_commands as study_cli
 
     study_cli.add_commands(sub)
+    from .report_command import add_command as add_report
+
+    add_report(sub)
     return p
 
 

@@ -63,6 +63,17 @@ def _loads(text: str) -> list[float]:
     return vals
 
 
+def _numbers(text: str) -> list[int]:
+    """Whole numbers of at least 1, separated by commas."""
+    try:
+        vals = [int(x) for x in text.replace(";", ",").split(",") if x.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected numbers such as 1,3; got {text!r}") from None
+    if not vals or any(v < 1 for v in vals):
+        raise argparse.ArgumentTypeError("give series numbers from 1, such as 1,3")
+    return vals
+
+
 def run_study_command(case_path: str | Path, *, output: str | Path | None = None,
                       workers: int | None = None, scheduler: str | None = None,
                       resume: bool = False, force: bool = False, backend: str | None = None,
@@ -167,7 +178,8 @@ def _cmd_plot(args) -> int:
     from ..present.charts import plot_study
 
     paths = [args.result] + ([args.other] if args.other else [])
-    files = plot_study(paths, args.output, loads=args.loads)
+    files = plot_study(paths, args.output, loads=args.loads,
+                       series=[k - 1 for k in args.series] if args.series else None)
     for f in files:
         print(f)
     return 0
@@ -258,6 +270,9 @@ def add_commands(sub) -> None:
     c.add_argument("--loads", type=_loads, default=None, metavar="PCT,...",
                    help="throttle flows for the expansion lines, in %% of design "
                         "(default: lowest, middle and highest)")
+    c.add_argument("--series", type=_numbers, default=None, metavar="N,...",
+                   help="series drawn on the h-s chart, counted from 1 in the order of the "
+                        "file (default: every series)")
     c.set_defaults(func=_cmd_plot)
 
     c = sub.add_parser("demo", help="run the demo study: load sweep of the demo reheat unit "

@@ -1,0 +1,127 @@
+"""Tests of partload.present.diagram: the heat-balance diagram of a solved point (SVG).
+
+Every demo model (invented data) is drawn at its design point and, for a case,
+in the difference view.  The SVG must be well-formed XML, name every
+component of its model, and lay the graph out left to right (a component's
+outlet node in a later column than its inlet) with parallel branches on rows
+of their own.
+"""
+
+from __future__ import annotations
+
+import re
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import pytest
+from partload.cautions.checks import check_point
+from partload.plant.case import design_conditions, load_case
+from partload.plant.model import load_model
+from partload.present.diagram import diagram_svg, layout
+from partload.solve.point import solve_point
+
+ROOT = Path(__file__).resolve().parents[1]
+MODELS = sorted((ROOT / "models").glob("*.toml"))
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+def _texts(svg: str) -> list[str]:
+    root = ET.fromstring(svg)  # raises on XML that is not well formed
+    assert root.tag == f"{SVG}svg"
+    return ["".join(t.itertext()) for t in root.iter(f"{SVG}text")]
+
+
+@pytest.mark.parametrize("path", MODELS, ids=lambda p: p.stem)
+def test_design_diagram_is_xml_and_names_every_component(path):
+    model = load_model(path)
+    r = solve_point(model, design_conditions(model))
+    svg = diagram_svg(model, r)
+    texts = _texts(svg)
+    joined = "\n".join(texts)
+    for comp in model.components:
+        assert comp.name in joined, f"{comp.name} missing from the diagram of {path.name}"
+    for node in model.graph.nodes:
+        assert node in texts, f"node {node} is not labelled"
+    # the heat rate is shown, and says which one (common practice, no source: a heat
+    # rate without its kind is ambiguous)
+    assert "turbine-cycle heat rate" in joined
+    # the generator output of the box is the solved one, to two decimals in MW
+    # (regression value: the point's own total)
+    out = f"{r.totals['generator_output'] / 1e6:.2f} MW"
+    assert out in joined
+
+
+@pytest.mark.parametrize("path", MODELS, ids=lambda p: p.stem)
+def test_layout_runs_left_to_right_with_branches_apart(path):
+    model = load_model(path)
+    lay = layout(model.graph, model.throttle.node)
+    for comp in model.steam_path:
+        assert lay.column[comp.outlet] > lay.column[comp.inlet]
+    # every node where branches leave: its successors are on distinct rows (or a
+    # successor is also reached another way, a merge)
+    for n in model.graph.nodes:
+        succ = list(model.graph.successors(n))
+        if len(succ) > 1:
+            rows = [lay.row[m] for m in succ]
+            assert len(set(rows)) == len(rows)
+
+
+def test_parallel_lp_casings_of_the_reheat_unit_on_two_rows(reheat_model):
+    # the demo reheat unit has two LP casings from 'crossover' to 'condenser'
+    # (models/demo_reheat_unit.toml: LPA1..3 and LPB1..2)
+    lay = layout(reheat_model.graph, reheat_model.throttle.node)
+    assert lay.n_rows == 2
+    assert lay.row["lpa_x1"] != lay.row["lpb_x1"]
+    assert lay.row["condenser"] == lay.row["crossover"] == 0
+
+
+def test_difference_view_shows_the_change_from_design():
+    case = load_case(ROOT / "cases" / "reheat_top_heater_out.toml")
+    r = solve_point(case.model, case.conditions, case.backend)
+    d = solve_point(case.model, design_conditions(case.model), case.backend)
+    cautions = check_point(case.model, case.conditions, r)
+    svg = diagram_svg(case.model, r, case_name=case.name, design=d, cautions=cautions)
+    texts = _texts(svg)
+    joined = "\n".join(texts)
+    # output difference (hand calculation from the two solved totals, in MW, shown
+    # with two decimals and its sign)
+    dP = (r.totals["generator_output"] - d.totals["generator_output"]) / 1e6
+    assert f"({dP:+.2f})" in joined
+    assert dP > 0  # README worked example: output rises with HP8 out (+6.2 %)
+    # the numbers the README's worked example "a page to send" quotes (regression values)
+    for quoted in ("generator output 343.49 (+20.09) MW",
+                   "turbine-cycle heat rate 7927.2 (+58.4) kJ/kWh", "79.10 (+7.10) bar"):
+        assert quoted in texts, quoted
+    # the heater taken out is marked as such
+    assert "out of service" in joined
+    # the closed extraction E8 carries no steam: drawn grey with 0.00 kg/s
+    e8 = next(t for t in texts if t.startswith("E8 "))
+    assert re.match(r"E8 0\.00 \(-\d+\.\d\d\) kg/s", e8), e8
+    # the caution of the case (pressure rise at hp_mid) is ringed and named
+    assert "pressure_rise" in joined
+    assert "caution at hp_mid" in svg
+
+
+def test_governing_stage_valves_are_listed():
+    case = load_case(ROOT / "cases" / "industrial_nozzle_part_load.toml")
+    r = solve_point(case.model, case.conditions, case.backend)
+    texts = _texts(diagram_svg(case.model, r, case_name=case.name))
+    valves = r.tables["governing_valves"]
+    for k, name in enumerate(valves.names):
+        row = f"{name}  {100 * valves.columns['opening'][k]:.0f} %  "
+        assert any(t.startswith(row) for t in texts), row
+    # process steam leaves the industrial unit as such
+    assert any("to process" in t for t in texts)
+
+
+def test_a_model_without_heater_train_is_drawn():
+    # tests/helpers.variant: the demo reheat unit without heaters, pumps and feedwater
+    from helpers import variant
+
+    model = variant(heaters=False)
+    r = solve_point(model, design_conditions(model))
+    texts = _texts(diagram_svg(model, r))
+    joined = "\n".join(texts)
+    for comp in model.components:
+        assert comp.name in joined
+    assert "condenser" in texts  # the exhaust node is still labelled
