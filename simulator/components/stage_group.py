@@ -18,7 +18,7 @@ from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correct
 from ..physics.ellipse import ellipse_flow, flow_constant
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
 from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
-from ..steam.constants import H_ABOVE_SAT_VAP
+from ..steam.constants import H_ABOVE_SAT_VAP, P_CRIT, T_MAX, T_MIN
 from .base import Column, ReadContext, SteamPathComponent, Tunable
 from .reading import edge_names, ratio_list
 
@@ -54,6 +54,9 @@ class StageGroup(SteamPathComponent):
     correction : ``f(q_ratio, dh_ratio) -> eta/eta_design``
     design_flow : stated design flow [kg/s] where a node splits into parallel groups
     exhaust : the last-stage annulus if the group exhausts to a condenser
+    outlet_given : ``(key, value)`` when the model file gives the design outlet
+        state instead of the efficiency: ``("outlet_enthalpy", h [J/kg])`` or
+        ``("outlet_temperature", T [K])``; the efficiency is derived at calibration
     """
 
     table: ClassVar[str] = "stage_group"
@@ -93,11 +96,12 @@ class StageGroup(SteamPathComponent):
     q_design: float = 0.0
     design_flow: float | None = None
     exhaust: ExhaustEnd | None = None
+    outlet_given: tuple[str, float] | None = None
 
     @classmethod
     def read(cls, gr, ctx: ReadContext):
         gname, g_from, g_to = edge_names(gr, cls.table)
-        eta = gr.number("efficiency", lo=0.0, hi=1.0, lo_open=True)
+        eta, outlet = _design_expansion(gr)
         # The exhaust-loss curve already carries the last stage's losses at low
         # volume flow, so an exhaust group defaults to a constant efficiency.
         is_exhaust = gr.has("annulus_area") or gr.has("loss_curve")
@@ -117,10 +121,14 @@ class StageGroup(SteamPathComponent):
             if area and curve in ctx.curves:
                 exhaust = ExhaustEnd(area, ctx.curves[curve][0], ctx.curves[curve][1], curve)
         gr.finish(also_valid=("annulus_area", "loss_curve", "correction_table"))
-        if None in (gname, g_from, g_to, eta):
+        if None in (gname, g_from, g_to) or (eta is None and outlet is None):
             return None
-        return cls(gname, g_from, g_to, eta, cname or "constant", corr,
-                   alpha if alpha is not None else 1.0, design_flow=dflow, exhaust=exhaust)
+        group = cls(gname, g_from, g_to, eta if eta is not None else math.nan,
+                    cname or "constant", corr, alpha if alpha is not None else 1.0,
+                    design_flow=dflow, exhaust=exhaust, outlet_given=outlet)
+        if outlet is not None:
+            group.calibration_key = outlet[0]
+        return group
 
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
         v_in = steam.v_ph(p_in, h_in)
@@ -128,6 +136,8 @@ class StageGroup(SteamPathComponent):
         self.K = flow_constant(m, p_in, p_out, v_in)
         self.dh_s_design = h_in - steam.h_ps(p_out, s_in)
         self.q_design = m * v_in
+        if self.outlet_given is not None:
+            self.eta_design = self._derived_efficiency(h_in, p_out, steam, model)
         h_elep = h_in - self.eta_design * self.dh_s_design
         h_vap = steam.h_vap_sat(p_out)
         h_liq = steam.h_liq_sat(p_out)
@@ -139,6 +149,47 @@ class StageGroup(SteamPathComponent):
                              file=model.file, table=self.where, key="moisture_factor")
         self.eta_dry_design = self.eta_design / factor
         return self.expand(steam, p_in, h_in, p_out)[1]
+
+    def _derived_efficiency(self, h_in: float, p_out: float, steam, model) -> float:
+        """Design efficiency [-] from the outlet state the heat balance gives.
+
+        Parameters
+        ----------
+        h_in : design inlet enthalpy [J/kg]
+        p_out : design outlet pressure [Pa]
+        steam : property backend
+        model : the model being calibrated (for the file name of errors)
+        """
+        key, value = self.outlet_given
+        if key == "outlet_temperature":
+            T_sat = steam.T_sat(p_out) if p_out < P_CRIT else 0.0
+            if value <= T_sat + 0.05:
+                raise InputError(
+                    f"{value - 273.15:.2f} degC is the saturation temperature (or below it) "
+                    f"at the outlet pressure {p_out / 1e5:.5g} bar, where a temperature does "
+                    f"not fix the state; give 'outlet_enthalpy' instead",
+                    file=model.file, table=self.where, key=key)
+            h_out = steam.h_pT(p_out, value)
+        else:
+            h_out = value
+        eta = (h_in - h_out) / self.dh_s_design
+        if not 0.0 < eta <= 1.0:
+            raise InputError(
+                f"gives an outlet enthalpy of {h_out / 1e3:.2f} kJ/kg against an inlet "
+                f"enthalpy of {h_in / 1e3:.2f} kJ/kg and an isentropic outlet of "
+                f"{(h_in - self.dh_s_design) / 1e3:.2f} kJ/kg: an efficiency of {eta:.4f}, "
+                f"outside (0, 1]; check the value, its unit and the node pressures",
+                file=model.file, table=self.where, key=key)
+        return eta
+
+    def describe(self) -> list[str]:
+        if self.outlet_given is None:
+            return []
+        key, value = self.outlet_given
+        shown = (f"{value - 273.15:.2f} degC" if key == "outlet_temperature"
+                 else f"{value / 1e3:.2f} kJ/kg")
+        return [f"stage group {self.name!r}: design efficiency {self.eta_design * 100:.3f} % "
+                f"derived from {key} = {shown}"]
 
     def expand(self, steam, p_in: float, h_in: float, p_out: float, y_in: float | None = None):
         """Flow and end state of the group for inlet ``(p_in, h_in)`` and ``p_out``.
@@ -224,6 +275,32 @@ class StageGroup(SteamPathComponent):
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         r = record
         return (r[0], r[3], r[4], r[0] * (h_in - r[1]), r[6], r[7], r[5])
+
+
+OUTLET_KEYS = ("efficiency", "outlet_enthalpy", "outlet_temperature")
+
+
+def _design_expansion(gr):
+    """``(efficiency, outlet_given)`` of a stage group table: exactly one of
+    :data:`OUTLET_KEYS` (``None`` where absent or wrong)."""
+    given = [k for k in OUTLET_KEYS if gr.has(k)]
+    if len(given) > 1:
+        gr.problems.add(gr.where.child(given[1]).error(
+            f"give one of {', '.join(OUTLET_KEYS)}, not both {given[0]!r} and {given[1]!r}"))
+        return None, None
+    if not given:
+        gr.problems.add(gr.where.child("efficiency").error(
+            "missing required key (or give the design outlet state: 'outlet_enthalpy' or "
+            "'outlet_temperature' as the heat balance writes it)"))
+        return None, None
+    key = given[0]
+    if key == "efficiency":
+        return gr.number("efficiency", lo=0.0, hi=1.0, lo_open=True), None
+    if key == "outlet_enthalpy":
+        value = gr.quantity(key, "specific_enthalpy", positive=True)
+    else:
+        value = gr.quantity(key, "temperature", lo=T_MIN, hi=T_MAX)
+    return None, (key, value) if value is not None else None
 
 
 def _correction_table(tr, eta: float | None):
