@@ -193,3 +193,79 @@ def test_check_json_has_the_calibration(capsys):
     assert g["flow_constant"] > 0 and 0 < g["efficiency"] <= 1
     assert {h["heater"] for h in cal["heaters"]} >= {"HP8", "deaerator"}
     assert all(math.isfinite(h["closing_flow"]) for h in cal["heaters"])
+
+
+# ------------------------------------------------------------ 2. no silent defaults
+def test_exhaust_group_without_annulus_is_refused_unless_said():
+    data = demo_data()
+    lp = [g for g in data["stage_group"] if "annulus_area" in g]
+    for g in lp:
+        g.pop("annulus_area")
+        g.pop("loss_curve")
+    with pytest.raises(InputError, match="exhaust_loss = \"none\"") as exc:
+        _rebuild(data)
+    assert exc.value.key == "annulus_area" and lp[0]["name"] in str(exc.value)
+    for g in lp:
+        g["exhaust_loss"] = "none"
+    model = _rebuild(data)
+    assert all(c.exhaust is None and c.no_exhaust_loss for c in model.groups
+               if c.name in {g["name"] for g in lp})
+    # both at once is a contradiction
+    data = demo_data()
+    next(g for g in data["stage_group"] if "annulus_area" in g)["exhaust_loss"] = "none"
+    with pytest.raises(InputError, match="leave out annulus_area"):
+        _rebuild(data)
+
+
+def test_no_exhaust_loss_is_more_output(reheat_model):
+    # the exhaust loss is lost work: leaving it out (said explicitly) raises the output
+    data = demo_data()
+    for g in data["stage_group"]:
+        if "annulus_area" in g:
+            g.pop("annulus_area")
+            g.pop("loss_curve")
+            g["exhaust_loss"] = "none"
+    model = _rebuild(data)
+    p0 = solve_point(reheat_model, design_conditions(reheat_model), STEAM)
+    p1 = solve_point(model, design_conditions(model), STEAM)
+    assert p1.totals["generator_output"] > p0.totals["generator_output"] + 1e6
+
+
+def test_equal_split_of_parallel_groups_is_said(reheat_model):
+    # the demo's two LP flows leave 'crossover' without design_flow: equal shares
+    shares = [c for c in reheat_model.groups if c.equal_share_of]
+    assert len(shares) == 2
+    a, b = shares
+    assert reheat_model.design_group_flow[a.name] == reheat_model.design_group_flow[b.name]
+    assert any("equal share" in line for line in a.describe())
+
+
+def _curve_caution(model, flow, p_ex=None):
+    from partload.cautions.checks import check_point
+    from partload.plant.case import Conditions
+
+    cond = Conditions(throttle_flow=flow, exhaust_pressure=p_ex)
+    r = solve_point(model, cond, STEAM, check_limits=False)
+    return [c for c in check_point(model, cond, r, STEAM) if c.code == "exhaust_loss_curve"]
+
+
+def test_exhaust_loss_curve_caution_both_ways(reheat_model):
+    # design and 60 % flow lie on the demo curve (50-350 m/s): quiet
+    assert _curve_caution(reheat_model, 280.0) == []
+    assert _curve_caution(reheat_model, 168.0) == []
+    # 15 % flow: below the first point, named with curve and velocity
+    (c,) = _curve_caution(reheat_model, 42.0)
+    assert c.value < 50.0 and c.limit == 50.0 and "'lp_last_stage'" in c.message
+    assert "below its first point" in c.message
+    # 3 kPa back pressure at design flow: above the last point
+    (c,) = _curve_caution(reheat_model, 280.0, 3e3)
+    assert c.value > 350.0 and c.limit == 350.0 and "above its last point" in c.message
+
+
+def test_unitless_ttd_is_one_error_about_the_ttd():
+    data = demo_data()
+    data["heater"][0]["ttd"] = "-1.7"
+    with pytest.raises(InputError) as exc:
+        _rebuild(data)
+    text = str(exc.value)
+    assert "ttd" in text and "feedwater" not in text.replace("feedwater out", "")

@@ -34,6 +34,10 @@ The checks, in the order they are reported (:data:`CHECKS`):
     ``minimum_opening``.
 ``first_valve_only``
     Nozzle-group governing with only the first valve admitting steam.
+``exhaust_loss_curve``
+    A last-stage annulus velocity outside its exhaust-loss curve: the loss
+    was held at the curve's end value, an extrapolation the curve does not
+    support (a caution on the answer, not on the machine).
 
 Each check gives at most one caution per point, for the worst location, and
 names the other locations beyond the limit in its message; so a point has at
@@ -511,6 +515,35 @@ def _first_valve_only(pt: _Point) -> Caution | None:
         float(opening[0]), math.nan, gov.valves[0], "-")
 
 
+def _exhaust_loss_curve(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    off = []
+    for k in last_groups(model):
+        ex = model.groups[k].exhaust
+        if ex is None:
+            continue
+        vel = float(r.group_velocity[k])
+        lo, hi = ex.curve_velocity[0], ex.curve_velocity[-1]
+        if vel < lo:
+            off.append((lo - vel, model.groups[k].name, ex.curve_name, vel, lo, "below its "
+                        "first", ex.curve_loss[0]))
+        elif vel > hi:
+            off.append((vel - hi, model.groups[k].name, ex.curve_name, vel, hi, "above its "
+                        "last", ex.curve_loss[-1]))
+    if not off:
+        return None
+    off.sort(reverse=True)
+    _d, g, curve, vel, end, side, loss = off[0]
+    return Caution(
+        "exhaust_loss_curve",
+        f"Annulus velocity of group {g!r} is {vel:.4g} m/s, {side} point of its exhaust-loss "
+        f"curve {curve!r} ({end:.4g} m/s){_others([(o[1], f'{o[3]:.4g} m/s') for o in off[1:]])}"
+        f": the loss was held at the curve's end value {loss / 1e3:.4g} kJ/kg, which the curve "
+        f"does not support; output and heat rate here are less certain. Extend the curve to "
+        f"this velocity. {DEFERENCE}",
+        vel, end, g, "m/s")
+
+
 CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "valves_wide_open": _valves_wide_open,
     "pressure_rise": _pressure_rise,
@@ -523,6 +556,7 @@ CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "first_stage_overload": _first_stage_overload,
     "valve_low_opening": _valve_low_opening,
     "first_valve_only": _first_valve_only,
+    "exhaust_loss_curve": _exhaust_loss_curve,
 }
 """The checks by caution code, in the order their cautions are reported."""
 

@@ -97,6 +97,8 @@ class StageGroup(SteamPathComponent):
     design_flow: float | None = None
     exhaust: ExhaustEnd | None = None
     outlet_given: tuple[str, float] | None = None
+    no_exhaust_loss: bool = False
+    equal_share_of: str | None = None
 
     @classmethod
     def read(cls, gr, ctx: ReadContext):
@@ -115,6 +117,11 @@ class StageGroup(SteamPathComponent):
         alpha = gr.number("moisture_factor", default=1.0, lo=0.0, hi=3.0)
         dflow = gr.quantity("design_flow", "mass_flow", default=None, positive=True)
         exhaust = None
+        no_loss = gr.string("exhaust_loss", default=None, choices=("none",)) == "none"
+        if no_loss and is_exhaust:
+            gr.problems.add(gr.where.child("exhaust_loss").error(
+                "'none' says the group has no exhaust loss; leave out annulus_area and "
+                "loss_curve, or this key"))
         if is_exhaust:
             area = gr.quantity("annulus_area", "area", positive=True)
             curve = gr.string("loss_curve", choices=list(ctx.curves) or None)
@@ -125,7 +132,8 @@ class StageGroup(SteamPathComponent):
             return None
         group = cls(gname, g_from, g_to, eta if eta is not None else math.nan,
                     cname or "constant", corr, alpha if alpha is not None else 1.0,
-                    design_flow=dflow, exhaust=exhaust, outlet_given=outlet)
+                    design_flow=dflow, exhaust=exhaust, outlet_given=outlet,
+                    no_exhaust_loss=no_loss)
         if outlet is not None:
             group.calibration_key = outlet[0]
         return group
@@ -183,13 +191,21 @@ class StageGroup(SteamPathComponent):
         return eta
 
     def describe(self) -> list[str]:
-        if self.outlet_given is None:
-            return []
-        key, value = self.outlet_given
-        shown = (f"{value - 273.15:.2f} degC" if key == "outlet_temperature"
-                 else f"{value / 1e3:.2f} kJ/kg")
-        return [f"stage group {self.name!r}: design efficiency {self.eta_design * 100:.3f} % "
-                f"derived from {key} = {shown}"]
+        lines = []
+        if self.outlet_given is not None:
+            key, value = self.outlet_given
+            shown = (f"{value - 273.15:.2f} degC" if key == "outlet_temperature"
+                     else f"{value / 1e3:.2f} kJ/kg")
+            lines.append(f"stage group {self.name!r}: design efficiency "
+                         f"{self.eta_design * 100:.3f} % derived from {key} = {shown}")
+        if self.equal_share_of is not None:
+            lines.append(f"stage group {self.name!r}: no design_flow given; takes an equal "
+                         f"share of the flow the parallel groups leaving node "
+                         f"{self.equal_share_of!r} without one pass at design")
+        if self.no_exhaust_loss:
+            lines.append(f"stage group {self.name!r}: exhausts without an exhaust loss "
+                         f"(exhaust_loss = 'none')")
+        return lines
 
     def expand(self, steam, p_in: float, h_in: float, p_out: float, y_in: float | None = None):
         """Flow and end state of the group for inlet ``(p_in, h_in)`` and ``p_out``.

@@ -98,6 +98,8 @@ def march_design(model, steam) -> None:
                     file=file, table=f"stage_group '{(given or outs)[0].name}'",
                     key="design_flow")
             for c in outs:
+                if hasattr(c, "equal_share_of"):
+                    c.equal_share_of = n if c in free and len(free) > 1 else None
                 at = (c.where, c.calibration_key)
                 m = c.design_flow if c in given else rest / len(free)
                 model.design_group_flow[c.name] = m
@@ -216,6 +218,17 @@ def check_design_annulus(model, steam) -> None:
     curve's end value, silently.
     """
     p = model.design_pressure
+    ends = set(model.exhaust_nodes)
+    bare = [c for c in model.groups
+            if c.outlet in ends and c.exhaust is None and not c.no_exhaust_loss]
+    if bare:
+        raise InputError(
+            f"stage group(s) {', '.join(repr(c.name) for c in bare)} exhaust to "
+            f"{bare[0].outlet!r} without annulus_area and loss_curve: the exhaust loss would "
+            f"be left out (an optimistic output); give the last-stage annulus and its loss "
+            f"curve, or write exhaust_loss = \"none\" for an exhaust that has none (a "
+            f"back-pressure exhaust into a header)", file=model.file,
+            table=f"stage_group '{bare[0].name}'", key="annulus_area")
     for c in model.groups:
         if c.exhaust is None:
             continue
