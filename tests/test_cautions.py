@@ -227,6 +227,7 @@ def test_every_caution_defers_and_serialises(reheat_model):
 
 def test_registry_order_and_one_caution_per_code(reheat_model):
     assert CAUTION_CODES == tuple(CHECKS) == ("valves_wide_open", "pressure_rise",
+                                              "back_pressure_rise",
                                               "exhaust_moisture", "last_stage_volume_flow",
                                               "exhaust_temperature", "steam_temperature",
                                               "generator_output", "back_pressure",

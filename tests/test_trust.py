@@ -8,7 +8,7 @@ import json
 import math
 
 import pytest
-from helpers import demo_data
+from helpers import MODELS, demo_data
 from partload.cli.main import main
 from partload.errors import InputError
 from partload.plant.calibrate import closure_report, rewrite_design_flows
@@ -152,8 +152,6 @@ def test_rewrite_design_flows_keeps_the_rest_of_the_file():
 
 
 def _bad_file(tmp_path):
-    from helpers import MODELS
-
     text = (MODELS / "demo_reheat_unit.toml").read_text()
     for old, new in (('"9.781 kg/s"', '"11.2 kg/s"'), ('"23.186 kg/s"', '"20.0 kg/s"')):
         assert old in text
@@ -181,8 +179,6 @@ def test_check_writes_a_balanced_model(tmp_path, capsys):
 
 
 def test_check_json_has_the_calibration(capsys):
-    from helpers import MODELS
-
     assert main(["check", str(MODELS / "demo_reheat_unit.toml"), "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
     cal = d["calibration"]
@@ -269,3 +265,93 @@ def test_unitless_ttd_is_one_error_about_the_ttd():
         _rebuild(data)
     text = str(exc.value)
     assert "ttd" in text and "feedwater" not in text.replace("feedwater out", "")
+
+
+# ------------------------------------------------------------ 3. cautions that are right
+def _codes(model, cond, check_limits=False):
+    from partload.cautions.checks import check_point
+
+    r = solve_point(model, cond, STEAM, check_limits=check_limits)
+    return {c.code: c for c in check_point(model, cond, r, STEAM)}
+
+
+def test_back_pressure_rise_is_not_called_overload(reheat_model):
+    from partload.plant.case import Conditions
+
+    # 10 kPa (147 % of the design 6.8 kPa, below the 250 % limit) at design flow: the
+    # node before the last group of LP flow A rises 5.6 % (regression value) while
+    # that group's pressure ratio rises about 39 %: it unloads
+    found = _codes(reheat_model, Conditions(throttle_flow=280.0, exhaust_pressure=10e3))
+    assert set(found) == {"back_pressure_rise"}
+    c = found["back_pressure_rise"]
+    assert c.where == "lpa_x2" and c.value == pytest.approx(0.056, abs=0.002)
+    assert "not a stage overload" in c.message and "unloads" in c.message
+    assert "blade loading and thrust" not in c.message
+
+
+def test_back_pressure_rise_quiet_at_and_near_design(reheat_model):
+    from partload.plant.case import Conditions
+
+    for p_ex in (6.8e3, 7.25e3, 8.5e3):  # within 5 % at every node (regression values)
+        found = _codes(reheat_model, Conditions(throttle_flow=280.0, exhaust_pressure=p_ex))
+        assert "back_pressure_rise" not in found and "pressure_rise" not in found
+
+
+def test_overload_behind_a_heater_out_keeps_its_wording():
+    from partload.plant.case import load_case
+
+    case = load_case(MODELS.parent / "cases" / "reheat_top_heater_out.toml")
+    found = _codes(case.model, case.conditions, check_limits=True)
+    assert set(found) == {"pressure_rise"}
+    assert "stage overload" in found["pressure_rise"].message
+
+
+def test_valves_wide_open_same_on_study_and_point_paths(reheat_model):
+    from partload.plant.case import Conditions
+    from partload.study.run import Continuation
+
+    # a throttle-governing sweep up to exactly design flow, on the study path (each
+    # point from the one before) and alone, as 'partload point' solves it
+    chain = Continuation(reheat_model, STEAM, False)
+    for f in (0.7, 0.9, 0.99, 1.0):
+        cond = Conditions(throttle_flow=280.0 * f, pressure_mode="fixed",
+                          throttle_pressure=166e5)
+        from partload.cautions.checks import check_point
+
+        a = chain.solve(cond)
+        on_study = {c.code for c in check_point(reheat_model, cond, a, STEAM)}
+        alone = set(_codes(reheat_model, cond, check_limits=True))
+        assert on_study == alone
+        assert "valves_wide_open" not in on_study  # within capacity (design flow: identity)
+    # and both fire beyond it (the held design pressure passes 280 kg/s wide open)
+    cond = Conditions(throttle_flow=282.0, pressure_mode="fixed", throttle_pressure=166e5)
+    a = chain.solve(cond)
+    from partload.cautions.checks import check_point
+
+    assert "valves_wide_open" in {c.code for c in check_point(reheat_model, cond, a, STEAM)}
+    assert "valves_wide_open" in _codes(reheat_model, cond)
+
+
+def test_valves_wide_open_under_a_held_program(reheat_model):
+    from partload.plant.case import Conditions
+
+    # a program held at 150 bar cannot pass design flow: the held branch is checked
+    cond = Conditions(throttle_flow=280.0, pressure_mode="program", throttle_pressure=150e5,
+                      minimum_throttle_pressure=90e5)
+    found = _codes(reheat_model, cond)
+    assert "valves_wide_open" in found
+    cond = Conditions(throttle_flow=200.0, pressure_mode="program", throttle_pressure=150e5,
+                      minimum_throttle_pressure=90e5)
+    assert "valves_wide_open" not in _codes(reheat_model, cond)
+
+
+def test_a_closed_valve_is_not_a_low_opening():
+    from partload.plant.case import Conditions
+    from partload.plant.model import load_model
+
+    # the industrial nozzle unit at design flow, 13 kPa: its fifth valve is closed
+    # (opening zero up to the solve's rounding): no low-opening caution
+    m = load_model(MODELS / "demo_industrial_nozzle_unit.toml")
+    cond = Conditions(throttle_flow=m.throttle.flow, pressure_mode="fixed",
+                      valve_mode="nozzle_groups", exhaust_pressure=13e3)
+    assert "valve_low_opening" not in _codes(m, cond)

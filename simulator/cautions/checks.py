@@ -16,7 +16,14 @@ The checks, in the order they are reported (:data:`CHECKS`):
 ``pressure_rise``
     A node pressure more than ``max_pressure_rise`` above its design value
     (the throttle node, bounded by the model's highest allowed throttle
-    pressure, and the exhaust nodes, set by the condenser, are not checked).
+    pressure, and the exhaust nodes, set by the condenser, are not checked),
+    caused by the flow of the groups after it (stage overload) or by hotter
+    steam.
+``back_pressure_rise``
+    The same rise where the flow of the groups after the node would not
+    reach the limit with their design outlet pressure, their pressure ratio
+    is above design and the exhaust pressure is above design: the back
+    pressure pushes the pressures up and the last groups unload.
 ``exhaust_moisture``
     Moisture at the exit of a last stage (a stage group ending at an exhaust
     node) above ``max_exhaust_moisture``.
@@ -218,7 +225,8 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
     t = r.totals
     m_T = t["throttle_flow"]
     p_T = t["throttle_pressure"]
-    if r.pressure_mode == "fixed":
+    held = r.pressure_mode == "fixed" or (r.pressure_mode == "program" and r.program_held)
+    if held:
         if not r.over_capacity:
             return None
         p_at = p_T
@@ -236,6 +244,11 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         cap = f" ({m_max:.2f} kg/s)"
     except SolveError:
         m_max, cap = math.nan, ""
+    if held and m_T <= m_max * (1.0 + 1e-6):
+        # the flow is within what the valves pass wide open at this pressure: a pressure
+        # drop a hair short of the wide-open one is rounding of the solve (the design
+        # point sits on this limit), whichever path solved the point
+        return None
     return Caution(
         "valves_wide_open",
         f"Throttle flow {m_T:.2f} kg/s is more than the valves wide open can pass at {at}"
@@ -244,10 +257,12 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         m_T, m_max, model.admission.name, "kg/s")
 
 
-def _pressure_rise(pt: _Point) -> Caution | None:
+def _rises(pt: _Point) -> list[tuple[float, str, float, str]]:
+    """Nodes above ``max_pressure_rise`` with the cause of each:
+    ``(rise [-], node, pressure [Pa], cause)``, cause ``"overload"``,
+    ``"back_pressure"`` or ``"other"`` (see :func:`_rise_kind`); worst first."""
     r, model = pt.result, pt.model
-    name = "max_pressure_rise"
-    lim = pt.limits[name]
+    lim = pt.limits["max_pressure_rise"]
     skip = set(model.exhaust_nodes) | {model.source}
     over = []
     for i, n in enumerate(r.node_names):
@@ -255,18 +270,96 @@ def _pressure_rise(pt: _Point) -> Caution | None:
             continue
         rise = float(r.node_p[i]) / model.design_pressure[n] - 1.0
         if rise > lim:
-            over.append((rise, n, float(r.node_p[i])))
+            over.append((rise, n, float(r.node_p[i]), _rise_kind(pt, n, lim)))
+    over.sort(reverse=True)
+    return over
+
+
+def _pressure_rise(pt: _Point) -> Caution | None:
+    model = pt.model
+    name = "max_pressure_rise"
+    lim = pt.limits[name]
+    over = [o for o in _rises(pt) if o[3] != "back_pressure"]
     if not over:
         return None
-    over.sort(reverse=True)
-    rise, n, p = over[0]
+    rise, n, p, kind = over[0]
     return Caution(
         "pressure_rise",
         f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
         f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
-        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {_rise_cause(pt, n)} "
+        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {_rise_cause(pt, n, kind)} "
         f"{DEFERENCE}",
         rise, lim, n, "-")
+
+
+def _back_pressure_rise(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    name = "max_pressure_rise"
+    lim = pt.limits[name]
+    over = [o for o in _rises(pt) if o[3] == "back_pressure"]
+    if not over:
+        return None
+    rise, n, p, _kind = over[0]
+    flow_rise, ratio_rise, g = _flow_and_ratio(pt, n)
+    ex = model.exhaust_nodes[0]
+    p_ex = float(r.node_p[pt.node_index(ex)])
+    return Caution(
+        "back_pressure_rise",
+        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
+        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
+        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: the exhaust pressure "
+        f"({p_ex / 1e3:.3g} kPa against {model.design_pressure[ex] / 1e3:.3g} kPa at design) "
+        f"pushes up the pressures of the last stages. This is not a stage overload: the "
+        f"outlet-to-inlet pressure ratio of group {g!r} after the node is {_pct(ratio_rise)} "
+        f"above design, so it takes a smaller drop and unloads (its flow alone would raise "
+        f"the node {_pct(flow_rise)} at the design back pressure). Extraction lines and heater "
+        f"shells at this node see more than their design pressure. {DEFERENCE}",
+        rise, lim, n, "-")
+
+
+def _flow_and_ratio(pt: _Point, node: str) -> tuple[float, float, str]:
+    """For the stage group after ``node`` that its flow loads most: the rise of its
+    inlet pressure [-] its flow alone would make with the design outlet pressure,
+    the rise of its outlet-to-inlet pressure ratio over design [-], and its name."""
+    r, model = pt.result, pt.model
+    best = (-math.inf, math.nan, "")
+    for k in _groups_after(model, node):
+        c = model.groups[k]
+        i, j = pt.node_index(c.inlet), pt.node_index(c.outlet)
+        p_in, p_out = float(r.node_p[i]), float(r.node_p[j])
+        p_in_d, p_out_d = model.design_pressure[c.inlet], model.design_pressure[c.outlet]
+        m = float(r.group_flow[k])
+        # the group's flow law solved for its inlet pressure at this flow, this inlet
+        # p v (nearly constant along an isotherm) and the design outlet pressure
+        pv = p_in * pt.steam.v_ph(p_in, float(r.node_h[i]))
+        p_flow = c.inlet_pressure_for(m, p_out_d, pv)
+        flow_rise = p_flow / p_in_d - 1.0
+        ratio_rise = (p_out / p_in) / (p_out_d / p_in_d) - 1.0
+        if flow_rise > best[0]:
+            best = (flow_rise, ratio_rise, c.name)
+    return best
+
+
+def _rise_kind(pt: _Point, node: str, lim: float) -> str:
+    """Why the pressure at ``node`` is above the limit ``lim`` [-].
+
+    Judged by the stage group after the node that its flow loads most:
+    ``"back_pressure"`` when the exhaust pressure is above design and the
+    group's outlet-to-inlet pressure ratio is more than ``lim`` above design
+    (it takes a smaller drop: the back pressure pushes the node up and the
+    group unloads); ``"overload"`` when, otherwise, its flow alone would raise
+    the node beyond the limit with the group's design outlet pressure;
+    ``"other"``: neither (hotter steam further on).
+    """
+    flow_rise, ratio_rise, g = _flow_and_ratio(pt, node)
+    if not g:
+        return "overload"
+    model = pt.model
+    ex_high = any(float(pt.result.node_p[pt.node_index(n)]) > model.design_pressure[n] * 1.001
+                  for n in model.exhaust_nodes)
+    if ex_high and ratio_rise > lim:
+        return "back_pressure"
+    return "overload" if flow_rise > lim else "other"
 
 
 def _groups_after(model: Model, node: str) -> list[int]:
@@ -286,13 +379,13 @@ def _groups_after(model: Model, node: str) -> list[int]:
     return found
 
 
-def _rise_cause(pt: _Point, node: str) -> str:
-    """Why the pressure at ``node`` is high, judged by the flow of the groups after it."""
+def _rise_cause(pt: _Point, node: str, kind: str) -> str:
+    """Why the pressure at ``node`` is high (``kind`` from :func:`_rise_kind`), in words."""
     r, model = pt.result, pt.model
     ratios = [(float(r.group_flow[k]) / model.design_group_flow[model.groups[k].name],
                model.groups[k].name) for k in _groups_after(model, node)]
     ratio, g = max(ratios) if ratios else (math.nan, "")
-    if ratio > 1.0:
+    if kind == "overload" and ratio > 1.0:
         return (f"stage overload. Group {g!r} after it carries {_pct(ratio - 1.0)} more steam "
                 f"than at design (typically behind a closed extraction or a heater out of "
                 f"service, or at a throttle flow above design), raising blade loading and "
@@ -484,8 +577,9 @@ def _valve_low_opening(pt: _Point) -> Caution | None:
     if found is None or found[0].minimum_opening <= 0.0:
         return None
     gov, opening, _ = found
+    # an opening within 1e-6 of zero is a closed valve left by the solve's rounding
     low = [(float(o), v) for o, v in zip(opening, gov.valves)
-           if 0.0 < o < gov.minimum_opening]
+           if 1e-6 < o < gov.minimum_opening]
     if not low:
         return None
     o, v = min(low)
@@ -547,6 +641,7 @@ def _exhaust_loss_curve(pt: _Point) -> Caution | None:
 CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "valves_wide_open": _valves_wide_open,
     "pressure_rise": _pressure_rise,
+    "back_pressure_rise": _back_pressure_rise,
     "exhaust_moisture": _exhaust_moisture,
     "last_stage_volume_flow": _last_stage_volume_flow,
     "exhaust_temperature": _exhaust_temperature,

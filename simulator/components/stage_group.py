@@ -190,6 +190,11 @@ class StageGroup(SteamPathComponent):
                 file=model.file, table=self.where, key=key)
         return eta
 
+    def inlet_pressure_for(self, m: float, p_out: float, pv_in: float) -> float:
+        """Inlet pressure [Pa] at which the group passes ``m`` [kg/s] to ``p_out`` [Pa]
+        with the inlet product ``p v`` given, ``pv_in`` [J/kg] (ellipse law inverted)."""
+        return math.sqrt(p_out * p_out + (m / self.K) ** 2 * pv_in)
+
     def describe(self) -> list[str]:
         lines = []
         if self.outlet_given is not None:
