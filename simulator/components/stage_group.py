@@ -18,6 +18,7 @@ from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correct
 from ..physics.ellipse import ellipse_flow, flow_constant
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
 from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
+from ..physics.flow_laws import FLOW_LAWS, FlowLaw, critical_ratio_from_stages
 from ..steam.constants import H_ABOVE_SAT_VAP, P_CRIT, T_MAX, T_MIN
 from .base import Column, ReadContext, SteamPathComponent, Tunable
 from .reading import edge_names, ratio_list
@@ -99,6 +100,9 @@ class StageGroup(SteamPathComponent):
     outlet_given: tuple[str, float] | None = None
     no_exhaust_loss: bool = False
     equal_share_of: str | None = None
+    flow_law_name: str = "ellipse"
+    pi_c: float = 0.0
+    law: FlowLaw | None = None  # None: the ellipse, through ellipse_flow
 
     @classmethod
     def read(cls, gr, ctx: ReadContext):
@@ -114,6 +118,7 @@ class StageGroup(SteamPathComponent):
         if cname == "table":
             tr = ctx.reader(gr.raw("correction_table"), f"{gr.where.table}.correction_table")
             corr = _correction_table(tr, eta) or corr
+        law_name, pi_c = _flow_law(gr)
         alpha = gr.number("moisture_factor", default=1.0, lo=0.0, hi=3.0)
         dflow = gr.quantity("design_flow", "mass_flow", default=None, positive=True)
         exhaust = None
@@ -133,7 +138,8 @@ class StageGroup(SteamPathComponent):
         group = cls(gname, g_from, g_to, eta if eta is not None else math.nan,
                     cname or "constant", corr, alpha if alpha is not None else 1.0,
                     design_flow=dflow, exhaust=exhaust, outlet_given=outlet,
-                    no_exhaust_loss=no_loss)
+                    no_exhaust_loss=no_loss, flow_law_name=law_name, pi_c=pi_c,
+                    law=None if law_name == "ellipse" else FLOW_LAWS[law_name])
         if outlet is not None:
             group.calibration_key = outlet[0]
         return group
@@ -141,7 +147,10 @@ class StageGroup(SteamPathComponent):
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
         v_in = steam.v_ph(p_in, h_in)
         s_in = steam.s_ph(p_in, h_in)
-        self.K = flow_constant(m, p_in, p_out, v_in)
+        if self.law is None:
+            self.K = flow_constant(m, p_in, p_out, v_in)
+        else:
+            self.K = self.law.constant(m, p_in, p_out, v_in, self.pi_c)
         self.dh_s_design = h_in - steam.h_ps(p_out, s_in)
         self.q_design = m * v_in
         if self.outlet_given is not None:
@@ -192,8 +201,10 @@ class StageGroup(SteamPathComponent):
 
     def inlet_pressure_for(self, m: float, p_out: float, pv_in: float) -> float:
         """Inlet pressure [Pa] at which the group passes ``m`` [kg/s] to ``p_out`` [Pa]
-        with the inlet product ``p v`` given, ``pv_in`` [J/kg] (ellipse law inverted)."""
-        return math.sqrt(p_out * p_out + (m / self.K) ** 2 * pv_in)
+        with the inlet product ``p v`` given, ``pv_in`` [J/kg] (its flow law inverted)."""
+        if self.law is None:
+            return math.sqrt(p_out * p_out + (m / self.K) ** 2 * pv_in)
+        return self.law.inlet_pressure(m, p_out, pv_in, self.K, self.pi_c)
 
     def describe(self) -> list[str]:
         lines = []
@@ -207,6 +218,9 @@ class StageGroup(SteamPathComponent):
             lines.append(f"stage group {self.name!r}: no design_flow given; takes an equal "
                          f"share of the flow the parallel groups leaving node "
                          f"{self.equal_share_of!r} without one pass at design")
+        if self.law is not None:
+            extra = f", critical pressure ratio {self.pi_c:.3f}" if self.law.uses_stages else ""
+            lines.append(f"stage group {self.name!r}: flow law {self.flow_law_name}{extra}")
         if self.no_exhaust_loss:
             lines.append(f"stage group {self.name!r}: exhausts without an exhaust loss "
                          f"(exhaust_loss = 'none')")
@@ -236,7 +250,10 @@ class StageGroup(SteamPathComponent):
             and it was not needed).
         """
         v_in, s_in = steam.vs_ph(p_in, h_in)
-        m = ellipse_flow(p_in, p_out, v_in, self.K)
+        if self.law is None:
+            m = ellipse_flow(p_in, p_out, v_in, self.K)
+        else:
+            m = self.law.flow(p_in, p_out, v_in, self.K, self.pi_c)
         dh_s = h_in - steam.h_ps(p_out, s_in)
         ratio = self.correction(m * v_in / self.q_design, dh_s / self.dh_s_design)
         eta_dry = self.eta_dry_design * ratio
@@ -296,6 +313,25 @@ class StageGroup(SteamPathComponent):
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         r = record
         return (r[0], r[3], r[4], r[0] * (h_in - r[1]), r[6], r[7], r[5])
+
+
+def _flow_law(gr) -> tuple[str, float]:
+    """``(flow law name, critical pressure ratio [-])`` of a stage group table."""
+    name = gr.string("flow_law", default="ellipse", choices=list(FLOW_LAWS)) or "ellipse"
+    stages = gr.number("stages", default=None, lo=1.0, hi=100.0)
+    ratio = gr.quantity("critical_pressure_ratio", "fraction", default=None, lo=0.0, hi=0.95)
+    if name != "ellipse_critical":
+        for key, value in (("stages", stages), ("critical_pressure_ratio", ratio)):
+            if value is not None:
+                gr.problems.add(gr.where.child(key).error(
+                    "applies with flow_law = 'ellipse_critical' only"))
+        return name, 0.0
+    if (stages is None) == (ratio is None):
+        gr.problems.add(gr.where.child("stages").error(
+            "flow_law = 'ellipse_critical' needs one of 'stages' (the number of stages of "
+            "the group) and 'critical_pressure_ratio'"))
+        return name, 0.0
+    return name, ratio if ratio is not None else critical_ratio_from_stages(stages)
 
 
 OUTLET_KEYS = ("efficiency", "outlet_enthalpy", "outlet_temperature")
