@@ -14,7 +14,13 @@ from dataclasses import dataclass
 from typing import ClassVar
 
 from ..errors import InputError
-from ..physics.efficiency import CORRECTIONS, baumann_factor, make_table_correction
+from ..physics.efficiency import (
+    CORRECTIONS,
+    PER_STAGE,
+    baumann_factor,
+    make_table_correction,
+    velocity_ratio_per_stage,
+)
 from ..physics.ellipse import ellipse_flow, flow_constant
 from ..physics.exhaust import annulus_velocity, exhaust_loss, used_energy_end_point
 from ..physics.expansion import dry_expansion_end, expansion_end, moisture_from_enthalpy
@@ -102,6 +108,9 @@ class StageGroup(SteamPathComponent):
     equal_share_of: str | None = None
     flow_law_name: str = "ellipse"
     pi_c: float = 0.0
+    stages: int | None = None
+    p_in_design: float = 0.0
+    p_out_design: float = 0.0
     law: FlowLaw | None = None  # None: the ellipse, through ellipse_flow
 
     @classmethod
@@ -113,12 +122,22 @@ class StageGroup(SteamPathComponent):
         is_exhaust = gr.has("annulus_area") or gr.has("loss_curve")
         cname = gr.string("efficiency_correction",
                           default="constant" if is_exhaust else "velocity_ratio",
-                          choices=sorted(CORRECTIONS) + ["table"])
+                          choices=sorted(CORRECTIONS) + [PER_STAGE, "table"])
         corr = CORRECTIONS.get(cname or "constant", CORRECTIONS["constant"])
         if cname == "table":
             tr = ctx.reader(gr.raw("correction_table"), f"{gr.where.table}.correction_table")
             corr = _correction_table(tr, eta) or corr
-        law_name, pi_c = _flow_law(gr)
+        stages = gr.number("stages", default=None, lo=1.0, hi=100.0)
+        if stages is not None and stages != int(stages):
+            gr.problems.add(gr.where.child("stages").error("give a whole number of stages"))
+        law_name, pi_c = _flow_law(gr, stages)
+        if cname == PER_STAGE and stages is None:
+            gr.problems.add(gr.where.child("stages").error(
+                f"efficiency_correction = {PER_STAGE!r} needs the number of stages of the group"))
+        if stages is not None and cname != PER_STAGE and law_name != "ellipse_critical":
+            gr.problems.add(gr.where.child("stages").error(
+                f"used only with flow_law = 'ellipse_critical' or efficiency_correction = "
+                f"{PER_STAGE!r}"))
         alpha = gr.number("moisture_factor", default=1.0, lo=0.0, hi=3.0)
         dflow = gr.quantity("design_flow", "mass_flow", default=None, positive=True)
         exhaust = None
@@ -139,6 +158,7 @@ class StageGroup(SteamPathComponent):
                     cname or "constant", corr, alpha if alpha is not None else 1.0,
                     design_flow=dflow, exhaust=exhaust, outlet_given=outlet,
                     no_exhaust_loss=no_loss, flow_law_name=law_name, pi_c=pi_c,
+                    stages=int(stages) if stages is not None else None,
                     law=None if law_name == "ellipse" else FLOW_LAWS[law_name])
         if outlet is not None:
             group.calibration_key = outlet[0]
@@ -153,6 +173,7 @@ class StageGroup(SteamPathComponent):
             self.K = self.law.constant(m, p_in, p_out, v_in, self.pi_c)
         self.dh_s_design = h_in - steam.h_ps(p_out, s_in)
         self.q_design = m * v_in
+        self.p_in_design, self.p_out_design = p_in, p_out
         if self.outlet_given is not None:
             self.eta_design = self._derived_efficiency(h_in, p_out, steam, model)
         h_elep = h_in - self.eta_design * self.dh_s_design
@@ -255,7 +276,11 @@ class StageGroup(SteamPathComponent):
         else:
             m = self.law.flow(p_in, p_out, v_in, self.K, self.pi_c)
         dh_s = h_in - steam.h_ps(p_out, s_in)
-        ratio = self.correction(m * v_in / self.q_design, dh_s / self.dh_s_design)
+        if self.correction_name == PER_STAGE:
+            ratio = velocity_ratio_per_stage(p_in, p_out, self.p_in_design, self.p_out_design,
+                                             dh_s / self.dh_s_design, self.stages or 1)
+        else:
+            ratio = self.correction(m * v_in / self.q_design, dh_s / self.dh_s_design)
         eta_dry = self.eta_dry_design * ratio
         alpha = self.alpha
         if y_in is None:
@@ -315,16 +340,15 @@ class StageGroup(SteamPathComponent):
         return (r[0], r[3], r[4], r[0] * (h_in - r[1]), r[6], r[7], r[5])
 
 
-def _flow_law(gr) -> tuple[str, float]:
-    """``(flow law name, critical pressure ratio [-])`` of a stage group table."""
+def _flow_law(gr, stages: float | None) -> tuple[str, float]:
+    """``(flow law name, critical pressure ratio [-])`` of a stage group table with
+    ``stages`` [-] read already."""
     name = gr.string("flow_law", default="ellipse", choices=list(FLOW_LAWS)) or "ellipse"
-    stages = gr.number("stages", default=None, lo=1.0, hi=100.0)
     ratio = gr.quantity("critical_pressure_ratio", "fraction", default=None, lo=0.0, hi=0.95)
     if name != "ellipse_critical":
-        for key, value in (("stages", stages), ("critical_pressure_ratio", ratio)):
-            if value is not None:
-                gr.problems.add(gr.where.child(key).error(
-                    "applies with flow_law = 'ellipse_critical' only"))
+        if ratio is not None:
+            gr.problems.add(gr.where.child("critical_pressure_ratio").error(
+                "applies with flow_law = 'ellipse_critical' only"))
         return name, 0.0
     if (stages is None) == (ratio is None):
         gr.problems.add(gr.where.child("stages").error(
