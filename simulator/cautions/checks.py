@@ -58,7 +58,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
 
 from ..errors import PartloadError, SolveError
 from ..plant.case import Conditions
@@ -66,157 +65,22 @@ from ..plant.limits import Limits, default_limits
 from ..plant.model import Model
 from ..solve.point import PointResult, wide_open_capacity
 from ..steam.if97 import SteamTables, get_backend
+from .common import (
+    DEFERENCE,
+    Caution,
+    design_last_stage_volume_flow,
+    last_groups,
+    last_stage_state,
+)
+from .common import Point as _Point
+from .common import degc as _degc
+from .common import others as _others
+from .common import pct as _pct
+from .pressure import back_pressure_rise as _back_pressure_rise
+from .pressure import pressure_rise as _pressure_rise
 
 __all__ = ["Caution", "check_point", "CHECKS", "CAUTION_CODES", "DEFERENCE",
            "last_groups", "last_stage_state", "design_last_stage_volume_flow"]
-
-DEFERENCE = "Engineering estimate; the manufacturer's limits govern."
-
-
-@dataclass(frozen=True)
-class Caution:
-    """One operating limit exceeded at one point.
-
-    Attributes
-    ----------
-    code
-        Which check fired, a key of :data:`CHECKS`.
-    message
-        Plain words: what, how much against the limit, where, why it matters,
-        and that it is an engineering estimate.
-    value
-        The checked quantity at its worst location [``unit``].
-    limit
-        The limit it is checked against [``unit``]; NaN when it could not be
-        evaluated.
-    where
-        The node, stage group or component of the worst location.
-    unit
-        SI unit of ``value`` and ``limit``: ``"-"`` for fractions, ``"K"``,
-        ``"kg/s"``.
-    """
-
-    code: str
-    message: str
-    value: float
-    limit: float
-    where: str
-    unit: str
-
-    def to_dict(self) -> dict:
-        """A JSON-ready dict (NaN becomes ``None``)."""
-        def plain(v: float) -> float | None:
-            v = float(v)
-            return None if math.isnan(v) else v
-
-        return {"code": self.code, "message": self.message, "value": plain(self.value),
-                "limit": plain(self.limit), "unit": self.unit, "where": self.where}
-
-
-@dataclass
-class _Point:
-    """What every check needs: the model, the request, the answer, properties."""
-
-    model: Model
-    cond: Conditions
-    result: PointResult
-    steam: SteamTables
-    limits: Limits
-
-    def node_index(self, name: str) -> int:
-        return self.result.node_names.index(name)
-
-    def limit_text(self, name: str, shown: str) -> str:
-        return f"limit {shown}, {self.limits.source(name)}"
-
-
-def _pct(x: float) -> str:
-    return f"{x * 100:.1f} %"
-
-
-def _degc(T: float) -> str:
-    return f"{T - 273.15:.1f} degC"
-
-
-def _others(items: list[tuple[str, str]], shown: int = 3) -> str:
-    """``"; also a (1 %), b (2 %) and 4 more"`` for further locations beyond a limit."""
-    if not items:
-        return ""
-    text = "; also " + ", ".join(f"{w} ({v})" for w, v in items[:shown])
-    if len(items) > shown:
-        text += f" and {len(items) - shown} more"
-    return text
-
-
-def last_groups(model: Model) -> list[int]:
-    """Indices into ``model.groups`` [-] of the stage groups that end at an exhaust node."""
-    ends = set(model.exhaust_nodes)
-    return [k for k, c in enumerate(model.groups) if c.outlet in ends]
-
-
-def last_stage_state(model: Model, result: PointResult, k: int,
-                     steam: SteamTables) -> tuple[float, float, float]:
-    """Flow, volume flow and used-energy end point leaving stage group ``k`` at a point.
-
-    Taken from the point result: the used-energy end point (UEEP) from the
-    group's power, ``h_used = h_in - P / m``; the volume flow at the
-    expansion-line end point from the annulus velocity, ``q = V A``, when the
-    group has an annulus, else ``q = m v(p_out, h_used)`` (no exhaust loss, so
-    the two end points coincide).
-
-    Parameters
-    ----------
-    model
-        The model the point was solved with.
-    result
-        The solved point.
-    k
-        Index of the stage group in ``model.groups`` [-].
-    steam
-        Property backend.
-
-    Returns
-    -------
-    tuple of float
-        ``(m, q, h_used)``: mass flow [kg/s], volume flow [m^3/s], UEEP
-        enthalpy [J/kg].
-    """
-    c = model.groups[k]
-    names = result.node_names
-    m = float(result.group_flow[k])
-    h_in = float(result.node_h[names.index(c.inlet)])
-    h_used = h_in - float(result.group_power[k]) / m if m > 0.0 else h_in
-    if c.exhaust is not None:
-        q = float(result.group_velocity[k]) * c.exhaust.area
-    else:
-        q = m * steam.v_ph(float(result.node_p[names.index(c.outlet)]), h_used)
-    return m, q, h_used
-
-
-def design_last_stage_volume_flow(model: Model, k: int, steam: SteamTables) -> float:
-    """Design volume flow leaving stage group ``k`` at its expansion-line end point.
-
-    From the calibration: the design flow of the group, the design inlet
-    enthalpy, and the stated design efficiency, which is the effective (wet)
-    efficiency at design, so ``h_ELEP = h_in - eta_design dh_s_design``.
-
-    Parameters
-    ----------
-    model
-        A calibrated model.
-    k
-        Index of the stage group in ``model.groups`` [-].
-    steam
-        Property backend.
-
-    Returns
-    -------
-    float
-        Design volume flow [m^3/s].
-    """
-    c = model.groups[k]
-    h_elep = model.design_enthalpy[c.inlet] - c.eta_design * c.dh_s_design
-    return model.design_group_flow[c.name] * steam.v_ph(model.design_pressure[c.outlet], h_elep)
 
 
 # --------------------------------------------------------------------- checks
@@ -255,150 +119,6 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         f"{cap}: {why}. The machine cannot take this flow; the point was solved with the "
         f"limit checks off and shows a what-if. {DEFERENCE}",
         m_T, m_max, model.admission.name, "kg/s")
-
-
-def _rises(pt: _Point) -> list[tuple[float, str, float, str]]:
-    """Nodes above ``max_pressure_rise`` with the cause of each:
-    ``(rise [-], node, pressure [Pa], cause)``, cause ``"overload"``,
-    ``"back_pressure"`` or ``"other"`` (see :func:`_rise_kind`); worst first."""
-    r, model = pt.result, pt.model
-    lim = pt.limits["max_pressure_rise"]
-    skip = set(model.exhaust_nodes) | {model.source}
-    over = []
-    for i, n in enumerate(r.node_names):
-        if n in skip:
-            continue
-        rise = float(r.node_p[i]) / model.design_pressure[n] - 1.0
-        if rise > lim:
-            over.append((rise, n, float(r.node_p[i]), _rise_kind(pt, n, lim)))
-    over.sort(reverse=True)
-    return over
-
-
-def _pressure_rise(pt: _Point) -> Caution | None:
-    model = pt.model
-    name = "max_pressure_rise"
-    lim = pt.limits[name]
-    over = [o for o in _rises(pt) if o[3] != "back_pressure"]
-    if not over:
-        return None
-    rise, n, p, kind = over[0]
-    return Caution(
-        "pressure_rise",
-        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
-        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
-        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {_rise_cause(pt, n, kind)} "
-        f"{DEFERENCE}",
-        rise, lim, n, "-")
-
-
-def _back_pressure_rise(pt: _Point) -> Caution | None:
-    r, model = pt.result, pt.model
-    name = "max_pressure_rise"
-    lim = pt.limits[name]
-    over = [o for o in _rises(pt) if o[3] == "back_pressure"]
-    if not over:
-        return None
-    rise, n, p, _kind = over[0]
-    flow_rise, ratio_rise, g = _flow_and_ratio(pt, n)
-    ex = model.exhaust_nodes[0]
-    p_ex = float(r.node_p[pt.node_index(ex)])
-    return Caution(
-        "back_pressure_rise",
-        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
-        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
-        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: the exhaust pressure "
-        f"({p_ex / 1e3:.3g} kPa against {model.design_pressure[ex] / 1e3:.3g} kPa at design) "
-        f"pushes up the pressures of the last stages. This is not a stage overload: the "
-        f"outlet-to-inlet pressure ratio of group {g!r} after the node is {_pct(ratio_rise)} "
-        f"above design, so it takes a smaller drop and unloads (its flow alone would raise "
-        f"the node {_pct(flow_rise)} at the design back pressure). Extraction lines and heater "
-        f"shells at this node see more than their design pressure. {DEFERENCE}",
-        rise, lim, n, "-")
-
-
-def _flow_and_ratio(pt: _Point, node: str) -> tuple[float, float, str]:
-    """For the stage group after ``node`` that its flow loads most: the rise of its
-    inlet pressure [-] its flow alone would make with the design outlet pressure,
-    the rise of its outlet-to-inlet pressure ratio over design [-], and its name."""
-    r, model = pt.result, pt.model
-    best = (-math.inf, math.nan, "")
-    for k in _groups_after(model, node):
-        c = model.groups[k]
-        i, j = pt.node_index(c.inlet), pt.node_index(c.outlet)
-        p_in, p_out = float(r.node_p[i]), float(r.node_p[j])
-        p_in_d, p_out_d = model.design_pressure[c.inlet], model.design_pressure[c.outlet]
-        m = float(r.group_flow[k])
-        # the group's flow law solved for its inlet pressure at this flow, this inlet
-        # p v (nearly constant along an isotherm) and the design outlet pressure
-        pv = p_in * pt.steam.v_ph(p_in, float(r.node_h[i]))
-        p_flow = c.inlet_pressure_for(m, p_out_d, pv)
-        flow_rise = p_flow / p_in_d - 1.0
-        ratio_rise = (p_out / p_in) / (p_out_d / p_in_d) - 1.0
-        if flow_rise > best[0]:
-            best = (flow_rise, ratio_rise, c.name)
-    return best
-
-
-def _rise_kind(pt: _Point, node: str, lim: float) -> str:
-    """Why the pressure at ``node`` is above the limit ``lim`` [-].
-
-    Judged by the stage group after the node that its flow loads most:
-    ``"back_pressure"`` when the exhaust pressure is above design and the
-    group's outlet-to-inlet pressure ratio is more than ``lim`` above design
-    (it takes a smaller drop: the back pressure pushes the node up and the
-    group unloads); ``"overload"`` when, otherwise, its flow alone would raise
-    the node beyond the limit with the group's design outlet pressure;
-    ``"other"``: neither (hotter steam further on).
-    """
-    flow_rise, ratio_rise, g = _flow_and_ratio(pt, node)
-    if not g:
-        return "overload"
-    model = pt.model
-    ex_high = any(float(pt.result.node_p[pt.node_index(n)]) > model.design_pressure[n] * 1.001
-                  for n in model.exhaust_nodes)
-    if ex_high and ratio_rise > lim:
-        return "back_pressure"
-    return "overload" if flow_rise > lim else "other"
-
-
-def _groups_after(model: Model, node: str) -> list[int]:
-    """Indices of the stage groups fed by ``node``, through a reheater or pipe if need be."""
-    g = model.graph
-    seen, todo, found = set(), [node], []
-    names = {c.name: k for k, c in enumerate(model.groups)}
-    while todo:
-        n = todo.pop()
-        for succ in g.successors(n):
-            c = g.edges[n, succ]["component"]
-            if c.name in names:
-                found.append(names[c.name])
-            elif succ not in seen:
-                seen.add(succ)
-                todo.append(succ)
-    return found
-
-
-def _rise_cause(pt: _Point, node: str, kind: str) -> str:
-    """Why the pressure at ``node`` is high (``kind`` from :func:`_rise_kind`), in words."""
-    r, model = pt.result, pt.model
-    ratios = [(float(r.group_flow[k]) / model.design_group_flow[model.groups[k].name],
-               model.groups[k].name) for k in _groups_after(model, node)]
-    ratio, g = max(ratios) if ratios else (math.nan, "")
-    if kind == "overload" and ratio > 1.0:
-        return (f"stage overload. Group {g!r} after it carries {_pct(ratio - 1.0)} more steam "
-                f"than at design (typically behind a closed extraction or a heater out of "
-                f"service, or at a throttle flow above design), raising blade loading and "
-                f"thrust; extraction lines and heater shells at this node see more than their "
-                f"design pressure.")
-    ex = model.exhaust_nodes[0]
-    p_ex = float(r.node_p[pt.node_index(ex)])
-    p_ex_d = model.design_pressure[ex]
-    back = (f" the exhaust pressure ({p_ex / 1e3:.3g} kPa against {p_ex_d / 1e3:.3g} kPa at "
-            f"design) or" if p_ex > p_ex_d * 1.001 else "")
-    return (f"the stage groups after it carry no more than their design flow, so this is not a "
-            f"stage overload; the rise comes from{back} hotter steam further on. Extraction "
-            f"lines and heater shells at this node see more than their design pressure.")
 
 
 def _exhaust_moisture(pt: _Point) -> Caution | None:
