@@ -184,9 +184,13 @@ def test_check_json_has_the_calibration(capsys):
     cal = d["calibration"]
     g = cal["stage_groups"][0]
     for key in ("flow_constant", "efficiency", "dry_efficiency", "design_volume_flow",
+                "design_exhaust_volume_flow",
                 "isentropic_drop", "efficiency_from"):
         assert key in g
     assert g["flow_constant"] > 0 and 0 < g["efficiency"] <= 1
+    assert g["design_exhaust_volume_flow"] is None  # the HP group does not exhaust
+    last = [x for x in cal["stage_groups"] if x["design_exhaust_volume_flow"] is not None]
+    assert len(last) == 2 and all(x["design_exhaust_volume_flow"] > 0 for x in last)
     assert {h["heater"] for h in cal["heaters"]} >= {"HP8", "deaerator"}
     assert all(math.isfinite(h["closing_flow"]) for h in cal["heaters"])
 
@@ -644,3 +648,27 @@ def test_reheater_drop_as_a_fixed_fraction(reheat_model):
     d0 = solve_point(reheat_model, design_conditions(reheat_model), STEAM)
     assert d.totals["generator_output"] == pytest.approx(d0.totals["generator_output"],
                                                          rel=1e-8)
+
+
+def test_used_energy_end_point_of_an_exhaust_group(reheat_model):
+    # identity: the demo's design UEEP of each LP exhaust group (the enthalpy its power
+    # leaves, h_in - P / m at design) written back gives its efficiency
+    r0 = solve_point(reheat_model, design_conditions(reheat_model), STEAM)
+    data = demo_data()
+    k_of = {n: k for k, n in enumerate(r0.group_names)}
+    for g in data["stage_group"]:
+        if "annulus_area" in g:
+            k = k_of[g["name"]]
+            h_in = r0.node_h[r0.node_names.index(g["from"])]
+            h_used = h_in - r0.group_power[k] / r0.group_flow[k]
+            g.pop("efficiency")
+            g["used_energy_end_point"] = f"{h_used / 1e3:.9f} kJ/kg"
+    model = _rebuild(data)
+    by = {c.name: c for c in reheat_model.groups}
+    for c in model.groups:
+        assert c.eta_design == pytest.approx(by[c.name].eta_design, rel=1e-7)
+    # not for a group without an exhaust
+    data["stage_group"][0].pop("efficiency")
+    data["stage_group"][0]["used_energy_end_point"] = "3300 kJ/kg"
+    with pytest.raises(InputError, match="needs the group's exhaust"):
+        _rebuild(data)

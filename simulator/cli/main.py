@@ -41,7 +41,7 @@ def _cmd_check(args) -> int:
     if args.json:
         print(json.dumps({"model": model.name, "file": model.file,
                           "warnings": list(model.warnings),
-                          "calibration": calibration_to_dict(model, report),
+                          "calibration": calibration_to_dict(model, report, args.backend),
                           "design": point_to_dict(result, "design")}, indent=2))
         return 0
     if args.write_balanced:
@@ -69,23 +69,32 @@ def _nan_none(v: float) -> float | None:
     return None if v != v else float(v)
 
 
-def calibration_to_dict(model, report: list[dict]) -> dict:
+def calibration_to_dict(model, report: list[dict], backend: str = "seuif97") -> dict:
     """What the calibration fixed, JSON-ready (SI): each stage group's flow constant,
     design and dry efficiency (and whether it was derived from an outlet state),
-    isentropic drop and inlet volume flow; each heater's closure with its given
+    isentropic drop, inlet volume flow and (groups that exhaust) the volume flow
+    leaving the last stage; each heater's closure with its given
     and closing design bleed."""
+    from ..cautions.common import design_last_stage_volume_flow, last_groups
+    from ..steam.if97 import get_backend
+
+    steam = get_backend(backend)
+    ends = set(last_groups(model))
     groups = []
-    for c in model.groups:
+    for k, c in enumerate(model.groups):
         groups.append({
             "name": c.name, "from": c.inlet, "to": c.outlet,
             "design_flow": model.design_group_flow[c.name],
             "flow_constant": c.K, "flow_law": getattr(c, "flow_law_name", "ellipse"),
             "efficiency": c.eta_design, "dry_efficiency": c.eta_dry_design,
             "efficiency_from": c.outlet_given[0] if c.outlet_given else "efficiency",
-            "isentropic_drop": c.dh_s_design, "design_volume_flow": c.q_design})
+            "isentropic_drop": c.dh_s_design, "design_volume_flow": c.q_design,
+            "design_exhaust_volume_flow": (design_last_stage_volume_flow(model, k, steam)
+                                           if k in ends else None)})
     heaters = [{**r, "closing_flow": _nan_none(r["closing_flow"])} for r in report]
     return {"units": {"design_flow": "kg/s", "flow_constant": "m^2", "efficiency": "-",
                       "isentropic_drop": "J/kg", "design_volume_flow": "m^3/s",
+                      "design_exhaust_volume_flow": "m^3/s",
                       "closure": "-", "duty": "W", "given_flow": "kg/s",
                       "closing_flow": "kg/s"},
             "stage_groups": groups, "heaters": heaters}

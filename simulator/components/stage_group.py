@@ -63,7 +63,8 @@ class StageGroup(SteamPathComponent):
     exhaust : the last-stage annulus if the group exhausts to a condenser
     outlet_given : ``(key, value)`` when the model file gives the design outlet
         state instead of the efficiency: ``("outlet_enthalpy", h [J/kg])`` or
-        ``("outlet_temperature", T [K])``; the efficiency is derived at calibration
+        ``("outlet_temperature", T [K])`` or, for an exhaust group,
+        ``("used_energy_end_point", h [J/kg])``; the efficiency is derived at calibration
     """
 
     table: ClassVar[str] = "stage_group"
@@ -175,7 +176,7 @@ class StageGroup(SteamPathComponent):
         self.q_design = m * v_in
         self.p_in_design, self.p_out_design = p_in, p_out
         if self.outlet_given is not None:
-            self.eta_design = self._derived_efficiency(h_in, p_out, steam, model)
+            self.eta_design = self._derived_efficiency(m, h_in, p_out, steam, model)
         h_elep = h_in - self.eta_design * self.dh_s_design
         h_vap = steam.h_vap_sat(p_out)
         h_liq = steam.h_liq_sat(p_out)
@@ -188,11 +189,12 @@ class StageGroup(SteamPathComponent):
         self.eta_dry_design = self.eta_design / factor
         return self.expand(steam, p_in, h_in, p_out)[1]
 
-    def _derived_efficiency(self, h_in: float, p_out: float, steam, model) -> float:
+    def _derived_efficiency(self, m: float, h_in: float, p_out: float, steam, model) -> float:
         """Design efficiency [-] from the outlet state the heat balance gives.
 
         Parameters
         ----------
+        m : design flow [kg/s]
         h_in : design inlet enthalpy [J/kg]
         p_out : design outlet pressure [Pa]
         steam : property backend
@@ -208,6 +210,8 @@ class StageGroup(SteamPathComponent):
                     f"not fix the state; give 'outlet_enthalpy' instead",
                     file=model.file, table=self.where, key=key)
             h_out = steam.h_pT(p_out, value)
+        elif key == "used_energy_end_point":
+            h_out = self._elep_from_ueep(m, value, p_out, steam, model)
         else:
             h_out = value
         eta = (h_in - h_out) / self.dh_s_design
@@ -226,6 +230,27 @@ class StageGroup(SteamPathComponent):
         if self.law is None:
             return math.sqrt(p_out * p_out + (m / self.K) ** 2 * pv_in)
         return self.law.inlet_pressure(m, p_out, pv_in, self.K, self.pi_c)
+
+    def _elep_from_ueep(self, m: float, h_used: float, p_out: float, steam, model) -> float:
+        """Expansion-line end point [J/kg] whose used-energy end point, with the exhaust
+        loss at design flow ``m`` [kg/s], is ``h_used`` [J/kg] at ``p_out`` [Pa]
+        (fixed-point iteration: the loss changes little with the end point)."""
+        if self.exhaust is None:
+            raise InputError("a used-energy end point needs the group's exhaust: give "
+                             "annulus_area and loss_curve, or 'outlet_enthalpy'",
+                             file=model.file, table=self.where, key="used_energy_end_point")
+        ex = self.exhaust
+        h_liq, h_vap = steam.h_liq_sat(p_out), steam.h_vap_sat(p_out)
+        h = h_used
+        for _ in range(100):
+            y = moisture_from_enthalpy(h, h_liq, h_vap)
+            loss = exhaust_loss(annulus_velocity(m, steam.v_ph(p_out, h), ex.area),
+                                ex.curve_velocity, ex.curve_loss)
+            h_new = h_used - (used_energy_end_point(h, loss, y) - h)
+            if abs(h_new - h) < 1e-6:
+                return h_new
+            h = h_new
+        return h
 
     def describe(self) -> list[str]:
         lines = []
@@ -358,7 +383,7 @@ def _flow_law(gr, stages: float | None) -> tuple[str, float]:
     return name, ratio if ratio is not None else critical_ratio_from_stages(stages)
 
 
-OUTLET_KEYS = ("efficiency", "outlet_enthalpy", "outlet_temperature")
+OUTLET_KEYS = ("efficiency", "outlet_enthalpy", "outlet_temperature", "used_energy_end_point")
 
 
 def _design_expansion(gr):
@@ -371,13 +396,14 @@ def _design_expansion(gr):
         return None, None
     if not given:
         gr.problems.add(gr.where.child("efficiency").error(
-            "missing required key (or give the design outlet state: 'outlet_enthalpy' or "
-            "'outlet_temperature' as the heat balance writes it)"))
+            "missing required key (or give the design outlet state as the heat balance "
+            "writes it: 'outlet_enthalpy', 'outlet_temperature' or, for an exhaust group, "
+            "'used_energy_end_point')"))
         return None, None
     key = given[0]
     if key == "efficiency":
         return gr.number("efficiency", lo=0.0, hi=1.0, lo_open=True), None
-    if key == "outlet_enthalpy":
+    if key in ("outlet_enthalpy", "used_energy_end_point"):
         value = gr.quantity(key, "specific_enthalpy", positive=True)
     else:
         value = gr.quantity(key, "temperature", lo=T_MIN, hi=T_MAX)
