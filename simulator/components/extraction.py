@@ -72,7 +72,7 @@ class Extraction(Component):
         if not self.closing:
             return []
         return [f"extraction {self.name!r}: design flow {self.design_flow:.5g} kg/s, the flow "
-                f"that closes heater {self.heater!r}'s balance"]
+                f"that closes the balance of heater {self.heater!r}"]
 
     def point_row(self, point) -> tuple:
         flow, control = point.bleeds[self.name]

@@ -261,9 +261,9 @@ class StageGroup(SteamPathComponent):
             lines.append(f"stage group {self.name!r}: design efficiency "
                          f"{self.eta_design * 100:.3f} % derived from {key} = {shown}")
         if self.equal_share_of is not None:
-            lines.append(f"stage group {self.name!r}: no design_flow given; takes an equal "
-                         f"share of the flow the parallel groups leaving node "
-                         f"{self.equal_share_of!r} without one pass at design")
+            lines.append(f"stage group {self.name!r}: no design_flow given; at design it "
+                         f"takes an equal share of the flow left at node "
+                         f"{self.equal_share_of!r} for the parallel groups without one")
         if self.law is not None:
             extra = f", critical pressure ratio {self.pi_c:.3f}" if self.law.uses_stages else ""
             lines.append(f"stage group {self.name!r}: flow law {self.flow_law_name}{extra}")
