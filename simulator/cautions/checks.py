@@ -16,7 +16,14 @@ The checks, in the order they are reported (:data:`CHECKS`):
 ``pressure_rise``
     A node pressure more than ``max_pressure_rise`` above its design value
     (the throttle node, bounded by the model's highest allowed throttle
-    pressure, and the exhaust nodes, set by the condenser, are not checked).
+    pressure, and the exhaust nodes, set by the condenser, are not checked),
+    caused by the flow of the groups after it (stage overload) or by hotter
+    steam.
+``back_pressure_rise``
+    The same rise where the flow of the groups after the node would not
+    reach the limit with their design outlet pressure, their pressure ratio
+    is above design and the exhaust pressure is above design: the back
+    pressure pushes the pressures up and the last groups unload.
 ``exhaust_moisture``
     Moisture at the exit of a last stage (a stage group ending at an exhaust
     node) above ``max_exhaust_moisture``.
@@ -41,6 +48,10 @@ The checks, in the order they are reported (:data:`CHECKS`):
     A condenser rejecting less than 25 % or more than 115 % of its design
     duty: its heat-transfer law, fixed at design, is extrapolated (common
     practice, no source).
+``exhaust_loss_curve``
+    A last-stage annulus velocity outside its exhaust-loss curve: the loss
+    was held at the curve's end value, an extrapolation the curve does not
+    support (a caution on the answer, not on the machine).
 
 Each check gives at most one caution per point, for the worst location, and
 names the other locations beyond the limit in its message; so a point has at
@@ -54,7 +65,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
 
 from ..errors import PartloadError, SolveError
 from ..plant.case import Conditions
@@ -62,157 +72,22 @@ from ..plant.limits import Limits, default_limits
 from ..plant.model import Model
 from ..solve.point import PointResult, wide_open_capacity
 from ..steam.if97 import SteamTables, get_backend
+from .common import (
+    DEFERENCE,
+    Caution,
+    design_last_stage_volume_flow,
+    last_groups,
+    last_stage_state,
+)
+from .common import Point as _Point
+from .common import degc as _degc
+from .common import others as _others
+from .common import pct as _pct
+from .pressure import back_pressure_rise as _back_pressure_rise
+from .pressure import pressure_rise as _pressure_rise
 
 __all__ = ["Caution", "check_point", "CHECKS", "CAUTION_CODES", "DEFERENCE",
            "last_groups", "last_stage_state", "design_last_stage_volume_flow"]
-
-DEFERENCE = "Engineering estimate; the manufacturer's limits govern."
-
-
-@dataclass(frozen=True)
-class Caution:
-    """One operating limit exceeded at one point.
-
-    Attributes
-    ----------
-    code
-        Which check fired, a key of :data:`CHECKS`.
-    message
-        Plain words: what, how much against the limit, where, why it matters,
-        and that it is an engineering estimate.
-    value
-        The checked quantity at its worst location [``unit``].
-    limit
-        The limit it is checked against [``unit``]; NaN when it could not be
-        evaluated.
-    where
-        The node, stage group or component of the worst location.
-    unit
-        SI unit of ``value`` and ``limit``: ``"-"`` for fractions, ``"K"``,
-        ``"kg/s"``.
-    """
-
-    code: str
-    message: str
-    value: float
-    limit: float
-    where: str
-    unit: str
-
-    def to_dict(self) -> dict:
-        """A JSON-ready dict (NaN becomes ``None``)."""
-        def plain(v: float) -> float | None:
-            v = float(v)
-            return None if math.isnan(v) else v
-
-        return {"code": self.code, "message": self.message, "value": plain(self.value),
-                "limit": plain(self.limit), "unit": self.unit, "where": self.where}
-
-
-@dataclass
-class _Point:
-    """What every check needs: the model, the request, the answer, properties."""
-
-    model: Model
-    cond: Conditions
-    result: PointResult
-    steam: SteamTables
-    limits: Limits
-
-    def node_index(self, name: str) -> int:
-        return self.result.node_names.index(name)
-
-    def limit_text(self, name: str, shown: str) -> str:
-        return f"limit {shown}, {self.limits.source(name)}"
-
-
-def _pct(x: float) -> str:
-    return f"{x * 100:.1f} %"
-
-
-def _degc(T: float) -> str:
-    return f"{T - 273.15:.1f} degC"
-
-
-def _others(items: list[tuple[str, str]], shown: int = 3) -> str:
-    """``"; also a (1 %), b (2 %) and 4 more"`` for further locations beyond a limit."""
-    if not items:
-        return ""
-    text = "; also " + ", ".join(f"{w} ({v})" for w, v in items[:shown])
-    if len(items) > shown:
-        text += f" and {len(items) - shown} more"
-    return text
-
-
-def last_groups(model: Model) -> list[int]:
-    """Indices into ``model.groups`` [-] of the stage groups that end at an exhaust node."""
-    ends = set(model.exhaust_nodes)
-    return [k for k, c in enumerate(model.groups) if c.outlet in ends]
-
-
-def last_stage_state(model: Model, result: PointResult, k: int,
-                     steam: SteamTables) -> tuple[float, float, float]:
-    """Flow, volume flow and used-energy end point leaving stage group ``k`` at a point.
-
-    Taken from the point result: the used-energy end point (UEEP) from the
-    group's power, ``h_used = h_in - P / m``; the volume flow at the
-    expansion-line end point from the annulus velocity, ``q = V A``, when the
-    group has an annulus, else ``q = m v(p_out, h_used)`` (no exhaust loss, so
-    the two end points coincide).
-
-    Parameters
-    ----------
-    model
-        The model the point was solved with.
-    result
-        The solved point.
-    k
-        Index of the stage group in ``model.groups`` [-].
-    steam
-        Property backend.
-
-    Returns
-    -------
-    tuple of float
-        ``(m, q, h_used)``: mass flow [kg/s], volume flow [m^3/s], UEEP
-        enthalpy [J/kg].
-    """
-    c = model.groups[k]
-    names = result.node_names
-    m = float(result.group_flow[k])
-    h_in = float(result.node_h[names.index(c.inlet)])
-    h_used = h_in - float(result.group_power[k]) / m if m > 0.0 else h_in
-    if c.exhaust is not None:
-        q = float(result.group_velocity[k]) * c.exhaust.area
-    else:
-        q = m * steam.v_ph(float(result.node_p[names.index(c.outlet)]), h_used)
-    return m, q, h_used
-
-
-def design_last_stage_volume_flow(model: Model, k: int, steam: SteamTables) -> float:
-    """Design volume flow leaving stage group ``k`` at its expansion-line end point.
-
-    From the calibration: the design flow of the group, the design inlet
-    enthalpy, and the stated design efficiency, which is the effective (wet)
-    efficiency at design, so ``h_ELEP = h_in - eta_design dh_s_design``.
-
-    Parameters
-    ----------
-    model
-        A calibrated model.
-    k
-        Index of the stage group in ``model.groups`` [-].
-    steam
-        Property backend.
-
-    Returns
-    -------
-    float
-        Design volume flow [m^3/s].
-    """
-    c = model.groups[k]
-    h_elep = model.design_enthalpy[c.inlet] - c.eta_design * c.dh_s_design
-    return model.design_group_flow[c.name] * steam.v_ph(model.design_pressure[c.outlet], h_elep)
 
 
 # --------------------------------------------------------------------- checks
@@ -221,7 +96,8 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
     t = r.totals
     m_T = t["throttle_flow"]
     p_T = t["throttle_pressure"]
-    if r.pressure_mode == "fixed":
+    held = r.pressure_mode == "fixed" or (r.pressure_mode == "program" and r.program_held)
+    if held:
         if not r.over_capacity:
             return None
         p_at = p_T
@@ -239,76 +115,17 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         cap = f" ({m_max:.2f} kg/s)"
     except SolveError:
         m_max, cap = math.nan, ""
+    if held and m_T <= m_max * (1.0 + 1e-6):
+        # the flow is within what the valves pass wide open at this pressure: a pressure
+        # drop a hair short of the wide-open one is rounding of the solve (the design
+        # point sits on this limit), whichever path solved the point
+        return None
     return Caution(
         "valves_wide_open",
         f"Throttle flow {m_T:.2f} kg/s is more than the valves wide open can pass at {at}"
         f"{cap}: {why}. The machine cannot take this flow; the point was solved with the "
         f"limit checks off and shows a what-if. {DEFERENCE}",
         m_T, m_max, model.admission.name, "kg/s")
-
-
-def _pressure_rise(pt: _Point) -> Caution | None:
-    r, model = pt.result, pt.model
-    name = "max_pressure_rise"
-    lim = pt.limits[name]
-    skip = set(model.exhaust_nodes) | {model.source}
-    over = []
-    for i, n in enumerate(r.node_names):
-        if n in skip:
-            continue
-        rise = float(r.node_p[i]) / model.design_pressure[n] - 1.0
-        if rise > lim:
-            over.append((rise, n, float(r.node_p[i])))
-    if not over:
-        return None
-    over.sort(reverse=True)
-    rise, n, p = over[0]
-    return Caution(
-        "pressure_rise",
-        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
-        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
-        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {_rise_cause(pt, n)} "
-        f"{DEFERENCE}",
-        rise, lim, n, "-")
-
-
-def _groups_after(model: Model, node: str) -> list[int]:
-    """Indices of the stage groups fed by ``node``, through a reheater or pipe if need be."""
-    g = model.graph
-    seen, todo, found = set(), [node], []
-    names = {c.name: k for k, c in enumerate(model.groups)}
-    while todo:
-        n = todo.pop()
-        for succ in g.successors(n):
-            c = g.edges[n, succ]["component"]
-            if c.name in names:
-                found.append(names[c.name])
-            elif succ not in seen:
-                seen.add(succ)
-                todo.append(succ)
-    return found
-
-
-def _rise_cause(pt: _Point, node: str) -> str:
-    """Why the pressure at ``node`` is high, judged by the flow of the groups after it."""
-    r, model = pt.result, pt.model
-    ratios = [(float(r.group_flow[k]) / model.design_group_flow[model.groups[k].name],
-               model.groups[k].name) for k in _groups_after(model, node)]
-    ratio, g = max(ratios) if ratios else (math.nan, "")
-    if ratio > 1.0:
-        return (f"stage overload. Group {g!r} after it carries {_pct(ratio - 1.0)} more steam "
-                f"than at design (typically behind a closed extraction or a heater out of "
-                f"service, or at a throttle flow above design), raising blade loading and "
-                f"thrust; extraction lines and heater shells at this node see more than their "
-                f"design pressure.")
-    ex = model.exhaust_nodes[0]
-    p_ex = float(r.node_p[pt.node_index(ex)])
-    p_ex_d = model.design_pressure[ex]
-    back = (f" the exhaust pressure ({p_ex / 1e3:.3g} kPa against {p_ex_d / 1e3:.3g} kPa at "
-            f"design) or" if p_ex > p_ex_d * 1.001 else "")
-    return (f"the stage groups after it carry no more than their design flow, so this is not a "
-            f"stage overload; the rise comes from{back} hotter steam further on. Extraction "
-            f"lines and heater shells at this node see more than their design pressure.")
 
 
 def _exhaust_moisture(pt: _Point) -> Caution | None:
@@ -487,8 +304,9 @@ def _valve_low_opening(pt: _Point) -> Caution | None:
     if found is None or found[0].minimum_opening <= 0.0:
         return None
     gov, opening, _ = found
+    # an opening within 1e-6 of zero is a closed valve left by the solve's rounding
     low = [(float(o), v) for o, v in zip(opening, gov.valves)
-           if 0.0 < o < gov.minimum_opening]
+           if 1e-6 < o < gov.minimum_opening]
     if not low:
         return None
     o, v = min(low)
@@ -568,11 +386,39 @@ def _condenser_duty(pt: _Point) -> Caution | None:
         f"heat-transfer law, fixed at design, is extrapolated here, so the back pressure is "
         f"less certain (common practice, no source). {DEFERENCE}",
         ratio, math.nan, where, "-")
+def _exhaust_loss_curve(pt: _Point) -> Caution | None:
+    r, model = pt.result, pt.model
+    off = []
+    for k in last_groups(model):
+        ex = model.groups[k].exhaust
+        if ex is None:
+            continue
+        vel = float(r.group_velocity[k])
+        lo, hi = ex.curve_velocity[0], ex.curve_velocity[-1]
+        if vel < lo:
+            off.append((lo - vel, model.groups[k].name, ex.curve_name, vel, lo, "below its "
+                        "first", ex.curve_loss[0]))
+        elif vel > hi:
+            off.append((vel - hi, model.groups[k].name, ex.curve_name, vel, hi, "above its "
+                        "last", ex.curve_loss[-1]))
+    if not off:
+        return None
+    off.sort(reverse=True)
+    _d, g, curve, vel, end, side, loss = off[0]
+    return Caution(
+        "exhaust_loss_curve",
+        f"Annulus velocity of group {g!r} is {vel:.4g} m/s, {side} point of its exhaust-loss "
+        f"curve {curve!r} ({end:.4g} m/s){_others([(o[1], f'{o[3]:.4g} m/s') for o in off[1:]])}"
+        f": the loss was held at the curve's end value {loss / 1e3:.4g} kJ/kg, which the curve "
+        f"does not support; output and heat rate here are less certain. Extend the curve to "
+        f"this velocity. {DEFERENCE}",
+        vel, end, g, "m/s")
 
 
 CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "valves_wide_open": _valves_wide_open,
     "pressure_rise": _pressure_rise,
+    "back_pressure_rise": _back_pressure_rise,
     "exhaust_moisture": _exhaust_moisture,
     "last_stage_volume_flow": _last_stage_volume_flow,
     "exhaust_temperature": _exhaust_temperature,
@@ -584,6 +430,7 @@ CHECKS: dict[str, Callable[[_Point], Caution | None]] = {
     "first_valve_only": _first_valve_only,
     "cooling_water_rise": _cooling_water_rise,
     "condenser_duty": _condenser_duty,
+    "exhaust_loss_curve": _exhaust_loss_curve,
 }
 """The checks by caution code, in the order their cautions are reported."""
 

@@ -24,20 +24,33 @@ __all__ = ["main"]
 
 
 def _cmd_check(args) -> int:
+    from ..plant.calibrate import closure_report
     from ..plant.case import design_conditions
     from ..plant.model import load_model
     from ..present.tables import format_model, format_point, point_to_dict
     from ..solve.point import solve_point
+    from ..steam.if97 import get_backend
 
-    model = load_model(args.model)
+    if args.write_balanced:
+        _write_balanced(args.model, args.write_balanced, args.backend)
+        model = load_model(args.write_balanced)
+    else:
+        model = load_model(args.model)
     result = solve_point(model, design_conditions(model), args.backend)
+    report = closure_report(model, get_backend(args.backend))
     if args.json:
         print(json.dumps({"model": model.name, "file": model.file,
                           "warnings": list(model.warnings),
+                          "calibration": calibration_to_dict(model, report, args.backend),
                           "design": point_to_dict(result, "design", units=args.units)},
                          indent=2))
         return 0
+    if args.write_balanced:
+        print(f"partload: wrote {args.write_balanced}: {args.model} with the design bleeds "
+              f"that close every heater\n")
     print(format_model(model, args.units))
+    if report:
+        print(format_closure(report))
     if model.warnings:
         print("\nWARNINGS")
         for w in model.warnings:
@@ -51,6 +64,71 @@ def _cmd_check(args) -> int:
         print(f"\nstated design output {model.stated_output / 1e6:.3f} MW; calibrated model gives "
               f"{result.totals['generator_output'] / 1e6:.3f} MW ({diff / 1e6:+.3f} MW)")
     return 0
+
+
+def _nan_none(v: float) -> float | None:
+    return None if v != v else float(v)
+
+
+def calibration_to_dict(model, report: list[dict], backend: str = "seuif97") -> dict:
+    """What the calibration fixed, JSON-ready (SI): each stage group's flow constant,
+    design and dry efficiency (and whether it was derived from an outlet state),
+    isentropic drop, inlet volume flow and (groups that exhaust) the volume flow
+    leaving the last stage; each heater's closure with its given
+    and closing design bleed."""
+    from ..cautions.common import design_last_stage_volume_flow, last_groups
+    from ..steam.if97 import get_backend
+
+    steam = get_backend(backend)
+    ends = set(last_groups(model))
+    groups = []
+    for k, c in enumerate(model.groups):
+        groups.append({
+            "name": c.name, "from": c.inlet, "to": c.outlet,
+            "design_flow": model.design_group_flow[c.name],
+            "flow_constant": c.K, "flow_law": getattr(c, "flow_law_name", "ellipse"),
+            "efficiency": c.eta_design, "dry_efficiency": c.eta_dry_design,
+            "efficiency_from": c.outlet_given[0] if c.outlet_given else "efficiency",
+            "isentropic_drop": c.dh_s_design, "design_volume_flow": c.q_design,
+            "design_exhaust_volume_flow": (design_last_stage_volume_flow(model, k, steam)
+                                           if k in ends else None)})
+    heaters = [{**r, "closing_flow": _nan_none(r["closing_flow"])} for r in report]
+    return {"units": {"design_flow": "kg/s", "flow_constant": "m^2", "efficiency": "-",
+                      "isentropic_drop": "J/kg", "design_volume_flow": "m^3/s",
+                      "design_exhaust_volume_flow": "m^3/s",
+                      "closure": "-", "duty": "W", "given_flow": "kg/s",
+                      "closing_flow": "kg/s"},
+            "stage_groups": groups, "heaters": heaters}
+
+
+def format_closure(report: list[dict]) -> str:
+    """Every heater's closure and its given against its closing design bleed."""
+    lines = ["Heater balances at design (closure: feedwater duty over the heat the bleed and "
+             "drains give up)",
+             f"  {'heater':<12} {'extraction':<14} {'closure':>9} {'given':>11} "
+             f"{'closing':>11}  [kg/s]"]
+    for r in report:
+        closing = r["closing_flow"]
+        shown = "none" if closing != closing else f"{closing:.5f}"
+        note = "  (closing flow asked for)" if r["closing"] else ""
+        lines.append(f"  {r['heater']:<12} {r['extraction']:<14} {r['closure']:9.5f} "
+                     f"{r['given_flow']:11.5f} {shown:>11}{note}")
+    return "\n".join(lines)
+
+
+def _write_balanced(source: str, target: str, backend: str) -> None:
+    """Write ``source`` to ``target`` with every heater's extraction at the design
+    bleed that closes its heater (the rest of the file unchanged)."""
+    from ..plant.model import balanced_model_text
+
+    if os.path.abspath(source) == os.path.abspath(target):
+        raise InputError("--write-balanced needs a new file name; the model file itself is "
+                         "not overwritten", file=target)
+    text = balanced_model_text(source, backend)
+    tmp = f"{target}.partial"
+    with open(tmp, "w", encoding="utf-8") as f:
+        f.write(text)
+    os.replace(tmp, target)
 
 
 def _cmd_point(args) -> int:
@@ -176,6 +254,9 @@ def build_parser() -> argparse.ArgumentParser:
                                                         "(default) or iapws")
     c.add_argument("--json", action="store_true", help="print JSON instead of tables")
     add_units_option(c)
+    c.add_argument("--write-balanced", metavar="PATH", default=None,
+                   help="write the model file to PATH with every heater's extraction at the "
+                        "design bleed that closes its heater's balance, then check that file")
     c.set_defaults(func=_cmd_check)
 
     c = sub.add_parser("point", help="solve one operating case and print its tables")

@@ -10,7 +10,7 @@ or ``dp_design``, ``m_design``, ``v_design``).
 from __future__ import annotations
 
 from ..errors import InputError
-from ..physics.pressure_drop import scaled_pressure_drop
+from ..physics.pressure_drop import DROP_LAWS, fraction_pressure_drop, scaled_pressure_drop
 
 __all__ = ["WideOpenValve", "SquareLawDrop"]
 
@@ -41,11 +41,23 @@ class WideOpenValve:
 
 
 class SquareLawDrop:
-    """A line (pipe, reheater) whose drop scales with ``m^2 v`` from design."""
+    """A line (pipe, reheater) whose drop scales with ``m^2 v`` from design, or,
+    with ``drop_law = "fixed_fraction"``, stays the design fraction of its inlet
+    pressure (:data:`simulator.physics.pressure_drop.DROP_LAWS`)."""
+
+    drop_law: str = DROP_LAWS[0]
 
     def calibrate_drop(self, m, p_in, h_in, p_out, steam) -> None:
         """Fix the design drop [Pa] at flow ``m`` [kg/s] and inlet ``(p_in, h_in)``."""
         self.dp_design, self.m_design, self.v_design = p_in - p_out, m, steam.v_ph(p_in, h_in)
+        self.drop_fraction = (p_in - p_out) / p_in
+
+    def line_drop(self, m_dot: float, p_in: float, h_in: float, steam) -> float:
+        """Pressure drop [Pa] by the line's law at flow ``m_dot`` [kg/s] and inlet
+        ``(p_in [Pa], h_in [J/kg])``."""
+        if self.drop_law == "fixed_fraction":
+            return fraction_pressure_drop(p_in, self.drop_fraction)
+        return self.drop(m_dot, steam.v_ph(p_in, h_in))
 
     def drop(self, m_dot: float, v_in: float) -> float:
         """Pressure drop [Pa] at flow ``m_dot`` [kg/s] and inlet volume ``v_in`` [m^3/kg]."""

@@ -22,7 +22,9 @@ EXTRACTION_CONTROLS = ("fraction", "flow", "closed", "heater")
 class Extraction(Component):
     """A bleed at ``node`` with its design flow [kg/s].
 
-    ``control``: ``"fraction"`` (the design fraction of throttle flow),
+    ``closing``: the model file asks for the design flow that closes its
+    heater's balance (``design_flow = "closing"``); the calibration sets
+    ``design_flow``.  ``control``: ``"fraction"`` (the design fraction of throttle flow),
     ``"flow"`` (a fixed flow), ``"closed"`` or ``"heater"``; ``heater`` the
     name of the heater it feeds, if any.
     """
@@ -50,6 +52,7 @@ class Extraction(Component):
     design_flow: float
     control: str = "fraction"
     heater: str | None = None
+    closing: bool = False
 
     @classmethod
     def read(cls, er, ctx: ReadContext):
@@ -57,12 +60,19 @@ class Extraction(Component):
         if name:
             er.where = Where(ctx.file, f"extraction '{name}'", None)
         node = er.string("node")
-        flow = er.quantity("design_flow", "mass_flow", lo=0.0)
+        closing = er.raw("design_flow", None) == "closing"
+        flow = 0.0 if closing else er.quantity("design_flow", "mass_flow", lo=0.0)
         control = er.string("control", default=None, choices=EXTRACTION_CONTROLS)
         er.finish()
         if None in (name, node, flow):
             return None
-        return cls(name, node, flow, control or "")
+        return cls(name, node, flow, control or "", closing=closing)
+
+    def describe(self) -> list[str]:
+        if not self.closing:
+            return []
+        return [f"extraction {self.name!r}: design flow {self.design_flow:.5g} kg/s, the flow "
+                f"that closes the balance of heater {self.heater!r}"]
 
     def point_row(self, point) -> tuple:
         flow, control = point.bleeds[self.name]

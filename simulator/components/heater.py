@@ -128,8 +128,10 @@ class Heater(Component):
             method = hr.string("ttd_method", default="constant", choices=TTD_METHODS)
         dp_eff = hr.number("drain_pump_efficiency", default=0.75, lo=0.0, hi=1.0, lo_open=True)
         hr.finish()
-        if None in (hname, kind, extraction) or (kind == "closed" and ttd is None):
+        if None in (hname, kind, extraction):
             return None
+        # a wrong TTD is already a problem of the file; the heater is still known, so the
+        # feedwater train naming it gives no second, unrelated error
         return cls(hname, kind, extraction, line_drop if line_drop is not None else 0.03,
                    ttd or 0.0, dca, drain_to or "condenser", when_out, method or "constant",
                    drain_pump_efficiency=dp_eff or 0.75)

@@ -7,6 +7,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import ClassVar
 
+from ..physics.pressure_drop import DROP_LAWS
 from .base import Column, ReadContext, SteamPathComponent
 from .drops import SquareLawDrop
 from .reading import edge_names
@@ -33,14 +34,17 @@ class Pipe(SquareLawDrop, SteamPathComponent):
     dp_design: float = 0.0
     m_design: float = 0.0
     v_design: float = 0.0
+    drop_law: str = DROP_LAWS[0]
+    drop_fraction: float = 0.0
 
     @classmethod
     def read(cls, rr, ctx: ReadContext):
         name, a, b = edge_names(rr, cls.table)
+        law = rr.string("pressure_drop_law", default=DROP_LAWS[0], choices=DROP_LAWS)
         rr.finish()
         if None in (name, a, b):
             return None
-        return cls(name, a, b)
+        return cls(name, a, b, drop_law=law or DROP_LAWS[0])
 
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
         self.calibrate_drop(m, p_in, h_in, p_out, steam)
@@ -48,7 +52,7 @@ class Pipe(SquareLawDrop, SteamPathComponent):
 
     def evaluate(self, march, i, j, m_net):
         hi = march.h[i]
-        return hi, self.drop(m_net, march.steam.v_ph(march.p[i], hi)), 0.0, None
+        return hi, self.line_drop(m_net, march.p[i], hi, march.steam), 0.0, None
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:
         return (m, p_in - p_out)

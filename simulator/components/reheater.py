@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import ClassVar
 
+from ..physics.pressure_drop import DROP_LAWS
 from ..steam.if97 import T_MAX, T_MIN
 from ..units import Where
 from .base import Column, ReadContext, SteamPathComponent
@@ -46,15 +47,18 @@ class Reheater(SquareLawDrop, SteamPathComponent):
     dp_design: float = 0.0
     m_design: float = 0.0
     v_design: float = 0.0
+    drop_law: str = DROP_LAWS[0]
+    drop_fraction: float = 0.0
 
     @classmethod
     def read(cls, rr, ctx: ReadContext):
         name, a, b = edge_names(rr, cls.table)
         T_out = rr.quantity("outlet_temperature", "temperature", lo=T_MIN, hi=T_MAX, reason=IF97)
+        law = rr.string("pressure_drop_law", default=DROP_LAWS[0], choices=DROP_LAWS)
         rr.finish()
         if None in (name, a, b, T_out):
             return None
-        return cls(name, a, b, T_out)
+        return cls(name, a, b, T_out, drop_law=law or DROP_LAWS[0])
 
     def check_design(self, ctx: ReadContext) -> None:
         p = (ctx.design_pressure or {}).get(self.outlet)
@@ -70,7 +74,7 @@ class Reheater(SquareLawDrop, SteamPathComponent):
     def evaluate(self, march, i, j, m_net):
         steam = march.steam
         T_out = march.T_reheat if march.T_reheat is not None else self.outlet_temperature
-        dp = self.drop(m_net, steam.v_ph(march.p[i], march.h[i]))
+        dp = self.line_drop(m_net, march.p[i], march.h[i], steam)
         return steam.h_pT(march.p[j], T_out), dp, 0.0, None
 
     def result_row(self, record, m, p_in, h_in, p_out, h_out) -> tuple:

@@ -15,7 +15,10 @@ F. M. White, *Fluid Mechanics*, 7th ed., McGraw-Hill, 2011, sec. 6.6).
 
 from __future__ import annotations
 
-__all__ = ["scaled_pressure_drop"]
+__all__ = ["scaled_pressure_drop", "fraction_pressure_drop", "DROP_LAWS"]
+
+DROP_LAWS = ("flow_squared_volume", "fixed_fraction")
+"""Pressure-drop laws of reheaters and pipes by name; the first is the default."""
 
 
 def scaled_pressure_drop(m_dot: float, v: float, dp_design: float, m_design: float,
@@ -28,3 +31,17 @@ def scaled_pressure_drop(m_dot: float, v: float, dp_design: float, m_design: flo
     """
     r = m_dot / m_design
     return dp_design * r * abs(r) * (v / v_design)
+
+
+def fraction_pressure_drop(p_in: float, fraction: float) -> float:
+    """Pressure drop [Pa] that is a fixed ``fraction`` [-] of the inlet pressure
+    ``p_in`` [Pa], whatever the flow.
+
+    The convention of heat balances that state a reheater's (or a line's) drop
+    as a percentage of its inlet pressure (commonly about 10 % for a reheater
+    system; common practice, no source): the fraction is fixed at design.
+    Less physical than :func:`scaled_pressure_drop` at part load, where the
+    real drop falls with flow squared; use it to match a heat balance written
+    that way.
+    """
+    return fraction * p_in

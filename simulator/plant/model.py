@@ -48,7 +48,7 @@ from ..inputs.reading import Problems, TableReader, load_toml
 from ..physics.exhaust import INTERPOLATIONS
 from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
 from ..units import Where, parse
-from .calibrate import calibrate
+from .calibrate import calibrate, rewrite_design_flows
 from .feedwater_train import FeedwaterTrain, read_feedwater
 from .limits import Limits, default_limits, read_limits
 from .topology import build_graph
@@ -174,6 +174,23 @@ def load_model(path: str | Path, steam: SteamTables | None = None) -> Model:
     """Read, validate and calibrate the model file at ``path``."""
     data, text = load_toml(path)
     return build_model(data, text=text, file=str(path), steam=steam)
+
+
+def balanced_model_text(path: str | Path, backend: str | None = None) -> str:
+    """The model file at ``path`` with every heater's extraction at the design
+    bleed that closes its heater's balance: the file is read with
+    ``design_flow = "closing"`` for each of them, calibrated, and its text
+    rewritten with the flows found (nothing else changes)."""
+    data, text = load_toml(path)
+    heaters = data.get("heater") if isinstance(data, dict) else None
+    fed = {h.get("extraction") for h in heaters or [] if isinstance(h, dict)}
+    for e in data.get("extraction") or []:
+        if isinstance(e, dict) and e.get("name") in fed:
+            e["design_flow"] = "closing"
+    model = build_model(data, text=text, file=str(path),
+                        steam=get_backend(backend) if backend else None)
+    flows = {e.name: e.design_flow for e in model.extractions.values() if e.closing}
+    return rewrite_design_flows(text, flows, str(path))
 
 
 def _curve(reader: TableReader, key_x: str, dim_x: str, key_y: str, dim_y: str):
