@@ -145,7 +145,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
     from ..plant.case import design_conditions, load_case
     from ..solve.point import solve_point
     from .diagram import diagram_svg
-    from .tables import point_to_dict
+    from .tables import point_to_dict, table_cells
 
     if isinstance(case, (str, Path)):
         case = load_case(case)
@@ -206,30 +206,11 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
     for group, table in r.tables.items():
         if group == "steam_path" or not table.names:
             continue
-        cols = [c for c in table.declared if c.console]
-        heads = [group.rstrip("s").replace("_", " ")]
-        units = [""]
-        if table.inlet is not None:
-            heads += ["from", "to"]
-            units += ["", ""]
-        if table.node is not None:
-            heads.append("node")
-            units.append("")
-        heads += [c.label or c.name.replace("_", " ") for c in cols]
-        units += [info["units"][group].get(c.name, "") for c in cols]
-        rows = []
-        for row in info[group]:
-            cells = [_esc(row["name"])]
-            if table.inlet is not None:
-                cells += [_esc(row["from"]), _esc(row["to"])]
-            if table.node is not None:
-                cells.append(_esc(row["node"]))
-            for c in cols:
-                v = row[c.name]
-                cells.append(_esc(c.words[int(v)]) if c.dtype == "u1" else _num(v, 3))
-            rows.append(cells)
+        heads, units, raw, lead = table_cells(info, group, table)
+        rows = [[_esc(v) if k < lead or isinstance(v, str) else _num(v, 3)
+                 for k, v in enumerate(cells)] for cells in raw]
         body.append(f"<h2>{_esc(group.replace('_', ' ').capitalize())}</h2>")
-        body.append(_table(heads, rows, units, left=len(heads) - len(cols)))
+        body.append(_table(heads, rows, units, left=lead))
     return _page(f"partload: {name}", body)
 
 

@@ -16,6 +16,7 @@ import math
 import numpy as np
 
 from ..solve.result import TOTALS, PointResult
+from ..store.corrections import display_values
 from ..units import to_display_unit
 
 __all__ = ["point_to_dict", "format_point", "format_model", "shown", "format_corrections",
@@ -170,6 +171,37 @@ def format_valve_points(model, results, case_name: str = "") -> str:
         f"{r['not_reached']}" for r in missing)
 
 
+def table_cells(d: dict, group: str, table) -> tuple[list, list, list, int]:
+    """``(headers, units, rows, text columns)`` of one result group of a point's
+    dict (:func:`point_to_dict`) as a table shows it: the name, the nodes, then the
+    declared columns shown on the console (flags in words); ``text columns`` is how
+    many columns lead with text."""
+    cols = [c for c in table.declared if c.console]
+    headers = [_singular(group)]
+    units = [""]
+    if table.inlet is not None:
+        headers += ["from", "to"]
+        units += ["", ""]
+    if table.node is not None:
+        headers.append("node")
+        units.append("")
+    lead = len(headers)
+    headers += [c.label or c.name.replace("_", " ") for c in cols]
+    units += [d["units"][group].get(c.name, "") for c in cols]
+    rows = []
+    for row in d[group]:
+        cells = [row["name"]]
+        if table.inlet is not None:
+            cells += [row["from"], row["to"]]
+        if table.node is not None:
+            cells.append(row["node"])
+        for c in cols:
+            v = row[c.name]
+            cells.append(c.words[int(v)] if c.dtype == "u1" else v)
+        rows.append(cells)
+    return headers, units, rows, lead
+
+
 def _singular(group: str) -> str:
     """A result group's name for one of its rows: ``stage_groups`` -> ``stage group``."""
     word = group.replace("_", " ")
@@ -189,28 +221,7 @@ def format_point(r: PointResult, case_name: str = "", cautions=(),
     for group, table in r.tables.items():
         if group in _NOT_SHOWN or not table.names:
             continue
-        cols = [c for c in table.declared if c.console]
-        headers = [_singular(group)]
-        units = [""]
-        if table.inlet is not None:
-            headers += ["from", "to"]
-            units += ["", ""]
-        if table.node is not None:
-            headers.append("node")
-            units.append("")
-        headers += [c.label or c.name.replace("_", " ") for c in cols]
-        units += [d["units"][group].get(c.name, "") for c in cols]
-        rows = []
-        for row in d[group]:
-            cells = [row["name"]]
-            if table.inlet is not None:
-                cells += [row["from"], row["to"]]
-            if table.node is not None:
-                cells.append(row["node"])
-            for c in cols:
-                v = row[c.name]
-                cells.append(c.words[int(v)] if c.dtype == "u1" else v)
-            rows.append(cells)
+        headers, units, rows, _ = table_cells(d, group, table)
         out.append(_table(group.replace("_", " ").capitalize(), headers, rows, units))
         out.append("")
     t = d["totals"]
@@ -312,17 +323,6 @@ def format_model(model, units: str = "metric") -> str:
     return "\n".join(lines)
 
 
-def _curve_values(curve, units: str) -> tuple[list, str]:
-    """A correction curve's values in display units, and that unit."""
-    if curve.name == "heaters_out":
-        return list(curve.values), ""
-    if curve.unit == "-":
-        return [float(v) for v in curve.values], "x design"
-    v, u = to_display_unit(np.asarray(curve.values, dtype=float), curve.unit, None, units,
-                           curve.name)
-    return v.tolist(), u
-
-
 def format_corrections(cc, units: str = "metric") -> str:
     """Correction curves as console tables: per condition, each value's change of
     output and of heat rate from the reference value, in per cent, at each load
@@ -336,7 +336,7 @@ def format_corrections(cc, units: str = "metric") -> str:
            f"design throttle flow; dP, dHR: change of output and heat rate from the "
            f"reference value [%] (ASME PTC 6 describes how such curves are used)", ""]
     for c in cc.curves:
-        values, unit = _curve_values(c, units)
+        values, unit = display_values(c, units)
         ref = values[c.reference_index]
         headers = [c.name.replace("_", " ")]
         units_row = [unit]
@@ -366,7 +366,7 @@ def corrections_to_dict(cc, units: str = "metric") -> dict:
     hr_unit = to_display_unit(0.0, "J/J", None, units)[1]
     curves = {}
     for c in cc.curves:
-        values, unit = _curve_values(c, units)
+        values, unit = display_values(c, units)
         out = to_display_unit(c.output, "W", None, units)[0]
         hr = to_display_unit(c.heat_rate, "J/J", None, units)[0]
 
