@@ -16,7 +16,6 @@ import math
 import numpy as np
 
 from ..solve.result import TOTALS, PointResult
-from ..store.corrections import display_values
 from ..units import to_display_unit
 
 __all__ = ["point_to_dict", "format_point", "format_model", "shown", "format_corrections",
@@ -323,6 +322,14 @@ def format_model(model, units: str = "metric") -> str:
     return "\n".join(lines)
 
 
+def _display_values(curve, units):
+    """A correction curve's values in display units (the store's rule; imported
+    here only, so tables of a point load no HDF5 library)."""
+    from ..store.corrections import display_values
+
+    return display_values(curve, units)
+
+
 def format_corrections(cc, units: str = "metric") -> str:
     """Correction curves as console tables: per condition, each value's change of
     output and of heat rate from the reference value, in per cent, at each load
@@ -336,7 +343,7 @@ def format_corrections(cc, units: str = "metric") -> str:
            f"design throttle flow; dP, dHR: change of output and heat rate from the "
            f"reference value [%] (ASME PTC 6 describes how such curves are used)", ""]
     for c in cc.curves:
-        values, unit = display_values(c, units)
+        values, unit = _display_values(c, units)
         ref = values[c.reference_index]
         headers = [c.name.replace("_", " ")]
         units_row = [unit]
@@ -366,7 +373,7 @@ def corrections_to_dict(cc, units: str = "metric") -> dict:
     hr_unit = to_display_unit(0.0, "J/J", None, units)[1]
     curves = {}
     for c in cc.curves:
-        values, unit = display_values(c, units)
+        values, unit = _display_values(c, units)
         out = to_display_unit(c.output, "W", None, units)[0]
         hr = to_display_unit(c.heat_rate, "J/J", None, units)[0]
 

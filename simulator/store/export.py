@@ -218,7 +218,9 @@ def _write_csv(path: Path, cols: list[tuple[str, np.ndarray]], digits: int) -> P
     texts = [csv_text(c, digits) for _, c in cols]
 
     def write(tmp: Path) -> None:
-        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+        # text read from a damaged file may hold bytes that are not UTF-8: written
+        # escaped rather than failing
+        with open(tmp, "w", newline="", encoding="utf-8", errors="backslashreplace") as fh:
             w = csv.writer(fh)
             w.writerow([name for name, _ in cols])
             w.writerows(zip(*texts))
