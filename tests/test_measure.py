@@ -1,0 +1,310 @@
+"""Measured plant data: reading, reconciliation (VDI 2048), fitting the tunables."""
+
+from __future__ import annotations
+
+import copy
+import math
+from pathlib import Path
+
+import numpy as np
+import partload
+import pytest
+from partload.errors import InputError
+from partload.measure import fit, read_measurements, reconcile, reconcile_linear
+from partload.measure.gls import INDIVIDUAL_LIMIT
+from partload.measure.tested import deviation_report, load_as_tested, write_as_tested
+from partload.plant.case import design_conditions, override
+from partload.solve.point import solve_point
+
+ROOT = Path(__file__).resolve().parent.parent
+MODEL = ROOT / "models" / "demo_reheat_unit.toml"
+
+# ------------------------------------------------------------ linear balances
+
+
+def test_single_node_reconciliation_by_hand():
+    # Hand calculation: one splitter F1 = F2 + F3, readings 100, 60, 35 with standard
+    # deviations 2, 1, 1.  Imbalance r = 100 - 60 - 35 = 5, A S A^T = 4 + 1 + 1 = 6.
+    # Corrections -s_i^2 a_i r / 6: F1 = 100 - 20/6 = 96.6667, F2 = 60 + 5/6 = 60.8333,
+    # F3 = 35 + 5/6 = 35.8333.  Reconciled variance s_i^2 - s_i^4/6: 4 - 16/6 = 4/3
+    # for F1, 1 - 1/6 = 5/6 for F2, F3.  Quality criterion r^2/6 = 25/6 = 4.1667 with
+    # 1 degree of freedom; chi-square 95 % quantile at 1 dof = 3.841 (published
+    # tables, e.g. NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.6.7.4): fails.
+    # Individual test: correction over sqrt(s_i^4/6): 3.3333/1.63299 = 2.0412 for
+    # every reading (one balance: all share it).
+    rec = reconcile_linear([[1.0, -1.0, -1.0]], [100.0, 60.0, 35.0], [2.0, 1.0, 1.0])
+    assert rec.reconciled == pytest.approx([96.666666667, 60.833333333, 35.833333333],
+                                           rel=1e-9)
+    assert rec.reconciled_sigma**2 == pytest.approx([4 / 3, 5 / 6, 5 / 6], rel=1e-9)
+    assert rec.chi2 == pytest.approx(25 / 6, rel=1e-12)
+    assert rec.dof == 1
+    assert rec.chi2_limit == pytest.approx(3.841, abs=5e-4)
+    assert not rec.passed
+    assert np.abs(rec.z) == pytest.approx([2.0412415] * 3, rel=1e-7)
+
+
+def test_flow_network_with_recycle_satisfies_balances_and_names_the_bad_meter():
+    # A flow network of the kind Narasimhan and Jordache (2000, ch. 3) reconcile:
+    # feed 1 -> mixer (with recycle 6) -> 2 -> reactor -> 3 -> separator -> 4
+    # (product) and 5 -> splitter -> 6 (recycle) and 7 (purge).  The true flows
+    # (invented here, not the book's numbers) are 100, 150, 150, 80, 70, 50, 20;
+    # every meter has a 2 % uncertainty at 95 %.  Balances: 1 + 6 - 2, 2 - 3,
+    # 3 - 4 - 5, 5 - 6 - 7.
+    A = np.array([[1, -1, 0, 0, 0, 1, 0],
+                  [0, 1, -1, 0, 0, 0, 0],
+                  [0, 0, 1, -1, -1, 0, 0],
+                  [0, 0, 0, 0, 1, -1, -1]], dtype=float)
+    true = np.array([100.0, 150.0, 150.0, 80.0, 70.0, 50.0, 20.0])
+    sigma = 0.02 * true / 1.959964
+    noise = np.random.default_rng(7).standard_normal(7) * sigma
+    rec = reconcile_linear(A, true + noise, sigma)
+    # the reconciled flows satisfy every balance (to rounding: 1e-9 of the flows)
+    assert np.max(np.abs(A @ rec.reconciled)) < 1e-9 * true.max()
+    # reconciled uncertainties are never larger than the readings' (VDI 2048)
+    assert np.all(rec.reconciled_sigma <= sigma + 1e-15)
+    assert rec.dof == 4
+    assert len(rec.suspect) == 0  # noise within the uncertainties (seed 7: no flag)
+    # a gross error of 10 % on meter 4 (the product) is named first
+    bad = true + noise
+    bad[3] *= 1.10
+    rec = reconcile_linear(A, bad, sigma)
+    assert not rec.passed
+    assert rec.suspect[0] == 3
+
+
+def test_false_alarms_and_chi_square_over_many_draws():
+    # Over many noise draws without a gross error the quality criterion follows the
+    # chi-square distribution (mean = degrees of freedom, 95 % below the quantile),
+    # and the family-corrected test names no reading in about 95 % of draws (theory:
+    # 95 %; checked on 2000 draws with a 3-sigma binomial margin, 1.5 points).
+    A = np.array([[1, -1, -1, 0], [0, 1, 0, -1]], dtype=float)
+    true = np.array([100.0, 60.0, 40.0, 60.0])
+    sigma = np.array([1.0, 0.8, 0.6, 0.8])
+    rng = np.random.default_rng(11)
+    chi, clean = [], 0
+    for _ in range(2000):
+        rec = reconcile_linear(A, true + rng.standard_normal(4) * sigma, sigma)
+        chi.append(rec.chi2)
+        clean += len(rec.suspect) == 0
+    chi = np.array(chi)
+    assert chi.mean() == pytest.approx(2.0, abs=0.2)  # chi-square mean = dof
+    assert np.mean(chi <= rec.chi2_limit) == pytest.approx(0.95, abs=0.015)
+    assert clean / 2000 >= 0.935
+
+
+# ------------------------------------------------------------ the turbine model
+
+TAGS = """
+[tags.FT-101]
+sets = "throttle_flow"
+uncertainty = "1.5 %"
+[tags.TT-101]
+sets = "throttle_temperature"
+uncertainty = "2 K"
+[tags.TT-301]
+sets = "reheat_temperature"
+uncertainty = "2 K"
+[tags.PT-901]
+sets = "exhaust_pressure"
+uncertainty = "0.15 kPa"
+[tags.PT-101]
+quantity = "totals.throttle_pressure"
+uncertainty = "0.5 %"
+[tags.PT-201]
+quantity = "nodes.hp_mid.pressure"
+uncertainty = "0.5 %"
+[tags.TT-201]
+quantity = "nodes.hp_mid.temperature"
+uncertainty = "1.5 K"
+[tags.PT-202]
+quantity = "nodes.cold_reheat.pressure"
+uncertainty = "0.5 %"
+[tags.TT-202]
+quantity = "nodes.cold_reheat.temperature"
+uncertainty = "1.5 K"
+[tags.FT-202]
+quantity = "stage_groups.HP2.flow"
+uncertainty = "2 %"
+[tags.PT-401]
+quantity = "nodes.crossover.pressure"
+uncertainty = "0.5 %"
+[tags.TT-401]
+quantity = "nodes.crossover.temperature"
+uncertainty = "1.5 K"
+[tags.JT-001]
+quantity = "totals.generator_output"
+uncertainty = "0.3 %"
+[tags.TT-801]
+quantity = "heaters.HP8.feedwater_out_temperature"
+uncertainty = "1 K"
+[tags.FT-801]
+quantity = "extractions.E8.flow"
+uncertainty = "3 %"
+"""
+FIT = ('[fit]\ntunables = ["stage_group.HP1.efficiency", "stage_group.HP1.flow_constant", '
+       '"stage_group.HP2.efficiency", "heater.HP8.ttd"]\n')
+LOADS = (1.0, 0.9, 0.8, 0.7, 0.6)
+
+
+def _reading(r, quantity: str) -> float:
+    group, *rest = quantity.split(".")
+    if group == "totals":
+        return r.totals[rest[0]]
+    return r.table(group)[".".join(rest[:-1])][rest[-1]]
+
+
+def _truth(model):
+    """The demo unit as it is in these tests: HP1 efficiency 3 points lower, HP8 TTD
+    2 K higher (the changes the fit must recover)."""
+    t = copy.deepcopy(model)
+    t.solver_cache.clear()
+    next(g for g in t.groups if g.name == "HP1").eta_dry_design -= 0.03
+    t.heaters["HP8"].ttd += 2.0
+    return t
+
+
+def _write(folder: Path, seed: int, bias: dict | None = None, loads=LOADS) -> Path:
+    """Readings of the true machine at ``loads`` with seeded noise within the
+    uncertainties (normal, sigma = U95 / 1.96), a map and a CSV file in ``folder``."""
+    import tomllib
+
+    model = partload.load_model(MODEL)
+    truth = _truth(model)
+    tags = tomllib.loads(TAGS)["tags"]
+    rng = np.random.default_rng(seed)
+    names = list(tags)
+    rows = []
+    for k, frac in enumerate(loads):
+        r = solve_point(truth, override(design_conditions(truth), throttle_flow=280.0 * frac,
+                                        exhaust_pressure=7.2e3), check_limits=False)
+        sets = {"throttle_flow": r.totals["throttle_flow"],
+                "throttle_temperature": r.totals["throttle_temperature"],
+                "reheat_temperature": r.node("hot_reheat")["T"], "exhaust_pressure": 7.2e3}
+        row = []
+        for name in names:
+            t = tags[name]
+            x = sets[t["sets"]] if "sets" in t else _reading(r, t["quantity"])
+            u = t["uncertainty"]
+            if u.endswith("%"):
+                s = float(u.split()[0]) / 100 * abs(x) / 1.959964
+            else:
+                s = float(u.split()[0]) * (1e3 if "kPa" in u else 1.0) / 1.959964
+            x += rng.standard_normal() * s
+            x *= (bias or {}).get((k, name), 1.0)
+            row.append(x)
+        rows.append(row)
+    units = {"throttle_flow": "kg/s"}
+    header = ["point"] + [f"{n} [{_unit(tags[n], units)}]" for n in names]
+    lines = ["# INVENTED readings for tests", ",".join(header)]
+    lines += [",".join([f"P{k + 1}"] + [repr(float(x)) for x in row]) for k, row in
+              enumerate(rows)]
+    (folder / "readings.csv").write_text("\n".join(lines) + "\n")
+    (folder / "map.toml").write_text(f'model = "{MODEL.as_posix()}"\ndata = "readings.csv"\n'
+                                     + TAGS + FIT)
+    return folder / "map.toml"
+
+
+def _unit(tag: dict, units: dict) -> str:
+    q = tag.get("quantity", tag.get("sets", ""))
+    if q.endswith("flow"):
+        return "kg/s"
+    if q.endswith("temperature"):
+        return "K"
+    if q.endswith("pressure"):
+        return "Pa"
+    return "W"
+
+
+@pytest.fixture(scope="module")
+def clean_map(tmp_path_factory) -> Path:
+    return _write(tmp_path_factory.mktemp("clean"), seed=3)
+
+
+@pytest.fixture(scope="module")
+def fitted(clean_map):
+    return fit(read_measurements(clean_map))
+
+
+def test_fit_recovers_the_known_changes_within_two_standard_deviations(fitted):
+    # synthetic truth: HP1 efficiency 3 points lower and HP8 TTD 2 K higher than design
+    # (see _truth); readings with seeded noise within their uncertainties
+    value, u95 = fitted.tunable("stage_group.HP1.efficiency")
+    sd = u95 / 1.959964
+    assert abs(value - (fitted.design["stage_group.HP1.efficiency"] - 0.03)) < 2 * sd
+    value, u95 = fitted.tunable("heater.HP8.ttd")
+    assert abs(value - (fitted.design["heater.HP8.ttd"] + 2.0)) < 2 * u95 / 1.959964
+    # unchanged constants stay at design within two standard deviations
+    for key in ("stage_group.HP2.efficiency", "stage_group.HP1.flow_constant"):
+        value, u95 = fitted.tunable(key)
+        assert abs(value - fitted.design[key]) < 2 * u95 / 1.959964
+    assert fitted.rec.passed  # noise within the uncertainties: the criterion holds
+    assert fitted.suspects() == []
+
+
+def test_reconciled_values_satisfy_the_balances(fitted):
+    # the reconciled throttle flow is the HP1 flow, which splits into the E8 bleed and
+    # the HP2 flow (mass balance at hp_mid, to 1e-9 of the flow); each reconciled
+    # point closes the cycle's energy balance to 1e-9 of the heat added
+    meas = fitted.meas
+    names = [t.name for t in meas.tags]
+    for k in range(len(meas.values)):
+        rows = fitted.point_rows(k)
+        hat = {names[fitted.rows[i][1]]: fitted.rec.reconciled[i] for i in rows}
+        assert abs(hat["FT-101"] - hat["FT-801"] - hat["FT-202"]) < 1e-9 * hat["FT-101"]
+        r = fitted.results[k]
+        assert abs(r.totals["energy_imbalance"]) < 1e-9 * r.totals["heat_added"]
+        # reconciled uncertainties are below the readings' (VDI 2048)
+        assert np.all(fitted.rec.reconciled_sigma[rows] <= fitted.rec.sigma[rows] * (1 + 1e-9))
+
+
+def test_a_gross_error_is_named(tmp_path):
+    # the crossover pressure of point 2 reads 4 % high (8 of its standard deviations)
+    path = _write(tmp_path, seed=5, bias={(1, "PT-401"): 1.04}, loads=(1.0, 0.8))
+    meas = read_measurements(path)
+    results = reconcile(meas)
+    assert results[0].suspects() == []  # seed 5, no bias at point 1: nothing named
+    assert not results[1].rec.passed
+    label, tag, z = results[1].suspects()[0]
+    assert (label, tag) == ("P2", "PT-401")
+    assert abs(z) > INDIVIDUAL_LIMIT
+
+
+def test_fitted_model_file_round_trip_and_deviation_report(fitted, tmp_path):
+    out = write_as_tested(fitted, tmp_path / "as_tested.toml")
+    text = out.read_text()
+    assert 'basis = "as tested"' in text
+    model = load_as_tested(out)
+    assert model.name.endswith("(as tested)")
+    cond = design_conditions(model)
+    a = solve_point(model, cond).totals["generator_output"]
+    b = solve_point(fitted.model, cond).totals["generator_output"]
+    assert a == pytest.approx(b, rel=1e-12)  # the same constants: the same answer
+    devs, totals = deviation_report(fitted)
+    hp1 = next(d for d in devs if d.key == "stage_group.HP1.efficiency")
+    # a lower HP efficiency costs output and raises the heat rate at design flow
+    # (physics: less work from the same steam; the reheat takes a little more heat)
+    assert hp1.output_loss > 0.0
+    assert hp1.heat_rate_change > 0.0
+    assert totals["tested_output"] < totals["design_output"]
+    assert math.isfinite(hp1.output_loss_uncertainty)
+
+
+def test_map_mistakes_name_file_table_and_key(tmp_path):
+    path = _write(tmp_path, seed=1, loads=(1.0,))
+    text = path.read_text()
+    path.write_text(text.replace('"nodes.hp_mid.pressure"', '"nodes.hp_midd.pressure"'))
+    with pytest.raises(InputError) as e:
+        read_measurements(path)
+    assert e.value.table == "tags.PT-201" and e.value.key == "quantity"
+    assert "hp_mid" in str(e.value)  # did-you-mean
+    path.write_text(text.replace('"heater.HP8.ttd"', '"heater.HP8.tdd"'))
+    with pytest.raises(InputError) as e:
+        read_measurements(path)
+    assert (e.value.table, e.value.key) == ("fit", "tunables")
+    path.write_text(text)
+    csv = tmp_path / "readings.csv"
+    csv.write_text(csv.read_text().replace("FT-202 [kg/s]", "FT-220 [kg/s]"))
+    with pytest.raises(InputError) as e:
+        read_measurements(path)
+    assert e.value.file == str(csv) and e.value.table == "line 2"
+    assert e.value.key == "FT-220 [kg/s]"
