@@ -47,6 +47,10 @@ _LAZY = {
     "run_study": ".api",
     "open_result": ".api",
     "StudyOutcome": ".api",
+    "read_measurements": ".api",
+    "reconcile_measurements": ".api",
+    "fit_measurements": ".api",
+    "trend_measurements": ".api",
     "Conditions": ".plant.case",
     "Case": ".plant.case",
     "Model": ".plant.model",
@@ -56,7 +60,8 @@ _LAZY = {
 
 __all__ = [
     "__version__", "load_model", "load_case", "point", "run_study", "open_result",
-    "StudyOutcome", "Conditions", "Case", "Model", "PointResult", "solve_point",
+    "StudyOutcome", "read_measurements", "reconcile_measurements", "fit_measurements",
+    "trend_measurements", "Conditions", "Case", "Model", "PointResult", "solve_point",
     "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
     "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]

@@ -40,7 +40,9 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
     from .study import StudyPlan, StudySummary
 
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
-           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS"]
+           "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS",
+           "read_measurements", "reconcile_measurements", "fit_measurements",
+           "trend_measurements", "FitOutcome"]
 
 
 
@@ -72,15 +74,22 @@ def load_model(path: str | Path) -> Model:
     Returns
     -------
     Model
-        Calibrated to the file's design heat balance (SI inside).
+        Calibrated to the file's design heat balance (SI inside); for a fitted
+        model file written by :func:`fit_measurements`, the design model with the
+        fitted constants, named "... (as tested)".
 
     Raises
     ------
     InputError
         A mistake in the file, naming file, table and key.
     """
+    from .inputs.reading import load_toml
+    from .measure.tested import is_as_tested, load_as_tested
     from .plant.model import load_model as _load_model
 
+    data, _ = load_toml(path)
+    if is_as_tested(data):  # a fitted model file ("as tested", partload fit)
+        return load_as_tested(path)
     return _load_model(path)
 
 
@@ -129,7 +138,7 @@ CONDITION_KEYS = {
 def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
     """The model, the base conditions and the default backend of what was given."""
     from .plant.case import Case, design_conditions, load_case
-    from .plant.model import Model, load_model
+    from .plant.model import Model
 
     if isinstance(model_or_case, (str, Path)):
         from .inputs.reading import load_toml
@@ -508,3 +517,112 @@ def open_result(path: str | Path) -> StudyData:
         The file is missing, not HDF5, damaged, or another program's.
     """
     return _store().read_study(path)
+
+
+# ------------------------------------------------------------------ measured data
+def read_measurements(path: str | Path):
+    """Read a measurement map (TOML) and its CSV readings (``partload.measure``).
+
+    Parameters
+    ----------
+    path : the map file [-]
+
+    Returns
+    -------
+    partload.measure.Measurements
+        Tags, readings in SI units, the calibrated model and the base conditions.
+    """
+    from .measure.tags import read_measurements as _read
+
+    return _read(path)
+
+
+def reconcile_measurements(path_or_measurements, *, tunables: list[str] | None = None,
+                           backend: str = "seuif97") -> list:
+    """Reconcile each measured point with the model (``partload reconcile``).
+
+    Parameters
+    ----------
+    path_or_measurements : a map file or :func:`read_measurements`' result [-]
+    tunables : constants free at each point (default: the map's ``[fit] tunables``) [-]
+    backend : steam property backend [-]
+
+    Returns
+    -------
+    list[partload.measure.FitResult]
+        One per point: ``rec`` (reconciled values, uncertainties, chi-square,
+        individual tests), ``suspects()``.
+    """
+    from .measure.fit import reconcile
+
+    return reconcile(_measurements(path_or_measurements), tunables, backend)
+
+
+class FitOutcome(NamedTuple):
+    """What :func:`fit_measurements` returns: the fit, the deviation report (one
+    :class:`partload.measure.tested.Deviation` per tunable), the totals at design
+    flow (design and as tested) and the fitted model file written (or ``None``)."""
+
+    fit: Any
+    deviations: list
+    totals: dict
+    path: Path | None
+
+
+def fit_measurements(path_or_measurements, output: str | Path | None = None, *,
+                     tunables: list[str] | None = None,
+                     backend: str = "seuif97") -> FitOutcome:
+    """Fit the tunables to all measured points together (``partload fit``).
+
+    Parameters
+    ----------
+    path_or_measurements : a map file or :func:`read_measurements`' result [-]
+    output : write the fitted model file ("as tested") here; ``None``: do not write [-]
+    tunables : the constants to fit (default: the map's ``[fit] tunables``) [-]
+    backend : steam property backend [-]
+
+    Returns
+    -------
+    FitOutcome
+    """
+    from .measure.fit import fit
+    from .measure.tested import deviation_report, write_as_tested
+
+    result = fit(_measurements(path_or_measurements), tunables, backend)
+    deviations, totals = deviation_report(result, backend)
+    path = write_as_tested(result, output) if output is not None else None
+    return FitOutcome(result, deviations, totals, path)
+
+
+def trend_measurements(path_or_measurements, output: str | Path | None = None, *,
+                       chart: str | Path | None = None, backend: str = "seuif97",
+                       progress: Callable[[int, int], None] | None = None):
+    """Fit the tunables period by period over online data (``partload trend``).
+
+    Parameters
+    ----------
+    path_or_measurements : a map file or :func:`read_measurements`' result [-]
+    output : the HDF5 file to write; ``None``: do not write [-]
+    chart : the PNG chart to draw; ``None``: no chart [-]
+    backend : steam property backend [-]
+    progress : called with ``(period, periods)`` after each period [-]
+
+    Returns
+    -------
+    partload.measure.trend.Trend
+    """
+    from .measure.trend import draw_trend, fit_trend, write_trend
+
+    meas = _measurements(path_or_measurements)
+    trend = fit_trend(meas, backend, progress)
+    if output is not None:
+        write_trend(trend, meas, output)
+    if chart is not None:
+        draw_trend(trend, chart)
+    return trend
+
+
+def _measurements(path_or_measurements):
+    if isinstance(path_or_measurements, (str, Path)):
+        return read_measurements(path_or_measurements)
+    return path_or_measurements

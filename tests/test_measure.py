@@ -263,10 +263,17 @@ def test_a_gross_error_is_named(tmp_path):
     meas = read_measurements(path)
     results = reconcile(meas)
     assert results[0].suspects() == []  # seed 5, no bias at point 1: nothing named
-    assert not results[1].rec.passed
-    label, tag, z = results[1].suspects()[0]
-    assert (label, tag) == ("P2", "PT-401")
+    # point 2 fails the quality criterion; its worst reading is set aside, and without
+    # it the point passes and nothing else is named (the error smeared over the other
+    # readings before)
+    assert [s[:2] for s in results[1].suspects()] == [("P2", "PT-401")]
+    label, tag, z, reading, model = results[1].removed[0]
     assert abs(z) > INDIVIDUAL_LIMIT
+    assert results[1].rec.passed
+    # the model's crossover pressure from the other readings is near the true one
+    # (the reading over 1.04), within three of the reading's standard deviations
+    sigma = 0.005 * reading / 1.959964
+    assert abs(model - reading / 1.04) < 3 * sigma
 
 
 def test_fitted_model_file_round_trip_and_deviation_report(fitted, tmp_path):
@@ -308,3 +315,34 @@ def test_map_mistakes_name_file_table_and_key(tmp_path):
         read_measurements(path)
     assert e.value.file == str(csv) and e.value.table == "line 2"
     assert e.value.key == "FT-220 [kg/s]"
+
+
+def test_commands_reconcile_fit_and_trend(tmp_path, capsys):
+    import json
+
+    import h5py
+    from partload.cli.main import main
+    from partload.measure.trend import read_trend
+
+    path = _write(tmp_path, seed=5, bias={(1, "PT-401"): 1.04}, loads=(1.0, 0.8, 0.9, 0.7))
+    assert main(["reconcile", str(path), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    named = [s["tag"] for p in data["points"] for s in p["suspects"]]
+    assert named == ["PT-401"]  # the biased reading of point 2 (see test above), only it
+    assert main(["fit", str(path), "-o", str(tmp_path / "tested.toml")]) == 0
+    out = capsys.readouterr().out
+    assert "cost at design throttle flow" in out and "PT-401 at P2" in out
+    assert main(["check", str(tmp_path / "tested.toml")]) == 0
+    assert "(as tested)" in capsys.readouterr().out
+    # a trend of two periods of two points each into HDF5, with its chart
+    path.write_text(path.read_text() + "\n[trend]\npoints_per_period = 2\n")
+    h5 = tmp_path / "trend.h5"
+    assert main(["trend", str(path), "-o", str(h5), "-q"]) == 0
+    trend = read_trend(h5)
+    assert trend.labels == ["P1", "P3"] and list(trend.points) == [2, 2]
+    assert trend.names[0] == "stage_group.HP1.efficiency"
+    assert np.all(trend.uncertainty > 0.0)
+    assert h5.with_suffix(".png").stat().st_size > 10_000
+    with h5py.File(h5, "r") as f:
+        assert f["tunables/value"].attrs["unit"] == "(tunables/units)"
+        assert f.attrs["format"] == "partload-trend"

@@ -24,8 +24,8 @@ __all__ = ["main"]
 
 
 def _cmd_check(args) -> int:
+    from ..api import load_model  # a design model file, or a fitted one ("as tested")
     from ..plant.case import design_conditions
-    from ..plant.model import load_model
     from ..present.tables import format_model, format_point, point_to_dict
     from ..solve.point import solve_point
 
@@ -139,6 +139,9 @@ def build_parser() -> argparse.ArgumentParser:
     from . import study_commands as study_cli
 
     study_cli.add_commands(sub)
+    from . import measure_commands as measure_cli
+
+    measure_cli.add_commands(sub)
     return p
 
 

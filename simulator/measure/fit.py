@@ -79,6 +79,9 @@ class FitResult:
     results: list
     evaluations: int
     design: dict[str, float] = field(default_factory=dict)
+    # readings set aside as gross errors, in the order found: (point label, tag, z when
+    # set aside [-], reading [SI], the model's value without it [SI])
+    removed: list[tuple[str, str, float, float, float]] = field(default_factory=list)
 
     def tunable(self, key: str) -> tuple[float, float]:
         """``(value, 95 % uncertainty)`` of a fitted tunable [its unit]."""
@@ -95,10 +98,11 @@ class FitResult:
         return float(r @ r)
 
     def suspects(self) -> list[tuple[str, str, float]]:
-        """``(point label, tag, z)`` of every reading that fails the individual test,
-        worst first."""
-        return [(self.meas.labels[self.rows[i][0]], self.meas.tags[self.rows[i][1]].name,
-                 float(self.rec.z[i])) for i in self.rec.suspect]
+        """``(point label, tag, z)`` of the readings set aside as gross errors, then of
+        any reading still beyond the suspect limit, worst first."""
+        return [(label, tag, z) for label, tag, z, _, _ in self.removed] + [
+            (self.meas.labels[self.rows[i][0]], self.meas.tags[self.rows[i][1]].name,
+             float(self.rec.z[i])) for i in self.rec.suspect]
 
 
 def _condition_scale(meas: Measurements, sets: str, reading: float) -> float:
@@ -220,12 +224,7 @@ class ModelProblem:
             if tag.sets:
                 out.append(v[own[j]])
                 continue
-            group, item, column = tag.quantity
-            if group == "totals":
-                out.append(result.totals[column])
-            else:
-                t = result.tables[group]
-                out.append(float(t.columns[column][t.names.index(item)]))
+            out.append(model_value(result, tag))
         return np.array(out, dtype=float)
 
     def _point_residual(self, k: int, v: np.ndarray):
@@ -315,8 +314,48 @@ class ModelProblem:
                          list(self.meas_rows), self.model, results, self.evaluations, design)
 
 
+def model_value(result, tag) -> float:
+    """The value of the quantity a measured ``tag`` reads at a solved point [SI]."""
+    group, item, column = tag.quantity
+    if group == "totals":
+        return float(result.totals[column])
+    t = result.tables[group]
+    return float(t.columns[column][t.names.index(item)])
+
+
+def _solve_setting_aside(meas: Measurements, keys: list[str], backend: str,
+                         set_aside: bool) -> FitResult:
+    """Solve; while the quality criterion fails, set the worst suspect reading aside
+    and solve again (serial elimination, Narasimhan and Jordache, "Data
+    Reconciliation and Gross Error Detection", Gulf, 2000, ch. 8, from memory;
+    VDI 2048 Part 1, 2000, likewise repeats the reconciliation without a reading
+    found faulty).  A reading that sets an input is never set aside."""
+    meas = meas.subset(range(len(meas.values)))  # a copy of the readings
+    removed = []
+    result = ModelProblem(meas, keys, backend).solve()
+    while set_aside and not result.rec.passed:
+        worst = next((i for i in result.rec.suspect
+                      if not meas.tags[result.rows[i][1]].sets), None)
+        if worst is None:
+            break
+        k, j = result.rows[worst]
+        tag = meas.tags[j]
+        reading = float(meas.values[k, j])
+        trial = meas.subset(range(len(meas.values)))
+        trial.values[k, j] = math.nan
+        try:
+            again = ModelProblem(trial, keys, backend).solve()
+        except InputError:  # no redundancy left without it
+            break
+        removed.append((meas.labels[k], tag.name, float(result.rec.z[worst]), reading,
+                        model_value(again.results[k], tag)))
+        meas, result = trial, again
+    result.removed = removed
+    return result
+
+
 def reconcile(meas: Measurements, tunables: list[str] | None = None,
-              backend: str = "seuif97") -> list[FitResult]:
+              backend: str = "seuif97", set_aside: bool = True) -> list[FitResult]:
     """Reconcile each measured point on its own.
 
     Parameters
@@ -324,6 +363,9 @@ def reconcile(meas: Measurements, tunables: list[str] | None = None,
     meas : the measurements [-]
     tunables : constants free at each point (default: the map's ``[fit] tunables``) [-]
     backend : steam property backend [-]
+    set_aside : while a point fails the quality criterion, set its worst suspect
+        reading aside and reconcile again (its z, reading and the model's value
+        without it in ``removed``) [-]
 
     Returns
     -------
@@ -332,12 +374,12 @@ def reconcile(meas: Measurements, tunables: list[str] | None = None,
         criterion and the individual tests.
     """
     keys = meas.tunables if tunables is None else tunables
-    return [ModelProblem(meas.subset([k]), keys, backend).solve()
+    return [_solve_setting_aside(meas.subset([k]), keys, backend, set_aside)
             for k in range(len(meas.values))]
 
 
 def fit(meas: Measurements, tunables: list[str] | None = None,
-        backend: str = "seuif97") -> FitResult:
+        backend: str = "seuif97", set_aside: bool = True) -> FitResult:
     """Fit the tunables to all points together.
 
     Parameters
@@ -345,6 +387,8 @@ def fit(meas: Measurements, tunables: list[str] | None = None,
     meas : the measurements [-]
     tunables : the constants to fit (default: the map's ``[fit] tunables``) [-]
     backend : steam property backend [-]
+    set_aside : while the fit fails the quality criterion, set the worst suspect
+        reading aside and fit again [-]
 
     Returns
     -------
@@ -356,4 +400,4 @@ def fit(meas: Measurements, tunables: list[str] | None = None,
     if not keys:
         raise InputError("no tunables to fit: list them in [fit] tunables", file=meas.file,
                          table="fit", key="tunables")
-    return ModelProblem(meas, keys, backend).solve()
+    return _solve_setting_aside(meas, keys, backend, set_aside)

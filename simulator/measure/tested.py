@@ -224,5 +224,7 @@ def load_as_tested(path: str | Path):
                                          f"{ref.tunable.hi} [{ref.tunable.unit}]")
         setattr(ref.component, ref.tunable.attribute, value)
     model.name = f"{model.name} ({BASIS})"
+    model.description = (f"{model.description}. AS TESTED: constants fitted to measured data "
+                         f"({file}), not the design values")
     model.solver_cache.clear()
     return model
