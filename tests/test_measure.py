@@ -346,3 +346,36 @@ def test_commands_reconcile_fit_and_trend(tmp_path, capsys):
     with h5py.File(h5, "r") as f:
         assert f["tunables/value"].attrs["unit"] == "(tunables/units)"
         assert f.attrs["format"] == "partload-trend"
+
+
+def test_chi_square_of_the_model_reconciliation_follows_its_distribution(tmp_path):
+    # 20 noise draws of one point without a gross error: 15 readings, 4 inputs and 4
+    # tunables, 7 degrees of freedom.  The mean of 20 chi-square(7) values has the
+    # standard deviation sqrt(2 * 7 / 20) = 0.84 (chi-square: mean k, variance 2k);
+    # the check allows three of them.
+    chi = []
+    for seed in range(100, 120):
+        folder = tmp_path / str(seed)
+        folder.mkdir()
+        (r,) = reconcile(read_measurements(_write(folder, seed, loads=(0.9,))),
+                         set_aside=False)
+        assert r.rec.dof == 7
+        chi.append(r.rec.chi2)
+    assert abs(np.mean(chi) - 7.0) < 3 * math.sqrt(14 / 20)
+
+
+def test_demo_acceptance_test_names_its_faulty_meter():
+    # the INVENTED demo (measurements/make_demo_data.py): FT-202 reads 6 % high at
+    # every point; each point sets it aside and then passes
+    results = partload.reconcile_measurements(ROOT / "measurements" / "acceptance_test.toml")
+    assert [[s[:2] for s in r.suspects()] for r in results] == [
+        [("T1-100%", "FT-202")], [("T2-80%", "FT-202")], [("T3-60%", "FT-202")]]
+    assert all(r.rec.passed for r in results)
+
+
+def test_a_fitted_model_file_refuses_a_changed_design_model(fitted, tmp_path):
+    out = write_as_tested(fitted, tmp_path / "as_tested.toml")
+    out.write_text(out.read_text().replace('design_model_sha256 = "', 'design_model_sha256 = "0'))
+    with pytest.raises(InputError) as e:
+        load_as_tested(out)
+    assert e.value.key == "design_model_sha256"

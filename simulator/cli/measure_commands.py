@@ -36,8 +36,10 @@ def _cmd_reconcile(args) -> int:
         print(format_fit(r))
         print()
     bad = [s for r in results for s in r.suspects()]
+    aside = sum(len(r.removed) for r in results)
     failed = sum(not r.rec.passed for r in results)
-    print(f"{len(results)} points: {failed} fail the quality criterion; "
+    print(f"{len(results)} points: {failed} fail the quality criterion"
+          + (f" ({aside} readings set aside)" if aside else "") + "; "
           + (("suspect: " + ", ".join(f"{t} at {p}" for p, t, _ in bad)) if bad
              else "no suspect reading"))
     return 0

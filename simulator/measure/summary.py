@@ -190,6 +190,14 @@ def trend_summary(trend) -> str:
                          f"{trend.labels[b]}: {trend.value[b, c] * s:.4g} +/- "
                          f"{trend.uncertainty[b, c] * s:.2g} {unit} (design "
                          f"{trend.design[c] * s:.4g})")
+    named: dict[str, list[int]] = {}  # tag -> periods naming it (once a reading)
+    for i, text in enumerate(trend.suspects):
+        for item in text.split():
+            named.setdefault(item.split("@")[0], []).append(i)
+    for tag, where in sorted(named.items(), key=lambda kv: -len(kv[1])):
+        periods = sorted(set(where))
+        lines.append(f"suspect {tag}: {len(where)} readings in {len(periods)} periods (first "
+                     f"{trend.labels[periods[0]]}, last {trend.labels[periods[-1]]})")
     for i in np.flatnonzero(trend.status != 0):
         lines.append(f"period {trend.labels[i]} not fitted: {trend.messages[i]}")
     return "\n".join(lines)
