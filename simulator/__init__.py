@@ -51,6 +51,7 @@ _LAZY = {
     "reconcile_measurements": ".api",
     "fit_measurements": ".api",
     "trend_measurements": ".api",
+    "point_as_tested": ".api",
     "Conditions": ".plant.case",
     "Case": ".plant.case",
     "Model": ".plant.model",
@@ -61,7 +62,8 @@ _LAZY = {
 __all__ = [
     "__version__", "load_model", "load_case", "point", "run_study", "open_result",
     "StudyOutcome", "read_measurements", "reconcile_measurements", "fit_measurements",
-    "trend_measurements", "Conditions", "Case", "Model", "PointResult", "solve_point",
+    "trend_measurements", "point_as_tested", "Conditions", "Case", "Model", "PointResult",
+    "solve_point",
     "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
     "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]

@@ -42,7 +42,7 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
            "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS",
            "read_measurements", "reconcile_measurements", "fit_measurements",
-           "trend_measurements", "FitOutcome"]
+           "trend_measurements", "FitOutcome", "point_as_tested"]
 
 
 
@@ -620,6 +620,35 @@ def trend_measurements(path_or_measurements, output: str | Path | None = None, *
     if chart is not None:
         draw_trend(trend, chart)
     return trend
+
+
+def point_as_tested(fit, conditions: Conditions | None = None, *, backend: str = "seuif97",
+                    **changes):
+    """One point of the fitted model with the 95 % uncertainty of every total, from
+    the fit's covariance (linearised).
+
+    Parameters
+    ----------
+    fit : a :class:`FitOutcome` or its ``fit`` [-]
+    conditions : operating conditions (SI); default: the design point [-]
+    backend : steam property backend [-]
+    **changes : conditions changed as in :func:`point` (``throttle_flow`` [kg/s],
+        ``output`` [W], ``exhaust_pressure`` [Pa], ...) [-]
+
+    Returns
+    -------
+    (PointResult, dict)
+        The point as tested, and each total's 95 % uncertainty [unit of the total].
+    """
+    from .measure.tested import predict
+    from .plant.case import design_conditions
+
+    result = fit.fit if isinstance(fit, FitOutcome) else fit
+    base = conditions if conditions is not None else design_conditions(result.model)
+    if changes:
+        _check_as_a_case_would(result.model, base, None, changes)
+    cond = _with_changes(result.model, base, changes) if changes else base
+    return predict(result, cond, backend)
 
 
 def _measurements(path_or_measurements):

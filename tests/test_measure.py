@@ -379,3 +379,20 @@ def test_a_fitted_model_file_refuses_a_changed_design_model(fitted, tmp_path):
     with pytest.raises(InputError) as e:
         load_as_tested(out)
     assert e.value.key == "design_model_sha256"
+
+
+def test_a_point_as_tested_carries_the_fit_uncertainty(fitted):
+    # linearised propagation: the output's 95 % uncertainty at 70 % flow is positive
+    # and below the whole HP1 loss at that load (the fit determines it to a fraction:
+    # its efficiency uncertainty is under a third of the 3-point change, see the
+    # recovery test); the point itself is the fitted model's
+    r, u = partload.point_as_tested(fitted, throttle_flow=196.0)
+    same = solve_point(fitted.model, override(design_conditions(fitted.model),
+                                              throttle_flow=196.0), check_limits=False)
+    assert r.totals["generator_output"] == pytest.approx(same.totals["generator_output"],
+                                                         rel=1e-12)
+    design = solve_point(fitted.meas.model, override(design_conditions(fitted.meas.model),
+                                                     throttle_flow=196.0))
+    loss = design.totals["generator_output"] - r.totals["generator_output"]
+    assert 0.0 < u["generator_output"] < loss
+    assert u["heat_rate"] > 0.0

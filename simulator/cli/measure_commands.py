@@ -51,7 +51,7 @@ def _cmd_fit(args) -> int:
     meas = read_measurements(args.measurements)
     output = args.output
     if output is None:
-        output = Path(meas.file).with_name(Path(meas.file).stem + "_as_tested.toml")
+        output = Path("results") / f"{Path(meas.file).stem}_as_tested.toml"
     out = fit_measurements(meas, None if args.no_model else output,
                            tunables=_tunables(args.tunables), backend=args.backend)
     if args.json:
@@ -114,7 +114,7 @@ def add_commands(sub) -> None:
                     "heat rate at design throttle flow, and the fitted model file.")
     c.add_argument("measurements", help="measurement map (TOML)")
     c.add_argument("--output", "-o", default=None, metavar="PATH",
-                   help="fitted model file (default: <map>_as_tested.toml beside the map)")
+                   help="fitted model file (default results/<map>_as_tested.toml)")
     c.add_argument("--no-model", action="store_true", help="do not write the fitted model")
     c.add_argument("--tunables", default=None, metavar="KEY,...",
                    help="constants to fit (default: the map's [fit] tunables)")

@@ -85,6 +85,10 @@ def fit_to_dict(result: FitResult, deviations=None, totals=None) -> dict:
                                   d.heat_rate_change_uncertainty} for d in deviations]
         out["at_design_flow"] = {"design_output_W": totals["design_output"],
                                  "tested_output_W": totals["tested_output"],
+                                 "tested_output_uncertainty_95_W":
+                                     totals["tested_output_uncertainty"],
+                                 "tested_heat_rate_uncertainty_95_J_per_J":
+                                     totals["tested_heat_rate_uncertainty"],
                                  "design_heat_rate_J_per_J": totals["design_heat_rate"],
                                  "tested_heat_rate_J_per_J": totals["tested_heat_rate"]}
     return out
@@ -95,9 +99,13 @@ def _show(x: float, unit: str) -> tuple[float, str]:
     return float(v), u
 
 
-def _diff(x: float, unit: str) -> float:
-    """An uncertainty or correction in the display unit (no offset)."""
-    return _show(x, unit)[0] - _show(0.0, unit)[0]
+def _row_unit(si_unit: str, value: float):
+    """``(show, unit)``: a function from SI to the display unit of a row, and that
+    unit; pressures below half a bar (an exhaust) in kPa."""
+    if si_unit == "Pa" and abs(value) < 5e4:
+        return (lambda x: x / 1e3), "kPa"
+    _, unit = _show(value, si_unit)
+    return (lambda x: _show(x, si_unit)[0]), unit
 
 
 def format_readings(result: FitResult, k: int) -> str:
@@ -105,14 +113,14 @@ def format_readings(result: FitResult, k: int) -> str:
     lines = [f"{'tag':<10} {'measured':>12} {'+/-':>8} {'reconciled':>12} {'+/-':>8} "
              f"{'z':>6}  {'unit':<6} verdict"]
     for r in reading_rows(result, k):
-        m, unit = _show(r["measured"], r["unit"])
-        rc, _ = _show(r["reconciled"], r["unit"])
+        show, unit = _row_unit(r["unit"], r["measured"])
         z = "   -  " if r["z"] is None else f"{r['z']:+6.2f}"
         verdict = "SUSPECT" if r["suspect"] else ("> 1.96" if r["individual_test"] ==
                                                    "exceeds 1.96" else "")
-        lines.append(f"{r['tag']:<10} {m:12.5g} {_diff(r['measured_uncertainty'], r['unit']):8.3g}"
-                     f" {rc:12.5g} {_diff(r['reconciled_uncertainty'], r['unit']):8.3g} {z}  "
-                     f"{unit:<6} {verdict}")
+        u_m = show(r["measured_uncertainty"]) - show(0.0)
+        u_r = show(r["reconciled_uncertainty"]) - show(0.0)
+        lines.append(f"{r['tag']:<10} {show(r['measured']):12.5g} {u_m:8.3g}"
+                     f" {show(r['reconciled']):12.5g} {u_r:8.3g} {z}  {unit:<6} {verdict}")
     return "\n".join(lines)
 
 
@@ -128,8 +136,8 @@ def _suspects(result: FitResult) -> list[str]:
     out = []
     for label, tag, z, reading, model in result.removed:
         unit = SI_UNIT[result.meas.tag(tag).dimension]
-        r, shown = _show(reading, unit)
-        m = _show(model, unit)[0]
+        show, shown = _row_unit(unit, reading)
+        r, m = show(reading), show(model)
         out.append(f"SET ASIDE as a gross error: {tag} at {label} (z = {z:+.2f}); it reads "
                    f"{r:.5g} {shown}, the other readings and the model say {m:.5g} {shown}")
     s = [(p, t, z) for p, t, z in result.suspects()[len(result.removed):]]
@@ -170,9 +178,11 @@ def format_fit(result: FitResult, deviations=None, totals=None, readings: bool =
         dhr = totals["tested_heat_rate"] - totals["design_heat_rate"]
         out.append(f"{'all together':<32} {dp / 1e6:12.3f} {'':8} {dhr * 3600:+12.1f}")
         out.append(f"design output {totals['design_output'] / 1e6:.2f} MW, as tested "
-                   f"{totals['tested_output'] / 1e6:.2f} MW; heat rate "
+                   f"{totals['tested_output'] / 1e6:.2f} +/- "
+                   f"{totals['tested_output_uncertainty'] / 1e6:.2f} MW; heat rate "
                    f"{totals['design_heat_rate'] * 3600:.0f} -> "
-                   f"{totals['tested_heat_rate'] * 3600:.0f} kJ/kWh")
+                   f"{totals['tested_heat_rate'] * 3600:.0f} +/- "
+                   f"{totals['tested_heat_rate_uncertainty'] * 3600:.0f} kJ/kWh (95 %)")
     return "\n".join(out)
 
 

@@ -22,6 +22,8 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
+
 from ..errors import InputError
 from ..inputs.reading import load_toml
 from ..plant.case import design_conditions
@@ -29,9 +31,10 @@ from ..solve.point import solve_point
 from ..units import Where
 from ..version import __version__
 from .fit import FitResult
-from .tags import resolve_tunable
+from .tags import COVERAGE, resolve_tunable
 
-__all__ = ["Deviation", "deviation_report", "write_as_tested", "load_as_tested", "BASIS"]
+__all__ = ["Deviation", "deviation_report", "write_as_tested", "load_as_tested", "BASIS",
+           "predict"]
 
 #: the basis a fitted model file states
 BASIS = "as tested"
@@ -75,8 +78,9 @@ def deviation_report(result: FitResult, backend: str = "seuif97") -> tuple[list[
     -------
     (list[Deviation], dict)
         One entry per tunable, and the totals with all fitted together:
-        ``design_output`` [W], ``tested_output`` [W], ``design_heat_rate``,
-        ``tested_heat_rate`` [J/J].
+        ``design_output`` [W], ``tested_output`` [W] and its 95 % uncertainty
+        ``tested_output_uncertainty`` [W], ``design_heat_rate``,
+        ``tested_heat_rate`` and ``tested_heat_rate_uncertainty`` [J/J].
     """
     design = copy.deepcopy(result.meas.model)
     design.solver_cache.clear()
@@ -99,11 +103,51 @@ def deviation_report(result: FitResult, backend: str = "seuif97") -> tuple[list[
         slope = 1.0 / (value - d) if value != d else 0.0
         out.append(Deviation(p.key, ref.tunable.unit, value, u, d, dp, abs(dp * slope * u),
                              dhr, abs(dhr * slope * u)))
-    tested = copy.deepcopy(result.model)
-    tested.solver_cache.clear()
-    r = _rated(tested, backend)
+    r, u = predict(result, None, backend)
     return out, {"design_output": p0, "tested_output": r.totals["generator_output"],
-                 "design_heat_rate": hr0, "tested_heat_rate": r.totals["heat_rate"]}
+                 "tested_output_uncertainty": u["generator_output"],
+                 "design_heat_rate": hr0, "tested_heat_rate": r.totals["heat_rate"],
+                 "tested_heat_rate_uncertainty": u["heat_rate"]}
+
+
+def predict(result: FitResult, cond=None, backend: str = "seuif97"):
+    """A point of the fitted model with the 95 % uncertainty of every total from the
+    fit's covariance, linearised (first-order propagation, JCGM 100:2008 "Guide to
+    the expression of uncertainty in measurement", section 5.1).
+
+    Parameters
+    ----------
+    result : a fit [-]
+    cond : the operating conditions (:class:`simulator.plant.case.Conditions`, SI);
+        default: the design conditions [-]
+    backend : steam property backend [-]
+
+    Returns
+    -------
+    (PointResult, dict)
+        The point as tested, and each total's 95 % uncertainty [unit of the total].
+    """
+    model = result.model
+    cond = design_conditions(model) if cond is None else cond
+    base = solve_point(model, cond, backend, check_limits=False)
+    keys = [p for p in result.parameters if p.tag is None]
+    n = len(keys)
+    grads = {name: np.zeros(n) for name in base.totals}
+    for c, p in enumerate(keys):
+        ref = resolve_tunable(model, p.key, Where())
+        value = getattr(ref.component, ref.tunable.attribute)
+        step = 1e-3 * p.scale
+        setattr(ref.component, ref.tunable.attribute, value + step)
+        try:
+            r = solve_point(model, cond, backend, guess=base.unknowns,
+                            jacobian=base.jacobian, check_limits=False)
+        finally:
+            setattr(ref.component, ref.tunable.attribute, value)
+        for name in grads:
+            grads[name][c] = (r.totals[name] - base.totals[name]) / step
+    C = result.covariance[:n, :n]  # the tunables come first among the parameters
+    u = {name: float(COVERAGE * np.sqrt(max(g @ C @ g, 0.0))) for name, g in grads.items()}
+    return base, u
 
 
 def _toml_string(text: str) -> str:
