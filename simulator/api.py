@@ -569,9 +569,18 @@ class FitOutcome(NamedTuple):
     path: Path | None
 
 
+def _free_target(path: str | Path | None, force: bool) -> None:
+    """Refuse to replace an existing file without ``force`` (exit 3 on the command
+    line), before any work is done."""
+    from .errors import ResultFileError
+
+    if path is not None and Path(path).exists() and not force:
+        raise ResultFileError(f"{path} exists; give force=True (--force) to replace it")
+
+
 def fit_measurements(path_or_measurements, output: str | Path | None = None, *,
-                     tunables: list[str] | None = None,
-                     backend: str = "seuif97") -> FitOutcome:
+                     tunables: list[str] | None = None, backend: str = "seuif97",
+                     force: bool = False) -> FitOutcome:
     """Fit the tunables to all measured points together (``partload fit``).
 
     Parameters
@@ -580,6 +589,7 @@ def fit_measurements(path_or_measurements, output: str | Path | None = None, *,
     output : write the fitted model file ("as tested") here; ``None``: do not write [-]
     tunables : the constants to fit (default: the map's ``[fit] tunables``) [-]
     backend : steam property backend [-]
+    force : replace an existing ``output`` [-]
 
     Returns
     -------
@@ -588,6 +598,7 @@ def fit_measurements(path_or_measurements, output: str | Path | None = None, *,
     from .measure.fit import fit
     from .measure.tested import deviation_report, write_as_tested
 
+    _free_target(output, force)
     result = fit(_measurements(path_or_measurements), tunables, backend)
     deviations, totals = deviation_report(result, backend)
     path = write_as_tested(result, output) if output is not None else None
@@ -596,7 +607,8 @@ def fit_measurements(path_or_measurements, output: str | Path | None = None, *,
 
 def trend_measurements(path_or_measurements, output: str | Path | None = None, *,
                        chart: str | Path | None = None, backend: str = "seuif97",
-                       progress: Callable[[int, int], None] | None = None):
+                       progress: Callable[[int, int], None] | None = None,
+                       force: bool = False):
     """Fit the tunables period by period over online data (``partload trend``).
 
     Parameters
@@ -606,6 +618,7 @@ def trend_measurements(path_or_measurements, output: str | Path | None = None, *
     chart : the PNG chart to draw; ``None``: no chart [-]
     backend : steam property backend [-]
     progress : called with ``(period, periods)`` after each period [-]
+    force : replace an existing ``output`` [-]
 
     Returns
     -------
@@ -613,6 +626,7 @@ def trend_measurements(path_or_measurements, output: str | Path | None = None, *
     """
     from .measure.trend import draw_trend, fit_trend, write_trend
 
+    _free_target(output, force)
     meas = _measurements(path_or_measurements)
     trend = fit_trend(meas, backend, progress)
     if output is not None:

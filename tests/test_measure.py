@@ -22,6 +22,31 @@ MODEL = ROOT / "models" / "demo_reheat_unit.toml"
 # ------------------------------------------------------------ linear balances
 
 
+def test_heat_exchanger_with_bypass_of_narasimhan_and_jordache():
+    # Published worked example: S. Narasimhan and C. Jordache, "Data Reconciliation and
+    # Gross Error Detection", Gulf Publishing, 2000: the heat exchanger with bypass
+    # (ch. 1, and reconciled in ch. 3; chapter placement from memory).  Stream 1 splits
+    # into 2 (through the exchanger, leaving as 4) and 3 (the bypass valve, leaving as
+    # 5); 4 and 5 mix into 6.  Measured flows 101.91, 64.45, 34.65, 64.20, 36.44, 98.88,
+    # all with standard deviation 1; the book's reconciled flows 100.22, 64.50, 35.72,
+    # 64.50, 35.72, 100.22 (true flows 100, 64, 36, 64, 36, 100).  Numbers from memory;
+    # the check below reproduces them to the book's two decimals.
+    A = [[1, -1, -1, 0, 0, 0],   # splitter
+         [0, 1, 0, -1, 0, 0],    # exchanger
+         [0, 0, 1, 0, -1, 0],    # bypass valve
+         [0, 0, 0, 1, 1, -1]]    # mixer
+    rec = reconcile_linear(A, [101.91, 64.45, 34.65, 64.20, 36.44, 98.88], [1.0] * 6)
+    assert rec.reconciled == pytest.approx([100.22, 64.50, 35.72, 64.50, 35.72, 100.22],
+                                           abs=0.005)
+    assert np.max(np.abs(np.asarray(A) @ rec.reconciled)) < 1e-9 * 100.0
+    # four independent balances: four degrees of freedom (hand count); the 95 %
+    # chi-square quantile at 4 dof is 9.488 (published tables, e.g. NIST/SEMATECH
+    # e-Handbook of Statistical Methods, 1.3.6.7.4): these readings pass
+    assert rec.dof == 4
+    assert rec.chi2_limit == pytest.approx(9.488, abs=5e-4)
+    assert rec.passed
+
+
 def test_single_node_reconciliation_by_hand():
     # Hand calculation: one splitter F1 = F2 + F3, readings 100, 60, 35 with standard
     # deviations 2, 1, 1.  Imbalance r = 100 - 60 - 35 = 5, A S A^T = 4 + 1 + 1 = 6.
@@ -334,6 +359,9 @@ def test_commands_reconcile_fit_and_trend(tmp_path, capsys):
     assert "cost at design throttle flow" in out and "PT-401 at P2" in out
     assert main(["check", str(tmp_path / "tested.toml")]) == 0
     assert "(as tested)" in capsys.readouterr().out
+    # an existing fitted model is not replaced without --force (exit 3, README table)
+    assert main(["fit", str(path), "-o", str(tmp_path / "tested.toml")]) == 3
+    assert "--force" in capsys.readouterr().err
     # a trend of two periods of two points each into HDF5, with its chart
     path.write_text(path.read_text() + "\n[trend]\npoints_per_period = 2\n")
     h5 = tmp_path / "trend.h5"

@@ -53,7 +53,8 @@ def _cmd_fit(args) -> int:
     if output is None:
         output = Path("results") / f"{Path(meas.file).stem}_as_tested.toml"
     out = fit_measurements(meas, None if args.no_model else output,
-                           tunables=_tunables(args.tunables), backend=args.backend)
+                           tunables=_tunables(args.tunables), backend=args.backend,
+                           force=args.force)
     if args.json:
         data = fit_to_dict(out.fit, out.deviations, out.totals)
         data["fitted_model_file"] = str(out.path) if out.path else None
@@ -82,7 +83,7 @@ def _cmd_trend(args) -> int:
             print(f"\rperiod {i} of {n}", end="", file=sys.stderr, flush=True)
 
     trend = trend_measurements(meas, output, chart=chart, backend=args.backend,
-                               progress=progress)
+                               progress=progress, force=args.force)
     if not args.quiet:
         print(file=sys.stderr)
     print(trend_summary(trend))
@@ -116,6 +117,7 @@ def add_commands(sub) -> None:
     c.add_argument("--output", "-o", default=None, metavar="PATH",
                    help="fitted model file (default results/<map>_as_tested.toml)")
     c.add_argument("--no-model", action="store_true", help="do not write the fitted model")
+    c.add_argument("--force", action="store_true", help="replace an existing fitted model file")
     c.add_argument("--tunables", default=None, metavar="KEY,...",
                    help="constants to fit (default: the map's [fit] tunables)")
     c.add_argument("--readings", action="store_true",
@@ -133,6 +135,7 @@ def add_commands(sub) -> None:
     c.add_argument("--output", "-o", default=None, metavar="PATH",
                    help="HDF5 file (default results/<map>_trend.h5); the chart is beside it")
     c.add_argument("--no-chart", action="store_true", help="do not draw the chart")
+    c.add_argument("--force", action="store_true", help="replace an existing trend file")
     c.add_argument("--backend", default="seuif97", help="steam property backend")
     c.add_argument("--quiet", "-q", action="store_true", help="no progress display")
     c.set_defaults(func=_cmd_trend)
