@@ -104,6 +104,35 @@ class FitResult:
             (self.meas.labels[self.rows[i][0]], self.meas.tags[self.rows[i][1]].name,
              float(self.rec.z[i])) for i in self.rec.suspect]
 
+    def offsets(self) -> list[tuple[str, float, int]]:
+        """``(tag, Z, readings)`` of the tags whose readings over several points
+        deviate together (a meter with an offset or a drift, each reading too small
+        to be suspect alone), worst first.
+
+        ``Z = sum(z_i) / sqrt(k)`` over the tag's ``k`` tested readings is about
+        standard normal when the readings are right (approximate: the shared
+        tunables correlate the ``z_i`` a little); a tag is named beyond the
+        two-sided 95 % limit corrected for the number of tags tested (Sidak), as
+        for single readings.  Asked only when the quality criterion fails (the
+        global test first, then the search for its cause): the approximation is
+        not strong enough to overrule a passing criterion."""
+        from scipy.stats import norm
+
+        if self.rec.passed:
+            return []
+
+        by_tag: dict[int, list[float]] = {}
+        for i, (_, j) in enumerate(self.rows):
+            if math.isfinite(self.rec.z[i]):
+                by_tag.setdefault(j, []).append(float(self.rec.z[i]))
+        tested = {j: z for j, z in by_tag.items() if len(z) >= 2}
+        if not tested:
+            return []
+        limit = norm.ppf(1.0 - (1.0 - 0.95 ** (1.0 / len(tested))) / 2.0)
+        out = [(self.meas.tags[j].name, sum(z) / math.sqrt(len(z)), len(z))
+               for j, z in tested.items()]
+        return sorted([o for o in out if abs(o[1]) > limit], key=lambda o: -abs(o[1]))
+
 
 def _condition_scale(meas: Measurements, sets: str, reading: float) -> float:
     m = meas.model
@@ -283,15 +312,25 @@ class ModelProblem:
                          f"singular); add a reading that depends on it or fit fewer "
                          f"tunables", file=self.meas.file, table="fit", key="tunables")
 
-    def solve(self) -> FitResult:
+    def solve(self, start: FitResult | None = None) -> FitResult:
         """Least squares (:func:`scipy.optimize.least_squares`, trust region
-        reflective, bounds from the tunables' declarations) and the statistics."""
+        reflective, bounds from the tunables' declarations) and the statistics.
+
+        ``start``: a solution of the same parameters (the same problem with a
+        reading fewer) to start from, with its solved points as the solver's
+        starting guesses."""
         from scipy.optimize import least_squares
 
         lo = np.array([(p.lo - p.start) / p.scale for p in self.params])
         hi = np.array([(p.hi - p.start) / p.scale for p in self.params])
-        theta0 = np.clip(np.zeros(len(self.params)), lo + 1e-9, hi - 1e-9)
-        self._check_determined(self.jacobian(theta0))
+        theta0 = np.zeros(len(self.params))
+        if start is not None:
+            theta0 = np.array([(v - p.start) / p.scale
+                               for v, p in zip(start.values, self.params)])
+            self.warm = list(start.results)
+        theta0 = np.clip(theta0, lo + 1e-9, hi - 1e-9)
+        if start is None:
+            self._check_determined(self.jacobian(theta0))
         sol = least_squares(self.residuals, theta0, jac=self.jacobian, bounds=(lo, hi),
                             method="trf", x_scale=1.0, xtol=1e-10, ftol=1e-12, gtol=1e-10,
                             max_nfev=60)
@@ -329,26 +368,36 @@ def _solve_setting_aside(meas: Measurements, keys: list[str], backend: str,
     and solve again (serial elimination, Narasimhan and Jordache, "Data
     Reconciliation and Gross Error Detection", Gulf, 2000, ch. 8, from memory;
     VDI 2048 Part 1, 2000, likewise repeats the reconciliation without a reading
-    found faulty).  A reading that sets an input is never set aside."""
+    found faulty).  When no single reading is suspect but one tag's readings
+    deviate together (:meth:`FitResult.offsets`), all of that tag's readings are
+    set aside.  A reading that sets an input is never set aside."""
     meas = meas.subset(range(len(meas.values)))  # a copy of the readings
     removed = []
     result = ModelProblem(meas, keys, backend).solve()
     while set_aside and not result.rec.passed:
         worst = next((i for i in result.rec.suspect
                       if not meas.tags[result.rows[i][1]].sets), None)
-        if worst is None:
-            break
-        k, j = result.rows[worst]
-        tag = meas.tags[j]
-        reading = float(meas.values[k, j])
+        if worst is not None:
+            entries = [worst]
+        else:
+            tag = next((t for t, _, _ in result.offsets() if not meas.tag(t).sets), None)
+            if tag is None:
+                break
+            j = next(j for j, t in enumerate(meas.tags) if t.name == tag)
+            entries = [i for i, (_, jj) in enumerate(result.rows) if jj == j]
         trial = meas.subset(range(len(meas.values)))
-        trial.values[k, j] = math.nan
+        for i in entries:
+            k, j = result.rows[i]
+            trial.values[k, j] = math.nan
         try:
-            again = ModelProblem(trial, keys, backend).solve()
-        except InputError:  # no redundancy left without it
+            again = ModelProblem(trial, keys, backend).solve(start=result)
+        except InputError:  # no redundancy left without them
             break
-        removed.append((meas.labels[k], tag.name, float(result.rec.z[worst]), reading,
-                        model_value(again.results[k], tag)))
+        for i in entries:
+            k, j = result.rows[i]
+            removed.append((meas.labels[k], meas.tags[j].name, float(result.rec.z[i]),
+                            float(meas.values[k, j]),
+                            model_value(again.results[k], meas.tags[j])))
         meas, result = trial, again
     result.removed = removed
     return result

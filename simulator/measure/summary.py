@@ -67,6 +67,7 @@ def fit_to_dict(result: FitResult, deviations=None, totals=None) -> dict:
                     "chi2_limit_95": _num(rec.chi2_limit), "passed": rec.passed,
                     "suspect_limit": rec.family_limit},
         "suspects": [{"point": p, "tag": t, "z": z} for p, t, z in result.suspects()],
+        "offsets": [{"tag": t, "Z": z, "readings": k} for t, z, k in result.offsets()],
         "set_aside": [{"point": p, "tag": t, "z": z, "reading": r, "model_value": m,
                        "unit": SI_UNIT[result.meas.tag(t).dimension]}
                       for p, t, z, r, m in result.removed],
@@ -140,6 +141,9 @@ def _suspects(result: FitResult) -> list[str]:
         r, m = show(reading), show(model)
         out.append(f"SET ASIDE as a gross error: {tag} at {label} (z = {z:+.2f}); it reads "
                    f"{r:.5g} {shown}, the other readings and the model say {m:.5g} {shown}")
+    for tag, z, k in result.offsets():
+        out.append(f"OFFSET: the {k} readings of {tag} deviate together (Z = {z:+.2f}): a "
+                   f"meter reading {'high' if z < 0 else 'low'} or drifting? check it")
     s = [(p, t, z) for p, t, z in result.suspects()[len(result.removed):]]
     if s:
         out.append(f"suspect readings (|z| > {result.rec.family_limit:.2f}, worst first): "
@@ -208,6 +212,13 @@ def trend_summary(trend) -> str:
         periods = sorted(set(where))
         lines.append(f"suspect {tag}: {len(where)} readings in {len(periods)} periods (first "
                      f"{trend.labels[periods[0]]}, last {trend.labels[periods[-1]]})")
+    offset: dict[str, list[int]] = {}
+    for i, text in enumerate(trend.offsets):
+        for item in text.split():
+            offset.setdefault(item.split(":")[0], []).append(i)
+    for tag, periods in sorted(offset.items(), key=lambda kv: -len(kv[1])):
+        lines.append(f"offset {tag}: its readings deviate together in {len(periods)} periods "
+                     f"(first {trend.labels[periods[0]]}, last {trend.labels[periods[-1]]})")
     for i in np.flatnonzero(trend.status != 0):
         lines.append(f"period {trend.labels[i]} not fitted: {trend.messages[i]}")
     return "\n".join(lines)

@@ -436,5 +436,9 @@ def read_measurements(path: str | Path) -> Measurements:
     trend = data.get("trend", {})
     if not isinstance(trend, dict):
         raise Where(file, "trend").error("expected a table")
+    for k in trend:
+        if k != "points_per_period":
+            raise Where(file, "trend", k).error("unknown key; valid key: points_per_period"
+                                                + closest(k, ["points_per_period"]))
     return Measurements(file, str(csv_path), sha, str(data.get("description", "")), model,
                         cond, tags, values, labels, lines, list(tunables), trend)

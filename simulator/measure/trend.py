@@ -24,6 +24,8 @@ dataset                        shape        contents
 ``/quality/chi2``, ``dof``,    (n)          quality criterion of each period
 ``chi2_limit``, ``passed``
 ``/quality/suspects``          (n)          suspect readings (tag and z), text
+``/quality/offsets``            (n)          tags whose readings deviate together
+                                            (tag and Z), text
 =============================  ===========  ====================================
 """
 
@@ -66,6 +68,7 @@ class Trend:
     chi2_limit: np.ndarray
     passed: np.ndarray
     suspects: list[str]
+    offsets: list[str]
 
 
 def _period_size(meas: Measurements) -> int:
@@ -108,7 +111,7 @@ def fit_trend(meas: Measurements, backend: str = "seuif97", progress=None) -> Tr
                 [""] * n, list(meas.tunables), [r.tunable.unit for r in refs],
                 np.array([r.design for r in refs]), np.full((n, t), np.nan),
                 np.full((n, t), np.nan), np.full(n, np.nan), np.zeros(n, np.int64),
-                np.full(n, np.nan), np.zeros(n, np.uint8), [""] * n)
+                np.full(n, np.nan), np.zeros(n, np.uint8), [""] * n, [""] * n)
     for i, s in enumerate(starts):
         try:
             f = fit(meas.subset(range(s, min(s + size, n_rows))), backend=backend)
@@ -122,6 +125,7 @@ def fit_trend(meas: Measurements, backend: str = "seuif97", progress=None) -> Tr
             out.passed[i] = f.rec.passed
             out.suspects[i] = " ".join(f"{tag}@{label}:{z:+.2f}"
                                        for label, tag, z in f.suspects())
+            out.offsets[i] = " ".join(f"{tag}:{z:+.2f}" for tag, z, _ in f.offsets())
         if progress is not None:
             progress(i + 1, n)
     return out
@@ -173,6 +177,8 @@ def write_trend(trend: Trend, meas: Measurements, path: str | Path) -> Path:
             put("quality/chi2_limit", trend.chi2_limit, "-", "95 % chi-square quantile")
             put("quality/passed", trend.passed, "-", "1: quality criterion met at 95 %")
             put("quality/suspects", trend.suspects, "", "suspect readings: tag@label:z", text)
+            put("quality/offsets", trend.offsets, "",
+                "tags whose readings deviate together: tag:Z", text)
         os.replace(tmp, path)
     finally:
         if tmp.exists():
@@ -198,7 +204,8 @@ def read_trend(path: str | Path) -> Trend:
                      f["periods/status"][:], s("periods/message"), s("tunables/names"),
                      s("tunables/units"), f["tunables/design"][:], f["tunables/value"][:],
                      f["tunables/uncertainty"][:], f["quality/chi2"][:], f["quality/dof"][:],
-                     f["quality/chi2_limit"][:], f["quality/passed"][:], s("quality/suspects"))
+                     f["quality/chi2_limit"][:], f["quality/passed"][:], s("quality/suspects"),
+                     s("quality/offsets"))
 
 
 def _times(labels: list[str]):
