@@ -52,6 +52,7 @@ _LAZY = {
     "fit_measurements": ".api",
     "trend_measurements": ".api",
     "point_as_tested": ".api",
+    "band_as_tested": ".api",
     "Conditions": ".plant.case",
     "Case": ".plant.case",
     "Model": ".plant.model",
@@ -62,8 +63,8 @@ _LAZY = {
 __all__ = [
     "__version__", "load_model", "load_case", "point", "run_study", "open_result",
     "StudyOutcome", "read_measurements", "reconcile_measurements", "fit_measurements",
-    "trend_measurements", "point_as_tested", "Conditions", "Case", "Model", "PointResult",
-    "solve_point",
+    "trend_measurements", "point_as_tested", "band_as_tested", "Conditions", "Case", "Model",
+    "PointResult", "solve_point",
     "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
     "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]

@@ -42,7 +42,7 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
            "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS",
            "read_measurements", "reconcile_measurements", "fit_measurements",
-           "trend_measurements", "FitOutcome", "point_as_tested"]
+           "trend_measurements", "FitOutcome", "point_as_tested", "band_as_tested"]
 
 
 
@@ -663,6 +663,39 @@ def point_as_tested(fit, conditions: Conditions | None = None, *, backend: str =
         _check_as_a_case_would(result.model, base, None, changes)
     cond = _with_changes(result.model, base, changes) if changes else base
     return predict(result, cond, backend)
+
+
+def band_as_tested(fit, throttle_flows, *, draws: int = 200, seed: int = 0,
+                   backend: str = "seuif97", **changes) -> dict:
+    """Output and heat rate of the fitted model over a load sweep with Monte Carlo
+    95 % bands from the fit's covariance.
+
+    Parameters
+    ----------
+    fit : a :class:`FitOutcome` or its ``fit`` [-]
+    throttle_flows : the throttle flows of the sweep [kg/s]
+    draws : Monte Carlo draws [-]
+    seed : seed of the draws [-]
+    backend : steam property backend [-]
+    **changes : other conditions, as in :func:`point` (``exhaust_pressure`` [Pa], ...) [-]
+
+    Returns
+    -------
+    dict
+        ``generator_output`` [W] and ``heat_rate`` [J/J]: (points, 3) arrays of the
+        fitted model's value and the 2.5 % and 97.5 % quantiles; ``draws`` [-].
+    """
+    from .measure.tested import monte_carlo_band
+    from .plant.case import design_conditions
+
+    result = fit.fit if isinstance(fit, FitOutcome) else fit
+    base = design_conditions(result.model)
+    if changes:
+        _check_as_a_case_would(result.model, base, None, changes)
+        base = _with_changes(result.model, base, changes)
+    conds = [_with_changes(result.model, base, {"throttle_flow": float(m)})
+             for m in throttle_flows]
+    return monte_carlo_band(result, conds, draws, seed, backend)
 
 
 def _measurements(path_or_measurements):

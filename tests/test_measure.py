@@ -441,3 +441,16 @@ def test_a_meter_offset_too_small_to_flag_one_reading_is_named_by_its_tag(tmp_pa
     assert sorted({t for _, t, _ in result.suspects()}) == ["FT-202"]
     assert len(result.removed) == 5
     assert result.rec.passed
+
+
+def test_monte_carlo_band_agrees_with_the_linearised_uncertainty(fitted):
+    # two methods, one answer: for uncertainties this small the model is near linear
+    # in the tunables, so the half-width of the 95 % Monte Carlo band (JCGM 101) and
+    # the linearised 95 % uncertainty (JCGM 100) agree; 400 draws estimate a 95 %
+    # quantile to about 10 % (a sampling estimate, no source), hence 25 % allowed
+    band = partload.band_as_tested(fitted, [196.0], draws=400, seed=1)
+    _, u = partload.point_as_tested(fitted, throttle_flow=196.0)
+    value, lo, hi = band["generator_output"][0]
+    assert lo < value < hi
+    assert (hi - lo) / 2 == pytest.approx(u["generator_output"], rel=0.25)
+    assert band["draws"][0] == 400

@@ -34,7 +34,7 @@ from .fit import FitResult
 from .tags import COVERAGE, resolve_tunable
 
 __all__ = ["Deviation", "deviation_report", "write_as_tested", "load_as_tested", "BASIS",
-           "predict"]
+           "predict", "monte_carlo_band"]
 
 #: the basis a fitted model file states
 BASIS = "as tested"
@@ -148,6 +148,67 @@ def predict(result: FitResult, cond=None, backend: str = "seuif97"):
     C = result.covariance[:n, :n]  # the tunables come first among the parameters
     u = {name: float(COVERAGE * np.sqrt(max(g @ C @ g, 0.0))) for name, g in grads.items()}
     return base, u
+
+
+def monte_carlo_band(result: FitResult, conditions: list, draws: int = 200, seed: int = 0,
+                     backend: str = "seuif97", names=("generator_output", "heat_rate")):
+    """Totals of the fitted model at several points with Monte Carlo bands: the
+    tunables drawn from the fit's normal distribution (mean and covariance; draws
+    outside the declared bounds are drawn again), each draw solving every point
+    (JCGM 101:2008, "Propagation of distributions using a Monte Carlo method").
+
+    Parameters
+    ----------
+    result : a fit [-]
+    conditions : the operating points (:class:`simulator.plant.case.Conditions`, SI) [-]
+    draws : number of draws [-]
+    seed : seed of the random generator (the same seed, the same band) [-]
+    backend : steam property backend [-]
+    names : the totals to band [-]
+
+    Returns
+    -------
+    dict
+        For each total name a (points, 3) array: the value of the fitted model and
+        the 2.5 % and 97.5 % quantiles over the draws [unit of the total].  Draws
+        that fail to solve are left out; ``"draws"`` holds how many were used at
+        each point [-].
+    """
+    from ..errors import SolveError
+
+    model = copy.deepcopy(result.model)
+    model.solver_cache.clear()
+    keys = [p for p in result.parameters if p.tag is None]
+    refs = [resolve_tunable(model, p.key, Where()) for p in keys]
+    n = len(keys)
+    mean = np.array([getattr(r.component, r.tunable.attribute) for r in refs])
+    C = result.covariance[:n, :n]
+    lo = np.array([r.tunable.lo for r in refs])
+    hi = np.array([r.tunable.hi for r in refs])
+    rng = np.random.default_rng(seed)
+    base = [solve_point(model, c, backend, check_limits=False) for c in conditions]
+    samples = {name: [[] for _ in conditions] for name in names}
+    for _ in range(draws):
+        x = rng.multivariate_normal(mean, C)
+        while np.any(x < lo) or np.any(x > hi):
+            x = rng.multivariate_normal(mean, C)
+        for r, v in zip(refs, x):
+            setattr(r.component, r.tunable.attribute, float(v))
+        for k, c in enumerate(conditions):
+            try:
+                p = solve_point(model, c, backend, guess=base[k].unknowns,
+                                jacobian=base[k].jacobian, check_limits=False)
+            except SolveError:
+                continue
+            for name in names:
+                samples[name][k].append(p.totals[name])
+    out = {}
+    for name in names:
+        out[name] = np.array([[b.totals[name], *np.percentile(s, [2.5, 97.5])]
+                              if s else [b.totals[name], np.nan, np.nan]
+                              for b, s in zip(base, samples[name])])
+    out["draws"] = np.array([len(s) for s in samples[names[0]]])
+    return out
 
 
 def _toml_string(text: str) -> str:
