@@ -75,10 +75,10 @@ def read_toml(map_file: str) -> dict:
 
 def read_tags(map_file: str):
     """The map's tags, read without its CSV file (which this script writes)."""
-    from partload.measure.tags import _read_tags
+    from partload.measure.tags import read_tags as read
 
     model = partload.load_model(HERE.parent / "models" / "demo_reheat_unit.toml")
-    return _read_tags(read_toml(map_file), model, map_file)
+    return read(read_toml(map_file), model, map_file)
 
 
 def noisy(tags, r, rng, bias: dict) -> list[float]:

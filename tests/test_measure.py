@@ -340,6 +340,20 @@ def test_map_mistakes_name_file_table_and_key(tmp_path):
         read_measurements(path)
     assert e.value.file == str(csv) and e.value.table == "line 2"
     assert e.value.key == "FT-220 [kg/s]"
+    # a reading that is not a number: file, line and tag
+    lines = csv.read_text().replace("FT-220 [kg/s]", "FT-202 [kg/s]").splitlines()
+    cells = lines[2].split(",")
+    cells[3] = "n/a"  # TT-301
+    csv.write_text("\n".join(lines[:2] + [",".join(cells)]) + "\n")
+    with pytest.raises(InputError) as e:
+        read_measurements(path)
+    assert (e.value.table, e.value.key) == ("line 3", "TT-301")
+    # a reading that sets an input cannot be empty
+    cells[3] = ""
+    csv.write_text("\n".join(lines[:2] + [",".join(cells)]) + "\n")
+    with pytest.raises(InputError, match="sets reheat_temperature") as e:
+        read_measurements(path)
+    assert (e.value.table, e.value.key) == ("line 3", "TT-301")
 
 
 def test_commands_reconcile_fit_and_trend(tmp_path, capsys):

@@ -49,7 +49,7 @@ from ..errors import InputError
 from ..inputs.reading import closest, load_toml
 from ..units import Where, linear_factors, parse
 
-__all__ = ["Tag", "TunableRef", "Measurements", "read_measurements", "COVERAGE",
+__all__ = ["Tag", "TunableRef", "Measurements", "read_measurements", "read_tags", "COVERAGE",
            "SETTABLE", "resolve_tunable"]
 
 #: coverage factor of a 95 % confidence interval of a normal distribution (VDI 2048
@@ -252,7 +252,9 @@ def _uncertainty(text, dim: str, w: Where) -> tuple[float | None, float | None]:
     return None, absolute
 
 
-def _read_tags(data: dict, model, file: str) -> list[Tag]:
+def read_tags(data: dict, model, file: str) -> list[Tag]:
+    """The ``[tags.NAME]`` tables of a map's TOML ``data`` against ``model``; errors
+    name ``file``, the tag's table and the key."""
     tables = data.get("tags")
     if not isinstance(tables, dict) or not tables:
         raise Where(file, "tags").error("expected tables [tags.NAME], one per measured tag")
@@ -416,7 +418,7 @@ def read_measurements(path: str | Path) -> Measurements:
     if not isinstance(data.get("data"), str):
         raise Where(file, None, "data").error("expected the CSV file of readings, relative to "
                                               "this file")
-    tags = _read_tags(data, model, file)
+    tags = read_tags(data, model, file)
     label_col = data.get("label_column")
     if label_col is not None and not isinstance(label_col, str):
         raise Where(file, None, "label_column").error("expected a column name")
