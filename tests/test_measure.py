@@ -468,3 +468,34 @@ def test_monte_carlo_band_agrees_with_the_linearised_uncertainty(fitted):
     assert lo < value < hi
     assert (hi - lo) / 2 == pytest.approx(u["generator_output"], rel=0.25)
     assert band["draws"][0] == 400
+
+
+def test_the_models_own_values_give_back_its_constants(tmp_path):
+    # identity: readings equal to the model's own values (no noise) are consistent,
+    # so the fit returns the design constants and a zero quality criterion; on the
+    # nozzle-governed demo unit, whose governing stage declares its own tunables
+    model_file = ROOT / "models" / "demo_reheat_nozzle_unit.toml"
+    r = partload.point(partload.load_model(model_file), throttle_flow=230.0)
+    tags = {"FT": ("sets", "throttle_flow", "1 %", r.totals["throttle_flow"], "kg/s"),
+            "PT1": ("quantity", "totals.throttle_pressure", "0.3 %",
+                    r.totals["throttle_pressure"], "Pa"),
+            "PT2": ("quantity", "nodes.first_stage.pressure", "0.3 %",
+                    r.node("first_stage")["p"], "Pa"),
+            "TT2": ("quantity", "nodes.first_stage.temperature", "1 K",
+                    r.node("first_stage")["T"], "K"),
+            "PT3": ("quantity", "nodes.hp_mid.pressure", "0.3 %", r.node("hp_mid")["p"], "Pa"),
+            "TT3": ("quantity", "nodes.hp_mid.temperature", "1 K", r.node("hp_mid")["T"], "K"),
+            "JT": ("quantity", "totals.generator_output", "0.3 %",
+                   r.totals["generator_output"], "W")}
+    text = f'model = "{model_file.as_posix()}"\ndata = "d.csv"\n'
+    for name, (how, what, u, _, _) in tags.items():
+        text += f'[tags.{name}]\n{how} = "{what}"\nuncertainty = "{u}"\n'
+    text += '[fit]\ntunables = ["governing_stage.efficiency", "stage_group.HP1.efficiency"]\n'
+    (tmp_path / "map.toml").write_text(text)
+    (tmp_path / "d.csv").write_text(
+        "point," + ",".join(f"{k} [{v[4]}]" for k, v in tags.items()) + "\nP1,"
+        + ",".join(repr(float(v[3])) for v in tags.values()) + "\n")
+    result = fit(read_measurements(tmp_path / "map.toml"))
+    for key in ("governing_stage.efficiency", "stage_group.HP1.efficiency"):
+        assert result.tunable(key)[0] == pytest.approx(result.design[key], abs=1e-7)
+    assert result.rec.chi2 < 1e-10
