@@ -218,8 +218,7 @@ def _write(folder: Path, seed: int, bias: dict | None = None, loads=LOADS) -> Pa
             x *= (bias or {}).get((k, name), 1.0)
             row.append(x)
         rows.append(row)
-    units = {"throttle_flow": "kg/s"}
-    header = ["point"] + [f"{n} [{_unit(tags[n], units)}]" for n in names]
+    header = ["point"] + [f"{n} [{_unit(tags[n])}]" for n in names]
     lines = ["# INVENTED readings for tests", ",".join(header)]
     lines += [",".join([f"P{k + 1}"] + [repr(float(x)) for x in row]) for k, row in
               enumerate(rows)]
@@ -229,7 +228,8 @@ def _write(folder: Path, seed: int, bias: dict | None = None, loads=LOADS) -> Pa
     return folder / "map.toml"
 
 
-def _unit(tag: dict, units: dict) -> str:
+def _unit(tag: dict) -> str:
+    """The SI unit the test CSV writes a tag's readings in."""
     q = tag.get("quantity", tag.get("sets", ""))
     if q.endswith("flow"):
         return "kg/s"
