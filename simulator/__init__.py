@@ -50,6 +50,12 @@ _LAZY = {
     "to_dataframe": ".api",
     "correction_curves": ".api",
     "StudyOutcome": ".api",
+    "read_measurements": ".api",
+    "reconcile_measurements": ".api",
+    "fit_measurements": ".api",
+    "trend_measurements": ".api",
+    "point_as_tested": ".api",
+    "band_as_tested": ".api",
     "Conditions": ".plant.case",
     "Case": ".plant.case",
     "Model": ".plant.model",
@@ -59,8 +65,10 @@ _LAZY = {
 
 __all__ = [
     "__version__", "load_model", "load_case", "point", "run_study", "open_result",
-    "open_dataset", "to_dataframe", "correction_curves", "StudyOutcome", "Conditions",
-    "Case", "Model", "PointResult", "solve_point",
+    "open_dataset", "to_dataframe", "correction_curves", "StudyOutcome",
+    "read_measurements", "reconcile_measurements", "fit_measurements",
+    "trend_measurements", "point_as_tested", "band_as_tested", "Conditions", "Case", "Model",
+    "PointResult", "solve_point",
     "PartloadError", "InputError", "TopologyError", "SolveError", "ConvergenceError",
     "InfeasibleError", "PropertyRangeError", "ResultFileError",
 ]

@@ -42,7 +42,9 @@ if TYPE_CHECKING:  # names for annotations only; imported lazily at run time
 
 __all__ = ["load_model", "load_case", "point", "run_study", "open_result", "StudyOutcome",
            "StudyRun", "run_study_file", "default_workers", "CONDITION_KEYS", "open_dataset",
-           "to_dataframe", "correction_curves"]
+           "to_dataframe", "correction_curves",
+           "read_measurements", "reconcile_measurements", "fit_measurements",
+           "trend_measurements", "FitOutcome", "point_as_tested", "band_as_tested"]
 
 
 
@@ -74,15 +76,22 @@ def load_model(path: str | Path) -> Model:
     Returns
     -------
     Model
-        Calibrated to the file's design heat balance (SI inside).
+        Calibrated to the file's design heat balance (SI inside); for a fitted
+        model file written by :func:`fit_measurements`, the design model with the
+        fitted constants, named "... (as tested)".
 
     Raises
     ------
     InputError
         A mistake in the file, naming file, table and key.
     """
+    from .inputs.reading import load_toml
+    from .measure.tested import is_as_tested, load_as_tested
     from .plant.model import load_model as _load_model
 
+    data, _ = load_toml(path)
+    if is_as_tested(data):  # a fitted model file ("as tested", partload fit)
+        return load_as_tested(path)
     return _load_model(path)
 
 
@@ -131,7 +140,7 @@ CONDITION_KEYS = {
 def _model_and_base(model_or_case) -> tuple[Model, Conditions, str]:
     """The model, the base conditions and the default backend of what was given."""
     from .plant.case import Case, design_conditions, load_case
-    from .plant.model import Model, load_model
+    from .plant.model import Model
 
     if isinstance(model_or_case, (str, Path)):
         from .inputs.reading import load_toml
@@ -604,3 +613,186 @@ def correction_curves(model_or_case, *, loads=(0.5, 0.7, 0.9), conditions=None,
     model, base, default_backend = _model_and_base(model_or_case)
     return _curves(model, base, case_name=case_name, loads=loads, conditions=conditions,
                    backend=backend or default_backend, check_limits=check_limits)
+# ------------------------------------------------------------------ measured data
+def read_measurements(path: str | Path):
+    """Read a measurement map (TOML) and its CSV readings (``partload.measure``).
+
+    Parameters
+    ----------
+    path : the map file [-]
+
+    Returns
+    -------
+    partload.measure.Measurements
+        Tags, readings in SI units, the calibrated model and the base conditions.
+    """
+    from .measure.tags import read_measurements as _read
+
+    return _read(path)
+
+
+def reconcile_measurements(path_or_measurements, *, tunables: list[str] | None = None,
+                           backend: str = "seuif97") -> list:
+    """Reconcile each measured point with the model (``partload reconcile``).
+
+    Parameters
+    ----------
+    path_or_measurements : a map file or :func:`read_measurements`' result [-]
+    tunables : constants free at each point (default: the map's ``[fit] tunables``) [-]
+    backend : steam property backend [-]
+
+    Returns
+    -------
+    list[partload.measure.FitResult]
+        One per point: ``rec`` (reconciled values, uncertainties, chi-square,
+        individual tests), ``suspects()``.
+    """
+    from .measure.fit import reconcile
+
+    return reconcile(_measurements(path_or_measurements), tunables, backend)
+
+
+class FitOutcome(NamedTuple):
+    """What :func:`fit_measurements` returns: the fit, the deviation report (one
+    :class:`partload.measure.tested.Deviation` per tunable), the totals at design
+    flow (design and as tested) and the fitted model file written (or ``None``)."""
+
+    fit: Any
+    deviations: list
+    totals: dict
+    path: Path | None
+
+
+def _free_target(path: str | Path | None, force: bool) -> None:
+    """Refuse to replace an existing file without ``force`` (exit 3 on the command
+    line), before any work is done."""
+    from .errors import ResultFileError
+
+    if path is not None and Path(path).exists() and not force:
+        raise ResultFileError(f"{path} exists; give force=True (--force) to replace it")
+
+
+def fit_measurements(path_or_measurements, output: str | Path | None = None, *,
+                     tunables: list[str] | None = None, backend: str = "seuif97",
+                     force: bool = False) -> FitOutcome:
+    """Fit the tunables to all measured points together (``partload fit``).
+
+    Parameters
+    ----------
+    path_or_measurements : a map file or :func:`read_measurements`' result [-]
+    output : write the fitted model file ("as tested") here; ``None``: do not write [-]
+    tunables : the constants to fit (default: the map's ``[fit] tunables``) [-]
+    backend : steam property backend [-]
+    force : replace an existing ``output`` [-]
+
+    Returns
+    -------
+    FitOutcome
+    """
+    from .measure.fit import fit
+    from .measure.tested import deviation_report, write_as_tested
+
+    _free_target(output, force)
+    result = fit(_measurements(path_or_measurements), tunables, backend)
+    deviations, totals = deviation_report(result, backend)
+    path = write_as_tested(result, output) if output is not None else None
+    return FitOutcome(result, deviations, totals, path)
+
+
+def trend_measurements(path_or_measurements, output: str | Path | None = None, *,
+                       chart: str | Path | None = None, backend: str = "seuif97",
+                       progress: Callable[[int, int], None] | None = None,
+                       force: bool = False):
+    """Fit the tunables period by period over online data (``partload trend``).
+
+    Parameters
+    ----------
+    path_or_measurements : a map file or :func:`read_measurements`' result [-]
+    output : the HDF5 file to write; ``None``: do not write [-]
+    chart : the PNG chart to draw; ``None``: no chart [-]
+    backend : steam property backend [-]
+    progress : called with ``(period, periods)`` after each period [-]
+    force : replace an existing ``output`` [-]
+
+    Returns
+    -------
+    partload.measure.trend.Trend
+    """
+    from .measure.trend import draw_trend, fit_trend, write_trend
+
+    _free_target(output, force)
+    meas = _measurements(path_or_measurements)
+    trend = fit_trend(meas, backend, progress)
+    if output is not None:
+        write_trend(trend, meas, output)
+    if chart is not None:
+        draw_trend(trend, chart)
+    return trend
+
+
+def point_as_tested(fit, conditions: Conditions | None = None, *, backend: str = "seuif97",
+                    **changes):
+    """One point of the fitted model with the 95 % uncertainty of every total, from
+    the fit's covariance (linearised).
+
+    Parameters
+    ----------
+    fit : a :class:`FitOutcome` or its ``fit`` [-]
+    conditions : operating conditions (SI); default: the design point [-]
+    backend : steam property backend [-]
+    **changes : conditions changed as in :func:`point` (``throttle_flow`` [kg/s],
+        ``output`` [W], ``exhaust_pressure`` [Pa], ...) [-]
+
+    Returns
+    -------
+    (PointResult, dict)
+        The point as tested, and each total's 95 % uncertainty [unit of the total].
+    """
+    from .measure.tested import predict
+    from .plant.case import design_conditions
+
+    result = fit.fit if isinstance(fit, FitOutcome) else fit
+    base = conditions if conditions is not None else design_conditions(result.model)
+    if changes:
+        _check_as_a_case_would(result.model, base, None, changes)
+    cond = _with_changes(result.model, base, changes) if changes else base
+    return predict(result, cond, backend)
+
+
+def band_as_tested(fit, throttle_flows, *, draws: int = 200, seed: int = 0,
+                   backend: str = "seuif97", **changes) -> dict:
+    """Output and heat rate of the fitted model over a load sweep with Monte Carlo
+    95 % bands from the fit's covariance.
+
+    Parameters
+    ----------
+    fit : a :class:`FitOutcome` or its ``fit`` [-]
+    throttle_flows : the throttle flows of the sweep [kg/s]
+    draws : Monte Carlo draws [-]
+    seed : seed of the draws [-]
+    backend : steam property backend [-]
+    **changes : other conditions, as in :func:`point` (``exhaust_pressure`` [Pa], ...) [-]
+
+    Returns
+    -------
+    dict
+        ``generator_output`` [W] and ``heat_rate`` [J/J]: (points, 3) arrays of the
+        fitted model's value and the 2.5 % and 97.5 % quantiles; ``draws`` [-].
+    """
+    from .measure.tested import monte_carlo_band
+    from .plant.case import design_conditions
+
+    result = fit.fit if isinstance(fit, FitOutcome) else fit
+    base = design_conditions(result.model)
+    if changes:
+        _check_as_a_case_would(result.model, base, None, changes)
+        base = _with_changes(result.model, base, changes)
+    conds = [_with_changes(result.model, base, {"throttle_flow": float(m)})
+             for m in throttle_flows]
+    return monte_carlo_band(result, conds, draws, seed, backend)
+
+
+def _measurements(path_or_measurements):
+    if isinstance(path_or_measurements, (str, Path)):
+        return read_measurements(path_or_measurements)
+    return path_or_measurements

@@ -25,6 +25,7 @@ LAYERS = [
     ("plant",),
     ("solve",),
     ("cautions",),
+    ("measure",),
     ("store",),
     ("study",),
     ("present",),

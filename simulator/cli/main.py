@@ -24,9 +24,9 @@ __all__ = ["main"]
 
 
 def _cmd_check(args) -> int:
+    from ..api import load_model  # a design model file, or a fitted one ("as tested")
     from ..plant.calibrate import closure_report
     from ..plant.case import design_conditions
-    from ..plant.model import load_model
     from ..present.tables import format_model, format_point, point_to_dict
     from ..solve.point import solve_point
     from ..steam.if97 import get_backend
@@ -312,6 +312,9 @@ def build_parser() -> argparse.ArgumentParser:
     from .report_command import add_command as add_report
 
     add_report(sub)
+    from . import measure_commands as measure_cli
+
+    measure_cli.add_commands(sub)
     return p
 
 
