@@ -7,6 +7,7 @@ from .base import Column, Component, ReadContext, Setting, SteamPathComponent, T
 from .condenser import Condenser, CondenserState
 from .control_valve import ControlValve
 from .extraction import EXTRACTION_CONTROLS, Extraction
+from .feed_pump_turbine import FeedPumpTurbine
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import HEATER_TYPES, TTD_METHODS, Heater
@@ -22,7 +23,7 @@ __all__ = [
     "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable",
     "KINDS", "register", "unregister", "kind_of_results",
     "Auxiliaries", "Boiler", "HEATING_VALUES", "Condenser", "CondenserState",
-    "ControlValve", "Extraction", "EXTRACTION_CONTROLS",
+    "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "FeedPumpTurbine",
     "Generator", "GoverningStage", "Heater", "HEATER_TYPES",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

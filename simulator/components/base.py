@@ -257,6 +257,11 @@ class SteamPathComponent(Component):
     expands: ClassVar[bool] = False  # expands the steam through blading (needs a falling
     # pressure at every answer)
     admits: ClassVar[bool] = False  # leaves the throttle node and governs the admission
+    drives_generator: ClassVar[bool] = True  # its power turns the generator (not a pump)
+    # its flow is an unknown of the point (a feed-pump turbine: the flow its pump's power
+    # needs); it reads it as march.component_flow[name] and gives residual(power,
+    # pump power) after the water side
+    flow_unknown: ClassVar[bool] = False
     # the key of the model file naming this component's inlet / outlet node
     inlet_key: ClassVar[str] = "from"
     outlet_key: ClassVar[str] = "to"

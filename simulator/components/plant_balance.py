@@ -54,7 +54,8 @@ class Auxiliaries(Component):
     )
     columns: ClassVar[tuple[Column, ...]] = (
         Column("pump_drive_power", "W", "electrical input of the feedwater train's pumps "
-               "(their shaft power over the drive efficiency)", label="pumps"),
+               "driven by motors (their shaft power over the drive efficiency)",
+               label="pumps"),
         Column("other_power", "W", "the other auxiliary load", label="other"),
         Column("net_output", "W", "generator output less all auxiliary power",
                label="net output"),
@@ -85,7 +86,8 @@ class Auxiliaries(Component):
         """``(pumps, other, net output, net cycle heat rate)`` [W, W, W, J/J] from a
         point's ``totals`` with the fixed load ``fixed`` [W]."""
         gross = totals["generator_output"]
-        pumps = totals.get("pump_power", 0.0) / self.pump_drive_efficiency
+        pumps = ((totals.get("pump_power", 0.0) - totals.get("turbine_driven_pump_power", 0.0))
+                 / self.pump_drive_efficiency)
         other = fixed + self.load_fraction * gross
         heat = totals.get("heat_added", math.nan)
         return pumps, other, gross - pumps - other, heat / (gross - pumps)

@@ -11,6 +11,7 @@ from .base import Component
 from .condenser import Condenser
 from .control_valve import ControlValve
 from .extraction import Extraction
+from .feed_pump_turbine import FeedPumpTurbine
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import Heater
@@ -26,7 +27,7 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
     for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
-                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler)
+                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler, FeedPumpTurbine)
 }
 
 

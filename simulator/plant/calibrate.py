@@ -20,7 +20,7 @@ import numpy as np
 
 from ..errors import InputError, PartloadError
 from ..physics.heater import design_ua
-from .water_side import design_feedwater_states, design_heat_rejected
+from .water_side import design_feedwater_states, design_heat_rejected, design_water_summary
 
 __all__ = ["calibrate", "calibrate_heaters", "check_design_annulus", "march_design",
            "closing_flows", "closure_report", "rewrite_design_flows"]
@@ -47,8 +47,25 @@ def calibrate(model, steam) -> None:
             raise InputError(f"the design feedwater heat balance cannot be evaluated: {exc}",
                              file=model.file, table="feedwater") from None
     check_design_annulus(model, steam)
+    calibrate_drives(model, steam)
     calibrate_condensers(model, steam)
 
+
+def calibrate_drives(model, steam) -> None:
+    """Fix each turbine that drives a pump (a feed-pump turbine) from its pump's
+    power in the design heat balance."""
+    drives = [c for c in model.steam_path if c.flow_unknown]
+    if not drives:
+        return
+    summary = design_water_summary(model, steam)
+    for c in drives:
+        if summary is None or c.pump not in summary["pump_powers"]:
+            raise InputError(f"pump {c.pump!r} is not in the feedwater train",
+                             file=model.file, table=c.where, key="pump")
+        h = model.design_enthalpy
+        h_out = c.calibrate(c.design_flow, model.design_pressure[c.inlet], h[c.inlet],
+                            model.design_pressure[c.outlet], steam, model)
+        c.calibrate_drive(summary["pump_powers"][c.pump], h[c.inlet], h_out, model.file)
 
 def _first_guess(model, e) -> float:
     """A starting bleed [kg/s] for a closing extraction: 3 % of throttle flow."""

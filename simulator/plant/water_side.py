@@ -32,7 +32,7 @@ from ..physics.heater import (
 from ..steam.constants import P_CRIT
 
 __all__ = ["FeedwaterMarch", "HeaterState", "design_feedwater_states", "heat_rejected",
-           "design_heat_rejected"]
+           "design_heat_rejected", "design_water_summary"]
 
 
 @dataclass
@@ -154,6 +154,7 @@ class FeedwaterMarch:
         summary : dict with ``h_feedwater`` [J/kg], ``p_feedwater`` [Pa],
             ``m_condensate``, ``drains_to_condenser`` [kg/s],
             ``h_drains_to_condenser``, ``h_condensate`` [J/kg], ``pump_power`` [W]
+            (``pump_powers``: each pump's by name)
             and, when ``detail``, ``T_feedwater`` [K] and ``heaters``: dict of
             :class:`HeaterState` in water order.
         """
@@ -195,6 +196,7 @@ class FeedwaterMarch:
         p_win = [0.0] * n  # water pressure entering each heater [Pa]
         bypass = {}
         pump_power = 0.0
+        pump_powers = {}
         for s, (kind, obj, k, name) in enumerate(steps):
             mw = through[s]
             if kind == 0:
@@ -210,6 +212,7 @@ class FeedwaterMarch:
                     v_w = steam.v_ph(p_w, h_w)
                 dh = obj.enthalpy_rise(v_w, p_w, p_out)
                 pump_power += mw * dh
+                pump_powers[name] = mw * dh
                 h_w += dh
                 p_w = p_out
                 T_w = None
@@ -273,6 +276,7 @@ class FeedwaterMarch:
                                       if m_dc else 0.0),
             "h_condensate": h_c,
             "pump_power": pump_power,
+            "pump_powers": pump_powers,
         }
         if detail:
             summary["T_feedwater"] = steam.T_ph(p_w, h_w)
@@ -400,6 +404,18 @@ def heat_rejected(node: int, exhaust: list[int], M, h, p, steam, summary,
                                summary["m_condensate"], summary["h_condensate"])
 
 
+def design_water_summary(model, steam) -> dict | None:
+    """The water side's summary (:meth:`FeedwaterMarch.evaluate`) at the design heat
+    balance, after the heaters are calibrated; ``None`` without a feedwater train."""
+    if model.feedwater is None or not model.heaters:
+        return None
+    march = FeedwaterMarch(model)
+    bleed = [model.extractions[model.heaters[k].extraction].design_flow for k in march.active]
+    p = [model.design_pressure[n] for n in model.order]
+    h = [model.design_enthalpy[n] for n in model.order]
+    return march.evaluate(steam, p, h, bleed, model.throttle.flow, model.throttle.pressure)[1]
+
+
 def design_heat_rejected(model, steam) -> dict[str, float]:
     """Heat [W] rejected at each exhaust node in the design heat balance (after the
     heaters are calibrated), by :func:`heat_rejected`."""
@@ -410,14 +426,8 @@ def design_heat_rejected(model, steam) -> dict[str, float]:
         M[idx[c.outlet]] += model.design_group_flow[c.name]
     p = [model.design_pressure[n] for n in names]
     h = [model.design_enthalpy[n] for n in names]
-    summary = fw_node = None
-    if model.feedwater is not None and model.heaters:
-        march = FeedwaterMarch(model)
-        bleed = [model.extractions[model.heaters[k].extraction].design_flow
-                 for k in march.active]
-        _, summary = march.evaluate(steam, p, h, bleed, model.throttle.flow,
-                                    model.throttle.pressure)
-        fw_node = idx[model.feedwater.condenser]
+    summary = design_water_summary(model, steam)
+    fw_node = idx[model.feedwater.condenser] if summary is not None else None
     exhaust = [idx[n] for n in model.exhaust_nodes]
     return {names[e]: heat_rejected(e, exhaust, M, h, p, steam, summary, fw_node)
             for e in exhaust}

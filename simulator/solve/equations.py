@@ -125,9 +125,17 @@ class PointEquations:
         # unknown layout
         self.n_p = len(self.free)
         self.n_h = len(self.active_heaters)
+        # steam-path kinds whose flow is an unknown (feed-pump turbines), after the bleeds
+        self.flow_comps = [c for c in model.steam_path if c.flow_unknown]
+        self.n_c = len(self.flow_comps)
+        if self.flow_comps and self.fw is None:
+            raise SolveError(f"{self.flow_comps[0].title} {self.flow_comps[0].name!r} drives a "
+                             f"pump of the feedwater train, and the model has none")
+        self.drive_steps = any(not c.drives_generator for c in model.steam_path)
+        self.component_flow: dict[str, float] = {}
         self.demand = cond.output is not None and mode == "point"
         self.flow_unknown = self.demand or mode == "wide_open"
-        self.n = self.n_p + self.n_h + (1 if self.flow_unknown else 0)
+        self.n = self.n_p + self.n_h + self.n_c + (1 if self.flow_unknown else 0)
         # residual rows: free nodes (and the source when flow is the unknown at a held
         # throttle pressure in wide-open mode), heaters, demand
         self.row_of = [-1] * N
@@ -139,7 +147,7 @@ class PointEquations:
             self.row_of[self.src] = len(rows)
             rows.append(self.src)
         self.node_rows = rows
-        self.n_res = len(rows) + self.n_h + (1 if self.demand else 0)
+        self.n_res = len(rows) + self.n_h + self.n_c + (1 if self.demand else 0)
         self.residual_names = []
         law_at = {i: c for c, i in self.at_nodes if i in self.freed}
         for i in rows:
@@ -147,10 +155,13 @@ class PointEquations:
                     f"{law_at[i].title} law at" if i in law_at else "mass balance at")
             self.residual_names.append(f"{kind} node {names[i]!r}")
         self.residual_names += [f"energy balance of heater {h!r}" for h in self.active_heaters]
+        self.residual_names += [f"power balance of {c.title} {c.name!r}"
+                                for c in self.flow_comps]
         if self.demand:
             self.residual_names.append("generator output demand")
         self.unknown_names = ([f"ln p({names[i]})" for i in self.free]
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
+                              + [f"flow({c.name})/m_design" for c in self.flow_comps]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
         # the first node of the march each unknown touches: a node's pressure is read
         # by the components leaving it and by those entering it (evaluated at their
@@ -164,6 +175,7 @@ class PointEquations:
         for k in range(self.n_h):
             self.first_node.append(min((i for _n, i, kind, v in self.bleeds
                                         if kind == 2 and v == k), default=0))
+        self.first_node += [idx[c.inlet] for c in self.flow_comps]
         if self.flow_unknown:
             self.first_node.append(0)
         self.structured = True  # False: every column marches the whole graph
@@ -228,6 +240,8 @@ class PointEquations:
         for k, h in enumerate(self.active_heaters):
             e = m.extractions[m.heaters[h].extraction]
             x[self.n_p + k] = e.design_flow / self.m_design * r
+        for q, c in enumerate(self.flow_comps):
+            x[self.n_p + self.n_h + q] = c.design_flow / self.m_design * r
         if self.flow_unknown:
             x[-1] = r
         if self.throttle_fixed and self.mode == "point":
@@ -249,7 +263,7 @@ class PointEquations:
                 p = math.exp(x[k])
                 x[k] = math.log(math.sqrt(max(p_ex * p_ex + (p * p - p_ex * p_ex) * f * f,
                                               (0.5 * p * f) ** 2)))
-            x[self.n_p:self.n_p + self.n_h] *= f
+            x[self.n_p:self.n_p + self.n_h + self.n_c] *= f
             if self.flow_unknown:
                 x[-1] *= f
         if self.throttle_fixed and self.mode == "point":
@@ -343,6 +357,9 @@ class PointEquations:
                 heater_bleed[v] = b
             bleed_flow.append(b)
             bleed_node[i] += b
+        nc = self.n_p + self.n_h
+        for q, c in enumerate(self.flow_comps):
+            self.component_flow[c.name] = xs[nc + q] * md
         src = self.src
         start = self._resume
         snaps = self._snaps  # a base point of a Jacobian: keep states to resume from
@@ -395,6 +412,12 @@ class PointEquations:
                 E[j] += m * h_out
             if row_of[i] >= 0 and not passes_net[i]:
                 F[row_of[i]] = (net - out_flow) / md
+        drive = 0.0
+        if self.drive_steps:  # power that turns pumps, not the generator
+            for s in steps:
+                if not s[0].drives_generator:
+                    drive += s[5]
+            shaft -= drive
         P_gen = self.model.generator.output(shaft)
         k = len(self.node_rows)
         summary = None
@@ -402,6 +425,11 @@ class PointEquations:
             res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src])
             F[k:k + self.n_h] = res
             k += self.n_h
+            if self.n_c:
+                for c in self.flow_comps:
+                    power = sum(s[5] for s in steps if s[0] is c)
+                    F[k] = c.residual(power, summary["pump_powers"][c.pump])
+                    k += 1
         if self.freed:
             records = self.node_states(p, h, M, summary)
             for c, i in self.at_nodes:

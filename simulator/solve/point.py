@@ -322,7 +322,7 @@ def _plausible_start(eq: PointEquations, x: np.ndarray) -> bool:
         for c, j in outs:
             if p[j] > p[i] or (c.sets_flow and p[j] == p[i]):
                 return False
-    if np.any(x[eq.n_p:eq.n_p + eq.n_h] < 0.0):
+    if np.any(x[eq.n_p:eq.n_p + eq.n_h + eq.n_c] < 0.0):
         return False
     return not (eq.flow_unknown and x[-1] <= 0.0)
 
@@ -617,7 +617,14 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
     # equal to heat_rate for a unit without process steam
     totals["heat_rate_power"] = perf.heat_rate(
         perf.heat_chargeable_to_power(boiler, totals["process_steam_energy"]), P_gen)
+    # turbines that drive pumps: their work leaves the steam but turns no generator
+    drives = [c for c in model.steam_path if not c.drives_generator]
+    drive = sum(st["steps"][c.name][5] for c in drives)
+    if drives:
+        totals["pump_drive_turbine_power"] = drive
+        totals["turbine_driven_pump_power"] = sum(
+            fw["pump_powers"].get(getattr(c, "pump", ""), 0.0) for c in drives)
     totals["energy_imbalance"] = perf.energy_imbalance(
-        boiler, fw["pump_power"], st["shaft"], totals["condenser_duty"], heater_loss,
+        boiler, fw["pump_power"], st["shaft"] + drive, totals["condenser_duty"], heater_loss,
         totals["process_steam_energy"])
     return totals

@@ -52,7 +52,11 @@ TOTALS = (
     Column("final_feedwater_temperature", "K", "final feedwater temperature"),
     Column("heat_added", "W", "heat added in the boiler and reheater"),
     Column("heat_rate", "J/J", "heat added over generator output (J/J; x 3600 = kJ/kWh)"),
-    Column("pump_power", "W", "power of all pumps"),
+    Column("pump_power", "W", "shaft power of all pumps of the feedwater train"),
+    Column("pump_drive_turbine_power", "W", "power of the turbines that drive pumps "
+           "(feed-pump turbines; only with one)"),
+    Column("turbine_driven_pump_power", "W", "shaft power of the pumps driven by those "
+           "turbines (not charged as auxiliary power)"),
     Column("makeup_flow", "kg/s", "makeup water flow"),
     Column("condenser_duty", "W", "heat rejected in the condenser"),
     Column("heater_heat_loss", "W", "heat lost by the heaters"),
