@@ -72,3 +72,19 @@ def test_inputs_checked():
     data["feed_pump_turbine"][0]["design_flow"] = "20 kg/s"
     with pytest.raises(InputError, match="design_flow"):
         build_model(data, text=text, file="bad")
+
+
+def test_leakoffs(model):
+    # the design heat balance's leakages at design (identity with the calibration)
+    r = _point(model, 1.0)
+    assert r.table("leakoffs")["HP balance piston"]["flow"] == pytest.approx(2.5, rel=1e-10)
+    assert r.table("leakoffs")["IP inlet gland"]["flow"] == pytest.approx(1.2, rel=1e-10)
+    # common practice: a labyrinth passes a flow nearly in proportion to its upstream
+    # pressure when the pressure ratio across it stays (Martin's relation)
+    part = _point(model, 0.6)
+    for name, node in (("HP balance piston", "hp_inlet"), ("IP inlet gland", "hot_reheat")):
+        ratio_m = part.table("leakoffs")[name]["flow"] / r.table("leakoffs")[name]["flow"]
+        ratio_p = part.node(node)["p"] / r.node(node)["p"]
+        assert ratio_m == pytest.approx(ratio_p, rel=0.05)
+    # the cycle still balances with them (first law)
+    assert abs(part.totals["energy_imbalance"]) < 1e-8 * part.totals["heat_added"]

@@ -11,6 +11,7 @@ from .feed_pump_turbine import FeedPumpTurbine
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import HEATER_TYPES, TTD_METHODS, Heater
+from .leakoff import Leakoff
 from .pipe import Pipe
 from .plant_balance import HEATING_VALUES, Auxiliaries, Boiler
 from .pump import Pump
@@ -23,7 +24,7 @@ __all__ = [
     "Column", "Component", "ReadContext", "Setting", "SteamPathComponent", "Tunable",
     "KINDS", "register", "unregister", "kind_of_results",
     "Auxiliaries", "Boiler", "HEATING_VALUES", "Condenser", "CondenserState",
-    "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "FeedPumpTurbine",
+    "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "FeedPumpTurbine", "Leakoff",
     "Generator", "GoverningStage", "Heater", "HEATER_TYPES",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

@@ -15,6 +15,7 @@ from .feed_pump_turbine import FeedPumpTurbine
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import Heater
+from .leakoff import Leakoff
 from .pipe import Pipe
 from .plant_balance import Auxiliaries, Boiler
 from .pump import Pump
@@ -27,7 +28,8 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
     for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
-                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler, FeedPumpTurbine)
+                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler, FeedPumpTurbine,
+                Leakoff)
 }
 
 
