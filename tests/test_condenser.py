@@ -206,3 +206,18 @@ def test_two_shells_in_series_beat_one(ntu_total):
     second = condensing_temperature(T_in + rise / 2, rise / 2, ntu_total / 2)
     mean = 0.5 * (saturation_pressure(first) + saturation_pressure(second))
     assert mean < one
+
+
+def test_one_shell_pressure_given():
+    # multi-pressure condensers: a case may give one shell's pressure; the other shell
+    # still follows its law (the shells in series of the test model above)
+    m = _two_shells()
+    free = solve_point(m, Conditions(throttle_flow=0.9 * m.throttle.flow))
+    cond = read_conditions({"operation": {"throttle_flow_fraction": 0.9},
+                            "condensers": {"HP shell": {"pressure": "9.5 kPa"}}}, m)
+    r = solve_point(m, cond)
+    assert r.node("condenser_b")["p"] == pytest.approx(9.5e3, rel=1e-12)
+    # the given, higher pressure implies a fouled shell; the other stays on its law
+    assert r.table("condensers")["HP shell"]["cleanliness"] < 0.85
+    assert r.table("condensers")["LP shell"]["cleanliness"] == pytest.approx(0.85, rel=1e-7)
+    assert r.node("condenser")["p"] != pytest.approx(free.node("condenser")["p"], rel=1e-6)

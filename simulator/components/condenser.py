@@ -94,6 +94,8 @@ class Condenser(Component):
         Setting("cleanliness", "fraction", "cleanliness factor", lo=0.05, hi=1.2),
         Setting("wet_bulb_temperature", "temperature", "wet-bulb temperature of the air "
                 "entering the cooling tower (a condenser fed by one)", lo=243.15, hi=323.15),
+        Setting("pressure", "pressure", "the condenser's pressure, given (its law then "
+                "gives the effective cleanliness instead)", lo=611.0, hi=1e5),
     )
     columns: ClassVar[tuple[Column, ...]] = (
         Column("pressure", "Pa", "condenser (exhaust) pressure"),

@@ -76,8 +76,9 @@ class PointEquations:
         # kinds at a node that set its pressure by their own law (condensers), in model
         # order; their nodes are unknowns unless the case gives the exhaust pressure
         self.at_nodes = [(c, idx[c.node]) for c in model.components if c.frees_node]
-        self.freed = ([i for _c, i in self.at_nodes] if cond.exhaust_pressure is None
-                      else [])
+        given = _given_node_pressures(cond)
+        self.freed = ([i for c, i in self.at_nodes if c.name not in given]
+                      if cond.exhaust_pressure is None else [])
         self.throttle_fixed = cond.pressure_mode == "fixed" or mode == "wide_open"
         # the admission (throttle valve or governing stage) takes what the flow leaves
         self.admission_throttles = self.throttle_fixed and mode == "point"
@@ -203,6 +204,11 @@ class PointEquations:
         held = dict(cond.held_pressures)
         for i, c in self.holding:
             p_fix[i] = held.get(c.name, self.p_design[i])
+        if cond.exhaust_pressure is None:  # a condenser whose pressure the case gives
+            given = _given_node_pressures(cond)
+            for c, i in self.at_nodes:
+                if c.name in given:
+                    p_fix[i] = given[c.name]
         self.p_fix = p_fix
         self.T_throttle = (cond.throttle_temperature if cond.throttle_temperature is not None
                            else model.throttle.temperature)
@@ -433,7 +439,8 @@ class PointEquations:
         if self.freed:
             records = self.node_states(p, h, M, summary)
             for c, i in self.at_nodes:
-                F[row_of[i]] = c.residual(p[i], records[c.name], steam)
+                if row_of[i] >= 0:
+                    F[row_of[i]] = c.residual(p[i], records[c.name], steam)
         if self.demand:
             F[k] = (P_gen - self.cond.output) / self.model.generator.rating
         F = np.array(F)
@@ -480,11 +487,17 @@ class PointEquations:
         return F, state
 
 
+def _given_node_pressures(cond: Conditions) -> dict[str, float]:
+    """Pressures [Pa] a case gives for kinds at a node (a condenser's ``pressure``
+    setting), by component name."""
+    return {name: value for _t, name, key, value in cond.settings if key == "pressure"}
+
+
 def equations_for(model: Model, cond: Conditions, steam: SteamTables,
                   mode: str = "point", wide_open: frozenset = frozenset()) -> PointEquations:
     """The compiled equations for ``cond``, reused across points of the same structure."""
     key = (cond.valve_mode, cond.pressure_mode, mode, cond.output is not None,
-           cond.exhaust_pressure is None,
+           cond.exhaust_pressure is None, frozenset(_given_node_pressures(cond)),
            cond.extraction_control, cond.heaters_out, steam.name, frozenset(wide_open))
     key = key + (threading.get_ident(),)  # one compiled copy per thread: it holds state
     cache = model.solver_cache
