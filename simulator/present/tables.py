@@ -225,7 +225,8 @@ def format_point(r: PointResult, case_name: str = "", cautions=(),
         out.append("")
     t = d["totals"]
     tu = d["units"]["totals"]
-    rows = [[k.replace("_", " "), v, tu.get(k, "")] for k, v in t.items()]
+    labels = {c.name: c.label for c in TOTALS if c.label}
+    rows = [[labels.get(k, k.replace("_", " ")), v, tu.get(k, "")] for k, v in t.items()]
     width = max(len(r[0]) for r in rows)
     out.append("Totals")
     out.append("------")

@@ -51,7 +51,9 @@ TOTALS = (
     Column("reheat_heat", "W", "heat added in the reheater"),
     Column("final_feedwater_temperature", "K", "final feedwater temperature"),
     Column("heat_added", "W", "heat added in the boiler and reheater"),
-    Column("heat_rate", "J/J", "heat added over generator output (J/J; x 3600 = kJ/kWh)"),
+    Column("heat_rate", "J/J", "turbine-cycle heat rate, gross: heat added to the steam over "
+           "generator output, pump work in the feedwater (ASME PTC 6 terms; J/J, x 3600 = "
+           "kJ/kWh)", label="turbine-cycle heat rate (gross)"),
     Column("pump_power", "W", "shaft power of all pumps of the feedwater train"),
     Column("pump_drive_turbine_power", "W", "power of the turbines that drive pumps "
            "(feed-pump turbines; only with one)"),
@@ -61,8 +63,9 @@ TOTALS = (
     Column("condenser_duty", "W", "heat rejected in the condenser"),
     Column("heater_heat_loss", "W", "heat lost by the heaters"),
     Column("process_steam_energy", "W", "energy leaving with process steam, less makeup"),
-    Column("heat_rate_power", "J/J", "heat chargeable to power over generator output (J/J; "
-           "x 3600 = kJ/kWh)"),
+    Column("heat_rate_power", "J/J", "turbine-cycle heat rate of power: heat chargeable to "
+           "power (heat added less net process-steam energy) over generator output (J/J; "
+           "x 3600 = kJ/kWh)", label="turbine-cycle heat rate of power"),
     Column("energy_imbalance", "W", "cycle energy balance error (a check; near 0)",
            display="W"),
 )
