@@ -9,14 +9,25 @@ declaration            used by
 ``table``, ``read``    the model reader: the component's table in the model file,
                        its keys, units, defaults and validation (messages name
                        file, table and key)
+``check_design``,      the model reader, once every table is read: one component
+``check_kind``         against the design state, all of a kind together
 ``calibrate``          plant calibration: fix its constants from the design heat
                        balance
 ``evaluate``           the march of one residual evaluation (steam-path kinds):
                        flow, outlet enthalpy, power, and the law it owns
+``frees_node``         a kind at a node whose pressure it sets by its own law (a
+                       condenser): ``calibrate_design``, ``node_state`` and
+                       ``residual`` give its constants, its state at each
+                       evaluation and the node's equation
+``reads_totals``       a kind whose results follow from the point's totals
+                       (auxiliaries, boiler): its ``point_row`` runs after them
+``describe``           the lines ``partload check`` prints for the component
 ``settings``           the case reader (``[<settings_table>.NAME]`` keys)
 ``tunables``           constants measured plant data may fit later
 ``columns``            the point result, the HDF5 layout, console tables, JSON,
                        CSV (one dataset per column under ``/<results>/``)
+``part_results``       a second result group with a row per part (the control
+                       valves of a governing stage)
 =====================  =========================================================
 
 A registry (:mod:`simulator.components.registry`) maps each model-file table
@@ -159,15 +170,16 @@ class Component:
     part_results: ClassVar[str | None] = None
     part_columns: ClassVar[tuple[Column, ...]] = ()
     # a kind at a node whose pressure it sets by its own law (a condenser at an
-    # exhaust node): the pressure becomes an unknown and the law its residual
+    # exhaust node): the pressure becomes an unknown and the law its residual.
+    # Such a kind provides calibrate_design(duty, p, steam, circuit_duty),
+    # node_state(duty, march, upstream, circuit_duty) -> record and
+    # residual(p, record, steam) -> float; its record reaches point_row as
+    # point.records[name]
     frees_node: ClassVar[bool] = False
     # a kind whose results follow from the point's totals (net output, fuel): its
     # point_row runs after the totals, and the point view gives ``totals``,
     # ``tables`` (the tables built before it), ``rating`` and ``setting``
     reads_totals: ClassVar[bool] = False
-    # such a kind provides node_state(duty, march, upstream) -> record and
-    # residual(p, record, steam) -> float; its record reaches point_row as
-    # point.records[name]
 
     name: str
 

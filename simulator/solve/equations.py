@@ -2,16 +2,19 @@
 
 Unknowns
     * ``ln p`` at every node whose pressure is not fixed (exhaust nodes are
-      fixed by the condenser or back pressure; the throttle node under
-      throttle governing; the inlet of a control valve holding it);
+      fixed by the back pressure, unless a kind that frees its node, a
+      condenser, sets it and the case does not give it; the throttle node
+      under a held throttle pressure; the inlet of a control valve holding it);
     * the bleed flow of every in-service heater, over design throttle flow;
-    * the throttle flow, over its design value, when an output is demanded.
+    * the throttle flow, over its design value, when an output is demanded or
+      in the ``wide_open`` mode.
 
 Residuals (all dimensionless)
     * mass balance at each free node, over design throttle flow;
     * at the inlet node of a component that passes the whole net flow of its
       node (valve, reheater, pipe), its pressure-drop law instead, over the
       node's design pressure;
+    * at a freed exhaust node, its kind's law (``residual``);
     * each heater's energy balance, over its design duty;
     * generator output minus demand, over the rating.
 
