@@ -396,10 +396,10 @@ def _exhaust_loss_curve(pt: _Point) -> Caution | None:
         vel = float(r.group_velocity[k])
         lo, hi = ex.curve_velocity[0], ex.curve_velocity[-1]
         if vel < lo:
-            off.append((lo - vel, model.groups[k].name, ex.curve_name, vel, lo, "below its "
+            off.append((lo - vel, model.groups[k].name, ex.curve_name, vel, lo, "below the "
                         "first", ex.curve_loss[0]))
         elif vel > hi:
-            off.append((vel - hi, model.groups[k].name, ex.curve_name, vel, hi, "above its "
+            off.append((vel - hi, model.groups[k].name, ex.curve_name, vel, hi, "above the "
                         "last", ex.curve_loss[-1]))
     if not off:
         return None

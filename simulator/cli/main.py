@@ -232,7 +232,7 @@ def _say(text: str) -> None:
 def add_units_option(c) -> None:
     """The ``--units`` choice of a command that shows results."""
     c.add_argument("--units", choices=("metric", "us"), default="metric",
-                   help="display units: metric (bar, degC, kJ/kg, t/h as kg/s, kJ/kWh; "
+                   help="display units: metric (bar, degC, kJ/kg, kg/s, kJ/kWh; "
                         "default) or us (psia, degF, Btu/lb, klb/h, Btu/kWh, inHg for back "
                         "pressure)")
 

@@ -210,7 +210,8 @@ def trend_summary(trend) -> str:
             named.setdefault(item.split("@")[0], []).append(i)
     for tag, where in sorted(named.items(), key=lambda kv: -len(kv[1])):
         periods = sorted(set(where))
-        lines.append(f"suspect {tag}: {len(where)} readings in {len(periods)} periods (first "
+        lines.append(f"suspect {tag}: {len(where)} reading{'s' * (len(where) != 1)} in "
+                     f"{len(periods)} period{'s' * (len(periods) != 1)} (first "
                      f"{trend.labels[periods[0]]}, last {trend.labels[periods[-1]]})")
     offset: dict[str, list[int]] = {}
     for i, text in enumerate(trend.offsets):

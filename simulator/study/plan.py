@@ -262,6 +262,7 @@ def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, In
     T_rh_design = reheat[0] if reheat and all(t == reheat[0] for t in reheat) else math.nan
     exh = [model.design_pressure[e] for e in model.exhaust_nodes]
     p_x_design = exh[0] if all(p == exh[0] for p in exh) else math.nan
+    finds_pressure = any(c.frees_node for c in model.components)
     nan = math.nan
 
     def col(get):
@@ -310,7 +311,10 @@ def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, In
             "hot reheat temperature (NaN: no reheater, or each reheater at its design)"),
         "exhaust_pressure": InputColumn(
             col(lambda c: c.exhaust_pressure if c.exhaust_pressure is not None
-                else p_x_design), "Pa", "exhaust (condenser or back) pressure"),
+                else nan if finds_pressure else p_x_design), "Pa",
+            "exhaust (condenser or back) pressure given (NaN: found by the condensers, see "
+            "/condensers/pressure)" if finds_pressure else "exhaust (condenser or back) "
+            "pressure"),
         "heaters_out_of_service": InputColumn(
             [" ".join(sorted(c.heaters_out)) for c in conds], "",
             "heaters out of service, separated by spaces"),
