@@ -10,6 +10,7 @@ from .extraction import EXTRACTION_CONTROLS, Extraction
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import HEATER_TYPES, TTD_METHODS, Heater
+from .inlet_header import InletHeader
 from .pipe import Pipe
 from .plant_balance import HEATING_VALUES, Auxiliaries, Boiler
 from .pump import Pump
@@ -23,6 +24,6 @@ __all__ = [
     "KINDS", "register", "unregister", "kind_of_results",
     "Auxiliaries", "Boiler", "HEATING_VALUES", "Condenser", "CondenserState",
     "ControlValve", "Extraction", "EXTRACTION_CONTROLS",
-    "Generator", "GoverningStage", "Heater", "HEATER_TYPES",
+    "Generator", "GoverningStage", "Heater", "HEATER_TYPES", "InletHeader",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

@@ -34,6 +34,9 @@ turbine and governs it (``admits``: the throttle valve, or a governing stage
 of nozzle groups).  Under a held throttle pressure it takes whatever pressure
 the flow leaves and tells the solver when that flow is beyond what it can pass
 wide open (``over_capacity``); ``valve_drop`` gives its valves' pressure drop.
+A kind with no valves of its own (an inlet header) cannot take what the flow
+leaves: ``held_refusal`` says why a held-pressure flow other than the one the
+turbine swallows is refused.
 """
 
 from __future__ import annotations
@@ -257,6 +260,8 @@ class SteamPathComponent(Component):
     expands: ClassVar[bool] = False  # expands the steam through blading (needs a falling
     # pressure at every answer)
     admits: ClassVar[bool] = False  # leaves the throttle node and governs the admission
+    # joins two nodes of equal design pressure (an inlet header with no line drop)
+    keeps_pressure: ClassVar[bool] = False
     # the key of the model file naming this component's inlet / outlet node
     inlet_key: ClassVar[str] = "from"
     outlet_key: ClassVar[str] = "to"
@@ -292,6 +297,14 @@ class SteamPathComponent(Component):
     def valve_drop(self, record, p_in: float, p_out: float) -> float:
         """Admission kinds: the pressure drop [Pa] across the admitting valves."""
         raise NotImplementedError
+
+    def held_refusal(self, record, p_in: float, p_out: float) -> str | None:
+        """Admission kinds: why the flow of ``record`` cannot pass at a held throttle
+        pressure ``p_in`` [Pa] with ``p_out`` [Pa] after it, whatever the limit
+        checks, or ``None`` when it can.  Valves take whatever drop the flow leaves
+        (``None``); a kind with no valves (an inlet header) passes only the flow
+        the turbine swallows."""
+        return None
 
     def result_row(self, record, m: float, p_in: float, h_in: float, p_out: float,
                    h_out: float) -> tuple:

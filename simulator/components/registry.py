@@ -14,6 +14,7 @@ from .extraction import Extraction
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import Heater
+from .inlet_header import InletHeader
 from .pipe import Pipe
 from .plant_balance import Auxiliaries, Boiler
 from .pump import Pump
@@ -25,8 +26,8 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
-    for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
-                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler)
+    for cls in (ThrottleValve, GoverningStage, InletHeader, StageGroup, Reheater, Pipe,
+                ControlValve, Extraction, Generator, Heater, Pump, Condenser, Auxiliaries, Boiler)
 }
 
 

@@ -388,6 +388,20 @@ def _check_physical(model, cond, steam, eq, st):
             f"the throttle pressure would be {p_T / 1e5:.2f} bar, where the throttle "
             f"temperature {T_T - 273.15:.1f} degC is not above the saturation temperature "
             f"{T_sat - 273.15:.1f} degC: the turbine would receive water, not steam")
+    if eq.admission_throttles:  # a held throttle pressure: can the admission take the rest?
+        adm = model.admission
+        why = adm.held_refusal(st["admission"], p_T, p[eq.idx[adm.outlet]])
+        if why is not None:
+            try:
+                m_max, P_max = wide_open_capacity(model, cond, steam, p_T)
+                at = (f": at {p_T / 1e5:.2f} bar it swallows {m_max:.2f} kg/s and gives "
+                      f"{P_max / 1e6:.2f} MW")
+            except SolveError:
+                at = ""
+            raise InfeasibleError(
+                f"{why}{at}. Give pressure_mode = 'sliding' with a flow or an output (the "
+                f"{adm.title} pressure is then the result), or hold the pressure and take the "
+                f"flow it swallows (partload.solve.point.wide_open_capacity in Python)")
     for i, outs in enumerate(eq.outs):
         for c, j in outs:
             if c.expands and p[j] >= p[i]:
