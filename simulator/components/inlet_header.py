@@ -135,7 +135,10 @@ class InletHeader(SquareLawDrop, SteamPathComponent):
         return (f"the turbine is admitted from a header with no valve of its own, so at a held "
                 f"header pressure it passes only the flow it swallows; this flow needs "
                 f"{p_out / 1e5:.5g} bar at {self.outlet!r}, where the header line leaves "
-                f"{(p_in - record) / 1e5:.5g} bar ({more} than the section swallows)")
+                f"{(p_in - record) / 1e5:.5g} bar: the flow is {more} than the section "
+                f"swallows. Give pressure_mode = 'sliding' with a flow or an output (the header "
+                f"pressure is then the result), or take the flow the section swallows at the held "
+                f"pressure (partload.solve.point.wide_open_capacity in Python)")
 
     def valve_drop(self, record, p_in, p_out) -> float:
         return 0.0  # no valves

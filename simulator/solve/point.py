@@ -376,8 +376,9 @@ def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> Solv
 
 def _check_physical(model, cond, steam, eq, st):
     """Refuse answers no machine can give, whatever the limit checks: water at the
-    throttle, pressures rising through a stage group (the water side and negative
-    bleeds: :func:`_check_water_side`)."""
+    throttle, a held throttle pressure an admission with no valves cannot take
+    (``held_refusal``), pressures rising through a stage group (the water side and
+    negative bleeds: :func:`_check_water_side`)."""
     p = st["p"]
     names = eq.names
     p_T = p[eq.src]
@@ -398,10 +399,7 @@ def _check_physical(model, cond, steam, eq, st):
                       f"{P_max / 1e6:.2f} MW")
             except SolveError:
                 at = ""
-            raise InfeasibleError(
-                f"{why}{at}. Give pressure_mode = 'sliding' with a flow or an output (the "
-                f"{adm.title} pressure is then the result), or hold the pressure and take the "
-                f"flow it swallows (partload.solve.point.wide_open_capacity in Python)")
+            raise InfeasibleError(f"{why}{at}")
     for i, outs in enumerate(eq.outs):
         for c, j in outs:
             if c.expands and p[j] >= p[i]:
