@@ -10,6 +10,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import h5py
 import partload
 import pytest
 from helpers import MODELS, demo_data
@@ -160,7 +161,10 @@ def test_held_header_pressure_refuses_another_flow(header, steam, asked, check_l
                     check_limits=check_limits)
     text = str(e.value)
     assert "no valve of its own" in text
-    assert "at 42.00 bar it swallows 25.00 kg/s" in text  # the design flow, model file
+    # the design flow and output at the design header pressure (model file, and
+    # test_design_point_at_held_header_pressure), first, before a record cuts it
+    assert text.split(": ", 1)[1].startswith(
+        "the turbine swallows 25.00 kg/s (10.41 MW) at this pressure and no other flow")
     assert "pressure_mode = 'sliding'" in text
     assert text.startswith(("a throttle flow of", "an output of"))
 
@@ -186,7 +190,33 @@ def test_case_file_at_held_pressure_is_refused_with_exit_code_1(tmp_path):
     out = subprocess.run([sys.executable, "-m", "partload.cli", "point", str(case)],
                          capture_output=True, text=True, cwd=ROOT)
     assert out.returncode == 1  # README: a point that cannot be solved
-    assert "swallows 25.00 kg/s" in out.stderr + out.stdout
+    assert "the turbine swallows 25.00 kg/s" in out.stderr + out.stdout
+
+
+def test_study_records_header_results_and_refusals(tmp_path, header, steam):
+    # the study path agrees with the point path: at sliding pressure every flow
+    # solves, held at the design header pressure only the design flow does
+    case = tmp_path / "sweep.toml"
+    case.write_text(f'model = "{(MODELS / (NAME + ".toml")).as_posix()}"\n[sweep]\n'
+                    'throttle_flow_fraction = [0.6, 1.0]\n'
+                    'pressure_mode = ["sliding", "fixed"]\n')
+    path, summary = partload.run_study(case, tmp_path / "sweep.h5", workers=1)
+    assert (summary.n_converged, summary.n_failed) == (3, 1)
+    with h5py.File(path) as f:
+        status = f["solver/status"][...]
+        flows = f["inputs/throttle_flow"][...]
+        modes = f["inputs/pressure_mode"].asstr()[...]
+        drop = f["inlet_header/pressure_drop"][:, 0]
+        error = f["solver/error"].asstr()[...]
+    for k in range(len(status)):
+        if modes[k] == "fixed" and flows[k] < 20.0:
+            assert status[k] == 1 and error[k] == "InfeasibleError"
+            continue
+        assert status[k] == 0
+        r = solve_point(header, Conditions(throttle_flow=float(flows[k]),
+                                           pressure_mode=str(modes[k])), steam)
+        assert drop[k] == pytest.approx(r.tables["inlet_header"].columns["pressure_drop"][0],
+                                        rel=1e-9)
 
 
 @pytest.mark.parametrize("change, key, words", [

@@ -132,13 +132,12 @@ class InletHeader(SquareLawDrop, SteamPathComponent):
         if abs(gap) <= HELD_TOLERANCE * p_in:
             return None
         more = "more" if gap < 0.0 else "less"
-        return (f"the turbine is admitted from a header with no valve of its own, so at a held "
-                f"header pressure it passes only the flow it swallows; this flow needs "
-                f"{p_out / 1e5:.5g} bar at {self.outlet!r}, where the header line leaves "
-                f"{(p_in - record) / 1e5:.5g} bar: the flow is {more} than the section "
-                f"swallows. Give pressure_mode = 'sliding' with a flow or an output (the header "
-                f"pressure is then the result), or take the flow the section swallows at the held "
-                f"pressure (partload.solve.point.wide_open_capacity in Python)")
+        return (f"the turbine is admitted from a header with no valve of its own; this flow "
+                f"needs {p_out / 1e5:.5g} bar at {self.outlet!r}, where the header line leaves "
+                f"{(p_in - record) / 1e5:.5g} bar (the flow is {more} than the turbine "
+                f"swallows). Give pressure_mode = 'sliding' with a flow or an output (the "
+                f"header pressure is then the result), or take the flow the turbine swallows "
+                f"at the held pressure (partload.solve.point.wide_open_capacity in Python)")
 
     def valve_drop(self, record, p_in, p_out) -> float:
         return 0.0  # no valves

@@ -395,11 +395,11 @@ def _check_physical(model, cond, steam, eq, st):
         if why is not None:
             try:
                 m_max, P_max = wide_open_capacity(model, cond, steam, p_T)
-                at = (f": at {p_T / 1e5:.2f} bar it swallows {m_max:.2f} kg/s and gives "
-                      f"{P_max / 1e6:.2f} MW")
+                at = (f"the turbine swallows {m_max:.2f} kg/s ({P_max / 1e6:.2f} MW) at "
+                      f"this pressure and no other flow: ")
             except SolveError:
                 at = ""
-            raise InfeasibleError(f"{why}{at}")
+            raise InfeasibleError(f"{at}{why}")
     for i, outs in enumerate(eq.outs):
         for c, j in outs:
             if c.expands and p[j] >= p[i]:
