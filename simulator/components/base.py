@@ -299,8 +299,9 @@ class SteamPathComponent(Component):
         raise NotImplementedError
 
     def held_refusal(self, record, p_in: float, p_out: float) -> str | None:
-        """Admission kinds: why the flow of ``record`` cannot pass at a held throttle
-        pressure ``p_in`` [Pa] with ``p_out`` [Pa] after it, whatever the limit
+        """Admission kinds: why the flow of ``record`` (its march record) [-] cannot
+        pass at a held throttle pressure ``p_in`` [Pa] with ``p_out`` [Pa] after it,
+        whatever the limit
         checks, or ``None`` when it can.  Valves take whatever drop the flow leaves
         (``None``); a kind with no valves (an inlet header) passes only the flow
         the turbine swallows."""
