@@ -11,6 +11,7 @@ from .feed_pump_turbine import FeedPumpTurbine
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import HEATER_TYPES, TTD_METHODS, Heater
+from .inlet_header import InletHeader
 from .leakoff import Leakoff
 from .pipe import Pipe
 from .plant_balance import HEATING_VALUES, Auxiliaries, Boiler
@@ -25,6 +26,6 @@ __all__ = [
     "KINDS", "register", "unregister", "kind_of_results",
     "Auxiliaries", "Boiler", "HEATING_VALUES", "Condenser", "CondenserState",
     "ControlValve", "Extraction", "EXTRACTION_CONTROLS", "FeedPumpTurbine", "Leakoff",
-    "Generator", "GoverningStage", "Heater", "HEATER_TYPES",
+    "Generator", "GoverningStage", "Heater", "HEATER_TYPES", "InletHeader",
     "TTD_METHODS", "Pipe", "Pump", "Reheater", "StageGroup", "ExhaustEnd", "ThrottleValve",
 ]

@@ -45,6 +45,9 @@ turbine and governs it (``admits``: the throttle valve, or a governing stage
 of nozzle groups).  Under a held throttle pressure it takes whatever pressure
 the flow leaves and tells the solver when that flow is beyond what it can pass
 wide open (``over_capacity``); ``valve_drop`` gives its valves' pressure drop.
+A kind with no valves of its own (an inlet header) cannot take what the flow
+leaves: ``held_refusal`` says why a held-pressure flow other than the one the
+turbine swallows is refused.
 """
 
 from __future__ import annotations
@@ -274,6 +277,8 @@ class SteamPathComponent(Component):
     # needs); it reads it as march.component_flow[name] and gives residual(power,
     # pump power) after the water side
     flow_unknown: ClassVar[bool] = False
+    # joins two nodes of equal design pressure (an inlet header with no line drop)
+    keeps_pressure: ClassVar[bool] = False
     # the key of the model file naming this component's inlet / outlet node
     inlet_key: ClassVar[str] = "from"
     outlet_key: ClassVar[str] = "to"
@@ -309,6 +314,15 @@ class SteamPathComponent(Component):
     def valve_drop(self, record, p_in: float, p_out: float) -> float:
         """Admission kinds: the pressure drop [Pa] across the admitting valves."""
         raise NotImplementedError
+
+    def held_refusal(self, record, p_in: float, p_out: float) -> str | None:
+        """Admission kinds: why the flow of ``record`` (its march record) [-] cannot
+        pass at a held throttle pressure ``p_in`` [Pa] with ``p_out`` [Pa] after it,
+        whatever the limit
+        checks, or ``None`` when it can.  Valves take whatever drop the flow leaves
+        (``None``); a kind with no valves (an inlet header) passes only the flow
+        the turbine swallows."""
+        return None
 
     def result_row(self, record, m: float, p_in: float, h_in: float, p_out: float,
                    h_out: float) -> tuple:

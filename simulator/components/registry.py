@@ -15,6 +15,7 @@ from .feed_pump_turbine import FeedPumpTurbine
 from .generator import Generator
 from .governing_stage import GoverningStage
 from .heater import Heater
+from .inlet_header import InletHeader
 from .leakoff import Leakoff
 from .pipe import Pipe
 from .plant_balance import Auxiliaries, Boiler
@@ -27,9 +28,9 @@ __all__ = ["KINDS", "register", "unregister", "kind_of_results"]
 
 KINDS: dict[str, type[Component]] = {
     cls.table: cls
-    for cls in (ThrottleValve, GoverningStage, StageGroup, Reheater, Pipe, ControlValve, Extraction,
-                Generator, Heater, Pump, Condenser, Auxiliaries, Boiler, FeedPumpTurbine,
-                Leakoff)
+    for cls in (ThrottleValve, GoverningStage, InletHeader, StageGroup, Reheater, Pipe,
+                ControlValve, Extraction, Generator, Heater, Pump, Condenser, Auxiliaries, Boiler,
+                FeedPumpTurbine, Leakoff)
 }
 
 

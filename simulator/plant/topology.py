@@ -47,7 +47,7 @@ def build_graph(file, design_p, throttle, valve, steam_path, extractions, exhaus
                 f"a second component between {a!r} and {b!r}; parallel paths need their "
                 f"own nodes", file=file, table=table, key="to"))
             continue
-        if design_p[b] >= design_p[a]:
+        if design_p[b] > design_p[a] or (design_p[b] == design_p[a] and not comp.keeps_pressure):
             problems.add(InputError(
                 f"design pressure must fall from {a!r} ({design_p[a] / 1e5:.5g} bar) to "
                 f"{b!r} ({design_p[b] / 1e5:.5g} bar)", file=file, table=table, key="to"))

@@ -376,8 +376,9 @@ def _with_request(exc: SolveError, cond: Conditions, eq: PointEquations) -> Solv
 
 def _check_physical(model, cond, steam, eq, st):
     """Refuse answers no machine can give, whatever the limit checks: water at the
-    throttle, pressures rising through a stage group (the water side and negative
-    bleeds: :func:`_check_water_side`)."""
+    throttle, a held throttle pressure an admission with no valves cannot take
+    (``held_refusal``), pressures rising through a stage group (the water side and
+    negative bleeds: :func:`_check_water_side`)."""
     p = st["p"]
     names = eq.names
     p_T = p[eq.src]
@@ -388,6 +389,17 @@ def _check_physical(model, cond, steam, eq, st):
             f"the throttle pressure would be {p_T / 1e5:.2f} bar, where the throttle "
             f"temperature {T_T - 273.15:.1f} degC is not above the saturation temperature "
             f"{T_sat - 273.15:.1f} degC: the turbine would receive water, not steam")
+    if eq.admission_throttles:  # a held throttle pressure: can the admission take the rest?
+        adm = model.admission
+        why = adm.held_refusal(st["admission"], p_T, p[eq.idx[adm.outlet]])
+        if why is not None:
+            try:
+                m_max, P_max = wide_open_capacity(model, cond, steam, p_T)
+                at = (f"the turbine swallows {m_max:.2f} kg/s ({P_max / 1e6:.2f} MW) at "
+                      f"this pressure and no other flow: ")
+            except SolveError:
+                at = ""
+            raise InfeasibleError(f"{at}{why}")
     for i, outs in enumerate(eq.outs):
         for c, j in outs:
             if c.expands and p[j] >= p[i]:
