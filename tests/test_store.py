@@ -322,8 +322,11 @@ def _children(pid: int) -> list[int]:
 def _start_and_stop(case: Path, out: Path, sig: int, workers: int):
     cmd = [sys.executable, "-m", "partload.cli", "study", str(case), "--workers", str(workers),
            "--output", str(out), "--quiet"]
+    # the test hook of study.run: each chunk waits 0.05 s, so the signal lands mid-study
+    # on a fast machine too
+    env = {**os.environ, "PARTLOAD_TEST_CHUNK_PAUSE": "0.05"}
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            cwd=out.parent)
+                            cwd=out.parent, env=env)
     deadline = time.monotonic() + 60
     while _done(out) < 76 and time.monotonic() < deadline and proc.poll() is None:
         time.sleep(0.02)  # wait for two chunks of 38 points

@@ -295,6 +295,11 @@ class Continuation:
         self.fit.add(self._family, self._numbers, r)
 
 
+# A test hook: seconds each chunk waits after solving, so that tests of signals and
+# kills land mid-study however fast the machine solves (never set in use).
+CHUNK_PAUSE = float(os.environ.get("PARTLOAD_TEST_CHUNK_PAUSE", "0") or 0)
+
+
 def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions]) -> ChunkResult:
     """Solve the points of a chunk, each starting from the one solved before.
 
@@ -328,6 +333,8 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
         layout.fill(arrays, i, r)
         if check is not None:
             _record_cautions(arrays, i, check, model, cond, r, layout.caution_codes)
+    if CHUNK_PAUSE > 0.0:
+        time.sleep(CHUNK_PAUSE)
     return ChunkResult(chunk.index, chunk.start, chunk.stop, arrays,
                        time.perf_counter() - t0)
 
