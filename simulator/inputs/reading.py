@@ -345,3 +345,25 @@ class TableReader:
                 extra = closest(key, valid) or (
                     f"; valid keys: {', '.join(valid)}" if valid else "")
                 self.problems.add(self.where.child(key).error(f"unknown key{extra}"))
+
+
+def csv_table(text: str, fname: str) -> tuple[int, list[str], list[tuple[int, list[str]]]]:
+    """The header and rows of a CSV file's ``text``: ``(header line, column names,
+    [(line, cells), ...])``; blank lines and lines starting with ``#`` are
+    skipped.  A file without a header or without rows is refused, naming it."""
+    import csv
+    import io
+
+    header, rows = None, []
+    for lineno, row in enumerate(csv.reader(io.StringIO(text)), start=1):
+        if not row or (len(row) == 1 and not row[0].strip()) or row[0].lstrip().startswith("#"):
+            continue
+        if header is None:
+            header = (lineno, [c.strip() for c in row])
+        else:
+            rows.append((lineno, row))
+    if header is None:
+        raise InputError("the file has no header row", file=fname)
+    if not rows:
+        raise InputError("the file has a header but no rows", file=fname)
+    return header[0], header[1], rows

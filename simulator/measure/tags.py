@@ -34,9 +34,7 @@ leaves the reading out of that point.
 
 from __future__ import annotations
 
-import csv
 import hashlib
-import io
 import math
 import re
 from dataclasses import dataclass, field
@@ -46,7 +44,7 @@ import numpy as np
 
 from ..components.registry import KINDS
 from ..errors import InputError
-from ..inputs.reading import closest, load_toml
+from ..inputs.reading import closest, csv_table, load_toml
 from ..units import Where, linear_factors, parse
 
 __all__ = ["Tag", "TunableRef", "Measurements", "read_measurements", "read_tags", "COVERAGE",
@@ -306,19 +304,7 @@ def _read_csv(path: Path, tags: list[Tag], label_col, w: Where):
     except UnicodeDecodeError as exc:
         raise InputError(f"not UTF-8 text ({exc})", file=str(path)) from None
     fname = str(path)
-    header, rows = None, []
-    for lineno, row in enumerate(csv.reader(io.StringIO(text)), start=1):
-        if not row or (len(row) == 1 and not row[0].strip()) or row[0].lstrip().startswith("#"):
-            continue
-        if header is None:
-            header = (lineno, [c.strip() for c in row])
-        else:
-            rows.append((lineno, row))
-    if header is None:
-        raise InputError("the file has no header row", file=fname)
-    if not rows:
-        raise InputError("the file has a header but no rows", file=fname)
-    hline, names = header
+    hline, names, rows = csv_table(text, fname)
     if label_col is None:
         label_col = names[0] if not _HEADER.match(names[0]) or "[" not in names[0] else None
     elif label_col not in names:

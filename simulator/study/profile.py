@@ -7,9 +7,7 @@ Column units are converted with :func:`simulator.units.linear_factors`.
 
 from __future__ import annotations
 
-import csv
 import hashlib
-import io
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -17,6 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..inputs.reading import csv_table
 from ..plant.case import Case
 from ..units import Where, linear_factors
 from .axes import (
@@ -94,20 +93,7 @@ def read_profile(case: Case) -> ProfileSource:
         raise InputError(f"not UTF-8 text ({exc})", file=str(path)) from None
     sha = hashlib.sha256(raw).hexdigest()
     fname = str(path)
-    rows = []
-    header = None
-    for lineno, row in enumerate(csv.reader(io.StringIO(text)), start=1):
-        if not row or (len(row) == 1 and not row[0].strip()) or row[0].lstrip().startswith("#"):
-            continue
-        if header is None:
-            header = (lineno, [c.strip() for c in row])
-            continue
-        rows.append((lineno, row))
-    if header is None:
-        raise InputError("the file has no header row", file=fname)
-    if not rows:
-        raise InputError("the file has a header but no rows", file=fname)
-    hline, names = header
+    hline, names, rows = csv_table(text, fname)
     if label_col is None:
         label_col = "time" if "time" in names else None
     elif label_col not in names:
