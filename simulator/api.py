@@ -259,9 +259,9 @@ def _heaters_out(model: Model, base: Conditions, names: Iterable[str] | str | No
         if model.heaters[name].heater_type == "deaerator":
             raise InputError(f"the deaerator {name!r} cannot be taken out of service",
                              key="heaters_out")
-    bleeds_of = {model.heaters[h].extraction for h in base.heaters_out | out}
+    bleeds_of = {n for h in base.heaters_out | out for n in model.heaters[h].extractions}
     controls = [(e, c) for e, c in base.extraction_control if e not in bleeds_of]
-    controls += [(model.heaters[h].extraction, ("closed", 0.0)) for h in out]
+    controls += [(n, ("closed", 0.0)) for h in out for n in model.heaters[h].extractions]
     return {"heaters_out": out, "extraction_control": tuple(sorted(controls))}
 
 

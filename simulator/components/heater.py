@@ -107,6 +107,15 @@ class Heater(Component):
     closure: float = 1.0
     duty_design: float = 1.0
     drain_pump_efficiency: float = 0.75
+    # further extractions feeding this heater: paired bleeds at the matching nodes of
+    # parallel branches (a double-flow section); the first is ``extraction``
+    paired: tuple = ()
+    shares: tuple = (1.0,)  # each extraction's share of the heater's bleed [-]
+
+    @property
+    def extractions(self) -> tuple[str, ...]:
+        """Every extraction that feeds the heater, the first one first."""
+        return (self.extraction,) + tuple(self.paired)
 
     @classmethod
     def read(cls, hr, ctx: ReadContext):
@@ -114,7 +123,19 @@ class Heater(Component):
         if hname:
             hr.where = Where(ctx.file, f"heater '{hname}'", None)
         kind = hr.string("type", default="closed", choices=HEATER_TYPES)
-        extraction = hr.string("extraction")
+        paired: tuple = ()
+        raw = hr.raw("extraction", None)
+        if isinstance(raw, list):
+            if len(raw) < 2 or not all(isinstance(v, str) for v in raw) or len(set(raw)) != len(
+                    raw):
+                hr.problems.add(hr.where.child("extraction").error(
+                    "expected an extraction name, or a list of two or more different names "
+                    "(paired bleeds at matching nodes of parallel branches)"))
+                extraction = None
+            else:
+                extraction, paired = raw[0], tuple(raw[1:])
+        else:
+            extraction = hr.string("extraction")
         line_drop = hr.number("line_pressure_drop", default=0.03, lo=0.0, hi=0.5)
         ttd = dca = None
         drain_to = "condenser"
@@ -134,7 +155,7 @@ class Heater(Component):
         # feedwater train naming it gives no second, unrelated error
         return cls(hname, kind, extraction, line_drop if line_drop is not None else 0.03,
                    ttd or 0.0, dca, drain_to or "condenser", when_out, method or "constant",
-                   drain_pump_efficiency=dp_eff or 0.75)
+                   drain_pump_efficiency=dp_eff or 0.75, paired=paired)
 
     def shell_pressure(self, p_node: float) -> float:
         """Shell pressure [Pa] from extraction-node pressure [Pa] less the line drop."""

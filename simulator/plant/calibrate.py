@@ -34,6 +34,10 @@ def calibrate(model, steam) -> None:
             raise InputError("'closing' needs a heater fed by this extraction, whose balance "
                              "it closes; give the design flow", file=model.file,
                              table=f"extraction '{e.name}'", key="design_flow")
+        if model.heaters[e.heater].paired:
+            raise InputError("'closing' is for a heater fed by one extraction; give the design "
+                             "flows of paired bleeds", file=model.file,
+                             table=f"extraction '{e.name}'", key="design_flow")
         e.design_flow = _first_guess(model, e)
     march_design(model, steam)
     if model.feedwater is not None and model.heaters:

@@ -250,8 +250,8 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
             reader.finish(also_valid=[st.name for st in kind.settings])
             known[cname].apply_settings(values, w, target)
     for hname in target.heaters_out:  # out of service, or its extraction closed
-        e = model.extractions[model.heaters[hname].extraction]
-        target.extraction_control.append((e.name, ("closed", 0.0)))
+        for name in model.heaters[hname].extractions:
+            target.extraction_control.append((name, ("closed", 0.0)))
         if model.heaters[hname].heater_type == "deaerator":
             problems.add(Where(file, f"heaters.{hname}", "in_service").error(
                 "the deaerator cannot be taken out of service"))

@@ -108,13 +108,14 @@ def build_graph(file, design_p, throttle, valve, steam_path, extractions, exhaus
                                      "and the exhaust"))
     for h in heaters.values():
         table = f"heater '{h.name}'"
-        if h.extraction not in extractions:
-            problems.add(TopologyError(
-                f"extraction {h.extraction!r} does not exist (extractions: "
-                f"{', '.join(sorted(extractions)) or 'none'})", file=file, table=table,
-                key="extraction"))
-        else:
-            e = extractions[h.extraction]
+        for name in h.extractions:
+            if name not in extractions:
+                problems.add(TopologyError(
+                    f"extraction {name!r} does not exist (extractions: "
+                    f"{', '.join(sorted(extractions)) or 'none'})", file=file, table=table,
+                    key="extraction"))
+                continue
+            e = extractions[name]
             if e.heater:
                 problems.add(InputError(f"extraction {e.name!r} already feeds heater "
                                         f"{e.heater!r}", file=file, table=table,
@@ -122,6 +123,17 @@ def build_graph(file, design_p, throttle, valve, steam_path, extractions, exhaus
             e.heater = h.name
             if not e.control:
                 e.control = "heater"
+        if h.paired and all(n in extractions for n in h.extractions):
+            ps = [design_p.get(extractions[n].node) for n in h.extractions]
+            if None not in ps and max(ps) > 1.02 * min(ps):
+                problems.add(InputError(
+                    f"paired bleeds are taken at matching nodes of parallel branches, at one "
+                    f"pressure; these nodes' design pressures differ by more than 2 % "
+                    f"({', '.join(f'{p / 1e5:.4g}' for p in ps)} bar)", file=file,
+                    table=table, key="extraction"))
+            else:
+                total = sum(extractions[n].design_flow for n in h.extractions)
+                h.shares = tuple(extractions[n].design_flow / total for n in h.extractions)
         for key, target in (("drain_to", h.drain_to),
                             ("drain_to_when_out_of_service", h.drain_to_when_out)):
             if target is None or target in ("condenser", "forward"):

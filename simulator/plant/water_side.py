@@ -115,8 +115,12 @@ class FeedwaterMarch:
         self._n = len(self.active)
         self._cascade = [(pos[h], [pos[j] for j in self.drains_into[h]])
                          for h in nx.topological_sort(cascade) if h in self.dest]
-        self._ext_node = [nidx[model.extractions[self.heaters[h].extraction].node]
-                          for h in self.active]
+        # each heater's extraction nodes with their shares of its bleed (paired bleeds
+        # at matching nodes of parallel branches; one node for most heaters)
+        self._ext_nodes = [[(nidx[model.extractions[n].node], sh) for n, sh in zip(
+            self.heaters[h].extractions, self.heaters[h].shares)] for h in self.active]
+        self._ext_node = [nodes[0][0] for nodes in self._ext_nodes]
+        self._paired = any(len(nodes) > 1 for nodes in self._ext_nodes)
         self._cond = nidx[self.condenser]
         self._into = [[pos[j] for j in self.drains_into[h]] for h in self.active]
         self._to_cond = [pos[j] for j in self.drains_into["condenser"]]
@@ -159,6 +163,12 @@ class FeedwaterMarch:
             :class:`HeaterState` in water order.
         """
         n = self._n
+        if self._paired:  # the bleeds' mixed state: design shares of mass
+            p_ext = [sum(sh * p_node[i] for i, sh in nodes) for nodes in self._ext_nodes]
+            h_ext = [sum(sh * h_node[i] for i, sh in nodes) for nodes in self._ext_nodes]
+        else:
+            p_ext = [p_node[i] for i in self._ext_node]
+            h_ext = [h_node[i] for i in self._ext_node]
         drain_flow = [0.0] * n
         for k, into in self._cascade:
             d = bleed[k]
@@ -221,7 +231,7 @@ class FeedwaterMarch:
             if kind == 3:
                 bypass[name] = (mw, h_w)
                 continue
-            ps = obj.shell_pressure(p_node[self._ext_node[k]])
+            ps = obj.shell_pressure(p_ext[k])
             p_sh[k] = ps
             h_in[k] = h_w
             p_win[k] = p_w
@@ -254,13 +264,12 @@ class FeedwaterMarch:
                 T_w = None
         residuals = [0.0] * n
         release = [0.0] * n
-        ext = self._ext_node
         into = self._into
         for k, ht in enumerate(self._active_heaters):
             js = into[k]
-            q = (steam_release(bleed[k], h_node[ext[k]], h_drain[k],
+            q = (steam_release(bleed[k], h_ext[k], h_drain[k],
                                [drain_flow[j] for j in js], [h_drain[j] for j in js]) if js
-                 else steam_release(bleed[k], h_node[ext[k]], h_drain[k]))
+                 else steam_release(bleed[k], h_ext[k], h_drain[k]))
             release[k] = q
             residuals[k] = heater_balance_residual(q, duty[k], ht.closure, ht.duty_design)
         m_dc = 0.0
@@ -293,7 +302,7 @@ class FeedwaterMarch:
                 hs = HeaterState(name, True, self.heaters[name].heater_type, bleed=bleed[k],
                                  shell_pressure=p_sh[k],
                                  h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
-                                 h_bleed=h_node[self._ext_node[k]],
+                                 h_bleed=h_ext[k],
                                  m_water=through[s_of[k]],
                                  drain_flow=drain_flow[k], duty=duty[k],
                                  steam_release=release[k], residual=residuals[k])
@@ -366,7 +375,8 @@ def design_feedwater_states(model, steam) -> dict[str, dict]:
         h.closure = 1.0
         h.duty_design = 1.0
     march = FeedwaterMarch(model)
-    bleed = [model.extractions[model.heaters[h].extraction].design_flow for h in march.active]
+    bleed = [sum(model.extractions[n].design_flow for n in model.heaters[h].extractions)
+             for h in march.active]
     p = [model.design_pressure[n] for n in model.order]
     h = [model.design_enthalpy[n] for n in model.order]
     _, summary = march.evaluate(steam, p, h, bleed, model.throttle.flow, model.throttle.pressure,
@@ -410,7 +420,8 @@ def design_water_summary(model, steam) -> dict | None:
     if model.feedwater is None or not model.heaters:
         return None
     march = FeedwaterMarch(model)
-    bleed = [model.extractions[model.heaters[k].extraction].design_flow for k in march.active]
+    bleed = [sum(model.extractions[n].design_flow for n in model.heaters[k].extractions)
+             for k in march.active]
     p = [model.design_pressure[n] for n in model.order]
     h = [model.design_enthalpy[n] for n in model.order]
     return march.evaluate(steam, p, h, bleed, model.throttle.flow, model.throttle.pressure)[1]

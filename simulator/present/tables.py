@@ -304,7 +304,7 @@ def format_model(model, units: str = "metric") -> str:
         diff_u = _d(0.0, "K", units, display="K")[1]
         lines.append(_table("Heaters", ["heater", "type", "extraction", "TTD", "DCA", "drains to",
                                         "design duty", "closure"],
-                            [[h.name, h.heater_type, h.extraction,
+                            [[h.name, h.heater_type, ", ".join(h.extractions),
                               _d(h.ttd, "K", units, display="K")[0]
                               if h.heater_type == "closed" else None,
                               _d(h.dca, "K", units, display="K")[0] if h.dca is not None

@@ -111,6 +111,7 @@ class PointEquations:
         self.active_heaters = list(self.fw.active) if self.fw else []
         self.bleeds = []  # (name, node index, kind, value) kind: 0 fixed, 1 fraction, 2 heater
         self.bleed_control = []
+        self.bleed_share = []  # an extraction's share of its heater's bleed (paired bleeds)
         hpos = {h: k for k, h in enumerate(self.active_heaters)}
         for e in model.extractions.values():
             ctl, val = controls.get(e.name, (e.control, None))
@@ -126,6 +127,9 @@ class PointEquations:
                 kind, v = 2, hpos[e.heater]
             self.bleeds.append((e.name, idx[e.node], kind, v))
             self.bleed_control.append(ctl)
+            htr = model.heaters.get(e.heater) if e.heater else None
+            self.bleed_share.append(htr.shares[htr.extractions.index(e.name)]
+                                    if kind == 2 else 1.0)
         # unknown layout
         self.n_p = len(self.free)
         self.n_h = len(self.active_heaters)
@@ -247,8 +251,8 @@ class PointEquations:
             x[k] = math.log(math.sqrt(max(p_ex * p_ex + (pd * pd - p_ex_d * p_ex_d) * r * r,
                                           (0.5 * pd * r) ** 2, 1.0)))
         for k, h in enumerate(self.active_heaters):
-            e = m.extractions[m.heaters[h].extraction]
-            x[self.n_p + k] = e.design_flow / self.m_design * r
+            design = sum(m.extractions[n].design_flow for n in m.heaters[h].extractions)
+            x[self.n_p + k] = design / self.m_design * r
         for q, c in enumerate(self.flow_comps):
             x[self.n_p + self.n_h + q] = c.design_flow / self.m_design * r
         if self.flow_unknown:
@@ -356,14 +360,14 @@ class PointEquations:
         bleed_node = [0.0] * N
         bleed_flow = []
         heater_bleed = [0.0] * self.n_h
-        for _name, i, kind, v in self.bleeds:
+        for (_name, i, kind, v), share in zip(self.bleeds, self.bleed_share):
             if kind == 0:
                 b = v
             elif kind == 1:
                 b = v * m_T
             else:
-                b = xs[nh + v] * md
-                heater_bleed[v] = b
+                b = xs[nh + v] * md * share
+                heater_bleed[v] += b
             bleed_flow.append(b)
             bleed_node[i] += b
         nc = self.n_p + self.n_h

@@ -152,9 +152,9 @@ def _heater_out(model, base: Conditions, name: str) -> dict:
     """Conditions fields for heater ``name`` out of service besides the case's:
     its extraction closed, as a case's ``[heaters.NAME] in_service = false``."""
     out = set(base.heaters_out) | {name}
-    bleeds = {model.heaters[h].extraction for h in out}
+    bleeds = {n for h in out for n in model.heaters[h].extractions}
     controls = [(e, c) for e, c in base.extraction_control if e not in bleeds]
-    controls += [(model.heaters[h].extraction, ("closed", 0.0)) for h in sorted(out)]
+    controls += [(n, ("closed", 0.0)) for h in sorted(out) for n in model.heaters[h].extractions]
     return {"heaters_out": frozenset(out), "extraction_control": tuple(sorted(controls))}
 
 
