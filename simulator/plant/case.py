@@ -43,7 +43,8 @@ PRESSURE_MODES = ("sliding", "fixed", "program")
 _GOVERNING = {"sliding": "sliding", "throttle": "fixed"}
 OPERATION_KEYS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction",
                   "valve_mode", "pressure_mode", "governing", "throttle_pressure",
-                  "minimum_throttle_pressure", "valves_open",
+                  "minimum_throttle_pressure", "valves_open", "superheater_spray",
+                  "reheater_spray",
                   "throttle_temperature", "reheat_temperature", "exhaust_pressure")
 
 
@@ -79,6 +80,8 @@ class Conditions:
     held_pressures: tuple = ()  # (control valve name, held inlet pressure [Pa])
     valves_open: int | None = None  # governing-stage valves wide open, sliding pressure
     minimum_throttle_pressure: float | None = None  # [Pa] lowest of a pressure program
+    superheater_spray: float | None = None  # [kg/s] attemperator water into the superheater
+    reheater_spray: float | None = None  # [kg/s] attemperator water into the reheater
     # every other component setting of the case: (settings table, component name,
     # setting, SI value), read by the component's kind when it evaluates
     settings: tuple = ()
@@ -215,6 +218,9 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
                                "max_pressure")
     n_open = op.number("valves_open", default=None, lo=1,
                        hi=len(gov.valves) if gov is not None else None)
+    sh_spray = op.quantity("superheater_spray", "mass_flow", default=None, lo=0.0)
+    rh_spray = op.quantity("reheater_spray", "mass_flow", default=None, lo=0.0)
+    _check_sprays(op, problems, model, sh_spray, rh_spray)
     op.finish(also_valid=OPERATION_KEYS)
     _check_program(op, problems, model, pressure_mode, valve_mode, p_T, p_min, n_open)
     if n_open is not None:
@@ -262,7 +268,24 @@ def read_conditions(data: dict, model: Model, file: str = "<case>",
     return Conditions(m_T, out, valve_mode=valve_mode, pressure_mode=pressure_mode,
                       throttle_pressure=p_T, throttle_temperature=T_T, reheat_temperature=T_rh,
                       exhaust_pressure=p_x, valves_open=n_open,
+                      superheater_spray=sh_spray or None, reheater_spray=rh_spray or None,
                       minimum_throttle_pressure=p_min, **target.fields())
+
+
+def _check_sprays(op, problems, model, sh, rh) -> None:
+    """Attemperator sprays need the model to say where their water comes from."""
+    fw = model.feedwater
+    if rh and not model.reheaters:
+        problems.add(op.where.child("reheater_spray").error("the model has no reheater"))
+    needs_pump = bool(rh) or (bool(sh) and fw is not None
+                              and fw.superheater_spray_from == "pump")
+    if (sh or rh) and fw is None:
+        problems.add(op.where.child("reheater_spray" if rh else "superheater_spray").error(
+            "sprays take feedwater, and the model has no feedwater train"))
+    elif needs_pump and fw.spray_pump is None:
+        problems.add(op.where.child("reheater_spray" if rh else "superheater_spray").error(
+            "the model does not say which pump's discharge feeds the sprays: give "
+            "[feedwater] spray_pump"))
 
 
 def _check_program(op, problems, model, pressure_mode, valve_mode, p_T, p_min, n_open):

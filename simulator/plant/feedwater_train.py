@@ -32,6 +32,10 @@ class FeedwaterTrain:
     condenser: str
     order: list[str] = field(default_factory=list)
     boiler: BoilerPressureDrop = field(default_factory=BoilerPressureDrop)
+    # where attemperator sprays take their water: the pump whose discharge feeds them
+    # (the reheater's always; the superheater's too unless it takes final feedwater)
+    spray_pump: str | None = None
+    superheater_spray_from: str = "final_feedwater"  # or "pump"
 
 
 def read_feedwater(top, reader, problems, heaters: dict, pumps: dict,
@@ -47,7 +51,13 @@ def read_feedwater(top, reader, problems, heaters: dict, pumps: dict,
     cond = fw.string("condenser")
     order = fw.name_list("train", [], what="heater or pump") or []
     bdp = fw.quantity("boiler_pressure_drop", "pressure_difference", default=0.0)
+    spray_pump = fw.string("spray_pump", default=None)
+    sh_from = fw.string("superheater_spray_from", default="final_feedwater",
+                        choices=("final_feedwater", "pump"))
     fw.finish()
+    if spray_pump is not None and spray_pump not in pumps:
+        problems.add(fw.where.child("spray_pump").error(
+            f"{spray_pump!r} is not a pump of the model"))
     known = True
     for j, item in enumerate(order):
         if item not in heaters and item not in pumps:
@@ -59,7 +69,8 @@ def read_feedwater(top, reader, problems, heaters: dict, pumps: dict,
             problems.add(fw.where.child("train").error(message))
     if not cond:
         return None
-    return FeedwaterTrain(cond, list(order), BoilerPressureDrop(bdp or 0.0, design_flow or 1.0))
+    return FeedwaterTrain(cond, list(order), BoilerPressureDrop(bdp or 0.0, design_flow or 1.0),
+                          spray_pump, sh_from or "final_feedwater")
 
 
 def train_order_problems(order: list[str], heaters: dict, pumps: dict) -> list[str]:

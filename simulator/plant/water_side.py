@@ -140,7 +140,7 @@ class FeedwaterMarch:
         self._active_heaters = [self.heaters[h] for h in self.active]
 
     def evaluate(self, steam, p_node, h_node, bleed, m_fw: float, p_throttle: float,
-                 detail: bool = False):
+                 detail: bool = False, offtakes: dict | None = None):
         """March the water side.
 
         Parameters
@@ -151,6 +151,8 @@ class FeedwaterMarch:
         bleed : bleed flow of each heater in :attr:`active` [kg/s]
         m_fw : feedwater flow to the boiler [kg/s]
         p_throttle : throttle pressure [Pa], for the feed-pump discharge
+        offtakes : water taken after a pump, by pump name [kg/s] (attemperator
+            sprays): that pump and those before it carry it too
 
         Returns
         -------
@@ -187,6 +189,8 @@ class FeedwaterMarch:
                     m -= drain_flow[j]
             elif kind == 1 and self._forward[k]:
                 m -= drain_flow[k]
+            elif kind == 0 and offtakes and steps[s][3] in offtakes:
+                m += offtakes[steps[s][3]]
             through[s] = m
         m_condensate = m
         p_c = p_node[self._cond]
@@ -207,6 +211,7 @@ class FeedwaterMarch:
         bypass = {}
         pump_power = 0.0
         pump_powers = {}
+        pump_out_h = {}  # water enthalpy after each pump [J/kg]
         for s, (kind, obj, k, name) in enumerate(steps):
             mw = through[s]
             if kind == 0:
@@ -223,6 +228,7 @@ class FeedwaterMarch:
                 dh = obj.enthalpy_rise(v_w, p_w, p_out)
                 pump_power += mw * dh
                 pump_powers[name] = mw * dh
+                pump_out_h[name] = h_w + dh
                 h_w += dh
                 p_w = p_out
                 T_w = None
@@ -286,6 +292,7 @@ class FeedwaterMarch:
             "h_condensate": h_c,
             "pump_power": pump_power,
             "pump_powers": pump_powers,
+            "pump_outlet_enthalpy": pump_out_h,
         }
         if detail:
             summary["T_feedwater"] = steam.T_ph(p_w, h_w)

@@ -201,6 +201,15 @@ class PointEquations:
         model = self.model
         self.cond = cond
         self._last = None
+        # attemperator sprays: water added at the reheater's outlet, and taken from the
+        # water side after the spray pump (the superheater's only when it takes it there)
+        rh = cond.reheater_spray or 0.0
+        sh = cond.superheater_spray or 0.0
+        fw = model.feedwater
+        self.added = {model.reheaters[0].name: rh} if rh else {}
+        self.sh_from_pump = sh if sh and fw.superheater_spray_from == "pump" else 0.0
+        taken = rh + self.sh_from_pump
+        self.offtakes = {fw.spray_pump: taken} if taken else None
         p_fix = [math.nan] * self.N
         for i in self.exhaust_idx:
             p_fix[i] = (cond.exhaust_pressure if cond.exhaust_pressure is not None
@@ -421,6 +430,8 @@ class PointEquations:
                         F[row_of[i]] = (p[i] - p[j] - dp) / p_design[i]
                     out_flow = m
                 steps.append((c, i, j, m, h_out, power, rec))
+                if self.added and c.name in self.added:
+                    m = m + self.added[c.name]  # spray water leaves at the outlet state
                 M[j] += m
                 E[j] += m * h_out
             if row_of[i] >= 0 and not passes_net[i]:
@@ -435,7 +446,8 @@ class PointEquations:
         k = len(self.node_rows)
         summary = None
         if self.fw is not None:
-            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[src])
+            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T - self.sh_from_pump,
+                                            p[src], offtakes=self.offtakes)
             F[k:k + self.n_h] = res
             k += self.n_h
             if self.n_c:
@@ -483,7 +495,8 @@ class PointEquations:
                 needed[c.name] = c.wide_open_drop(m, steam.v_ph(p[i], h[i]))
         summary = None
         if self.fw is not None:
-            _, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T, p[self.src],
+            _, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T - self.sh_from_pump,
+                                          p[self.src], offtakes=self.offtakes,
                                           detail=True)
         records = self.node_states(p, h, M, summary) if self.at_nodes else {}
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,

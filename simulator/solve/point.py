@@ -467,11 +467,15 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
     steps = st["steps"]
     path = model.steam_path
     flow, power, heat = [], [], []
+    h_spray = _spray_enthalpy(model, st)
     for c in path:
         _c, i, _j, m, h_out, P, _rec = steps[c.name]
         flow.append(m)
         power.append(P)
-        heat.append(m * (h_out - h[i]) + P)  # heat in = enthalpy rise + work out
+        q = m * (h_out - h[i]) + P  # heat in = enthalpy rise + work out
+        if c.name in eq.added:  # spray water heated to the outlet state
+            q += eq.added[c.name] * (h_out - h_spray)
+        heat.append(q)
     tables["steam_path"] = ResultTable(
         [c.name for c in path], {"flow": np.array(flow), "power": np.array(power),
                                  "heat": np.array(heat)}, STEAM_PATH_COLUMNS,
@@ -568,6 +572,14 @@ def _columns(declared, rows) -> dict:
     return out
 
 
+def _spray_enthalpy(model, st) -> float:
+    """Enthalpy [J/kg] of attemperator spray water: after the spray pump."""
+    fw = st.get("feedwater")
+    if fw is None or model.feedwater is None or model.feedwater.spray_pump is None:
+        return math.nan
+    return fw["pump_outlet_enthalpy"].get(model.feedwater.spray_pump, math.nan)
+
+
 def _totals(model, eq, st, tables) -> dict[str, float]:
     """Every total of the point (names and units in :data:`~.result.TOTALS`)."""
     p, h = st["p"], st["h"]
@@ -608,6 +620,8 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
     h_T = h[src]
     ex = tables["extractions"].columns if "extractions" in tables else {"flow": [], "enthalpy": []}
     boiler = perf.heat_added(m_T, h_T, fw["h_feedwater"], reheat)
+    if eq.sh_from_pump:  # superheater spray water from the pump, not the final feedwater
+        boiler += eq.sh_from_pump * (fw["h_feedwater"] - _spray_enthalpy(model, st))
     totals["final_feedwater_temperature"] = fw["T_feedwater"]
     totals["heat_added"] = boiler
     totals["heat_rate"] = perf.heat_rate(boiler, P_gen)
