@@ -44,19 +44,24 @@ def node_mass_imbalance(model, r) -> dict[str, float]:
         inflow[path.outlet[i]] += path.columns["flow"][i]
     for i, n in enumerate(r.extraction_nodes):
         outflow[n] += r.extraction_flow[i]
+    if r.totals.get("reheater_spray_flow"):  # attemperator water joins at the reheater outlet
+        inflow[model.reheaters[0].outlet] += r.totals["reheater_spray_flow"]
     skip = {model.source, *model.exhaust_nodes}
     return {n: inflow[n] - outflow[n] for n in r.node_names if n not in skip}
 
 
 def turbine_energy_imbalance(model, r) -> float:
-    """Steam-path energy balance: in (throttle + reheat) - out (shaft + bleeds + exhaust) [W]."""
+    """Steam-path energy balance [W]: in (throttle steam, heat added on the way, spray
+    water) less out (the work of every steam-path component, bleeds, steam reaching the
+    exhaust nodes)."""
     i_src = r.node_names.index(model.source)
-    e_in = (r.totals["throttle_flow"] * r.node_h[i_src]
-            + float(r.tables["steam_path"].columns["heat"].sum()))
+    path = r.tables["steam_path"]
+    e_in = (r.totals["throttle_flow"] * r.node_h[i_src] + float(path.columns["heat"].sum())
+            + r.totals.get("reheater_spray_flow", 0.0) * r.totals.get("spray_water_enthalpy", 0.0))
     e_bleed = float((r.extraction_flow * r.extraction_h).sum())
     e_exh = 0.0
     for n in model.exhaust_nodes:
         j = r.node_names.index(n)
-        m = sum(r.group_flow[k] for k in range(len(r.group_names)) if r.group_outlet[k] == n)
+        m = sum(f for f, out in zip(path.columns["flow"], path.outlet) if out == n)
         e_exh += m * r.node_h[j]
-    return e_in - r.totals["shaft_power"] - e_bleed - e_exh
+    return e_in - float(path.columns["power"].sum()) - e_bleed - e_exh

@@ -281,9 +281,10 @@ class Condenser(Component):
         m_w = march.setting(self, "cooling_water_flow", self.m_water_design)
         if self.tower is not None:
             T_wb = march.setting(self, "wet_bulb_temperature", self.tower["wet_bulb"])
-            key = ("approach", self.name)
-            T_in = self.cold_water(T_wb, circuit_duty, m_w, march.scratch.get(key))
-            march.scratch[key] = T_in - T_wb
+            # the search starts from the design approach: the same start at every
+            # evaluation, so an answer never depends on the evaluations before it
+            T_in = self.cold_water(T_wb, circuit_duty, m_w,
+                                   self.T_in_design - self.tower["wet_bulb"])
         else:
             T_in = march.setting(self, "inlet_temperature", self.T_in_design)
         return self.state(duty, T_in, m_w, cf)

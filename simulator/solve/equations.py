@@ -191,9 +191,6 @@ class PointEquations:
         self._resume = 0  # the node a Jacobian column's march starts at
         self._resume_from: dict = {}  # its kept states, by node
         self._last = None
-        # what kinds keep between evaluations to start their own searches from (a
-        # cooling tower's last approach); never part of an answer beyond rounding
-        self.scratch: dict = {}
         self.set_conditions(cond)
 
     def set_conditions(self, cond: Conditions) -> None:

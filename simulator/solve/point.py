@@ -572,6 +572,11 @@ def _columns(declared, rows) -> dict:
     return out
 
 
+def cond_spray(eq) -> bool:
+    """Whether the point has a superheater spray."""
+    return bool(eq.cond.superheater_spray)
+
+
 def _spray_enthalpy(model, st) -> float:
     """Enthalpy [J/kg] of attemperator spray water: after the spray pump."""
     fw = st.get("feedwater")
@@ -622,6 +627,10 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
     boiler = perf.heat_added(m_T, h_T, fw["h_feedwater"], reheat)
     if eq.sh_from_pump:  # superheater spray water from the pump, not the final feedwater
         boiler += eq.sh_from_pump * (fw["h_feedwater"] - _spray_enthalpy(model, st))
+    if eq.added or cond_spray(eq):
+        totals["reheater_spray_flow"] = sum(eq.added.values())
+        totals["superheater_spray_flow"] = eq.cond.superheater_spray or 0.0
+        totals["spray_water_enthalpy"] = _spray_enthalpy(model, st)
     totals["final_feedwater_temperature"] = fw["T_feedwater"]
     totals["heat_added"] = boiler
     totals["heat_rate"] = perf.heat_rate(boiler, P_gen)

@@ -55,6 +55,12 @@ TOTALS = (
            "generator output, pump work in the feedwater (ASME PTC 6 terms; J/J, x 3600 = "
            "kJ/kWh)", label="turbine-cycle heat rate (gross)"),
     Column("pump_power", "W", "shaft power of all pumps of the feedwater train"),
+    Column("reheater_spray_flow", "kg/s", "attemperator spray into the reheater (only with "
+           "a spray)"),
+    Column("superheater_spray_flow", "kg/s", "attemperator spray into the superheater (only "
+           "with a spray)"),
+    Column("spray_water_enthalpy", "J/kg", "enthalpy of the spray water after the spray pump "
+           "(only with a spray)"),
     Column("pump_drive_turbine_power", "W", "power of the turbines that drive pumps "
            "(feed-pump turbines; only with one)"),
     Column("turbine_driven_pump_power", "W", "shaft power of the pumps driven by those "
