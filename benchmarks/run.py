@@ -596,6 +596,10 @@ TARGETS = [
     ("warm exponent, 10-200 groups", ("scaling", "warm_exponent"), 1.15, True, ""),
     ("peak memory of the profile, 2 workers", ("profile", "workers_2", "peak_memory_mb"),
      200.0, True, "MB"),
+    # the issue's own wording: "peak memory of any one process"; the bound above
+    # (the three processes summed, shared pages counted in each) is the stricter
+    ("peak memory of any one process, profile on 2 workers",
+     ("profile", "workers_2", "largest_process_mb"), 200.0, True, "MB"),
     ("largest relative difference to plain dense Newton",
      ("accuracy", "largest_relative_difference"), 1e-9, True, ""),
     ("points plain Newton solves that the study path fails",
