@@ -482,10 +482,7 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
         eq.bleeds, st["bleed_flow"], eq.bleed_control)}, heater_states, steam,
         st.get("node_records", {}))
     late = []
-    for kind in KINDS.values():
-        comps = model.of_kind(kind)
-        if not kind.results or not comps:
-            continue
+    for kind, comps in _result_kinds(model):
         if kind.reads_totals:
             late.append((kind, comps))
             continue
@@ -520,6 +517,18 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
         valve_mode=cond.valve_mode, pressure_mode=cond.pressure_mode, backend=steam.name,
         tables=tables, totals=totals,
         heaters=list(heater_states.values()), unknowns=nr.x, jacobian=nr.jacobian)
+
+
+def _result_kinds(model) -> list:
+    """``(kind, its components)`` of every registered kind with results that the
+    model has, in registry order; found once per model (kept in its solver cache)."""
+    key = ("result kinds",)
+    found = model.solver_cache.get(key)
+    if found is None:
+        found = [(kind, comps) for kind in KINDS.values()
+                 if kind.results and (comps := model.of_kind(kind))]
+        model.solver_cache[key] = found
+    return found
 
 
 class PointView:
