@@ -287,27 +287,36 @@ def _profile_run(case: Path, workers: int, quick: bool) -> dict:
         if quick:
             cmd += ["--limit", "876"]
         # peak memory of the study process and its workers: time -v is not on
-        # every machine, so the child reports its own and its children's maxrss
+        # every machine, so the child reports its own and its children's peak.  Its
+        # own is the high-water mark of its address space (VmHWM): ru_maxrss
+        # survives exec, so it would report this benchmark process's own peak
+        # whenever that is the larger (it was: 104 MB for a study of 84 MB)
         wrapper = ("import resource, runpy, sys; sys.argv = ['partload'] + sys.argv[1:]; "
                    "code = 0\n"
                    "try:\n    runpy.run_module('partload.cli', run_name='__main__')\n"
                    "except SystemExit as e:\n    code = e.code or 0\n"
                    "s = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss\n"
+                   "try:\n    s = int(next(line.split()[1] for line in open('/proc/self/status')"
+                   " if line.startswith('VmHWM:')))\n"
+                   "except (OSError, StopIteration, ValueError, IndexError):\n    pass\n"
                    "c = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss\n"
                    "print('PEAK_KB', s, c, file=sys.stderr)\nsys.exit(code)")
         t = time.perf_counter()
         proc = subprocess.run([sys.executable, "-c", wrapper, *cmd[3:]], cwd=ROOT,
                               capture_output=True, text=True, timeout=900, env=_child_env())
         wall = time.perf_counter() - t
-        peak = None
+        peak = largest = None
         for line in proc.stderr.splitlines():
             if line.startswith("PEAK_KB"):
                 _, s_kb, c_kb = line.split()
                 # upper bound of the total: the study process plus each worker at
-                # the largest worker's peak (ru_maxrss of children is their maximum)
+                # the largest worker's peak (ru_maxrss of children is their maximum;
+                # forked workers count the pages they share with the study process)
                 peak = (int(s_kb) + (workers * int(c_kb) if workers > 1 else 0)) / 1024.0
+                largest = max(int(s_kb), int(c_kb) if workers > 1 else 0) / 1024.0
         return {
             "wall_s": wall, "returncode": proc.returncode, "peak_memory_mb": peak,
+            "largest_process_mb": largest,
             "points": 876 if quick else 8760,
             "file_mb": target.stat().st_size / 2**20 if target.exists() else None,
             "stderr_tail": proc.stderr.strip().splitlines()[-3:],
@@ -326,9 +335,11 @@ def bench_profile(quick: bool) -> dict:
         runs = [_profile_run(case, workers, quick) for _ in range(repeats)]
         walls = [r["wall_s"] for r in runs]
         peaks = [r["peak_memory_mb"] for r in runs if r["peak_memory_mb"] is not None]
+        largest = [r["largest_process_mb"] for r in runs if r.get("largest_process_mb")]
         out[f"workers_{workers}"] = {
             **runs[-1], "wall_s": statistics.median(walls), "wall_s_runs": walls,
             "peak_memory_mb": max(peaks) if peaks else None,
+            "largest_process_mb": max(largest) if largest else None,
             "returncode": max(r["returncode"] for r in runs), "repeats": repeats}
     return out
 
@@ -585,6 +596,10 @@ TARGETS = [
     ("warm exponent, 10-200 groups", ("scaling", "warm_exponent"), 1.15, True, ""),
     ("peak memory of the profile, 2 workers", ("profile", "workers_2", "peak_memory_mb"),
      200.0, True, "MB"),
+    # the issue's own wording: "peak memory of any one process"; the bound above
+    # (the three processes summed, shared pages counted in each) is the stricter
+    ("peak memory of any one process, profile on 2 workers",
+     ("profile", "workers_2", "largest_process_mb"), 200.0, True, "MB"),
     ("largest relative difference to plain dense Newton",
      ("accuracy", "largest_relative_difference"), 1e-9, True, ""),
     ("points plain Newton solves that the study path fails",
@@ -732,7 +747,8 @@ def _print(report: dict) -> None:
     for k, v in report.get("profile", {}).items():
         if isinstance(v, dict):
             print(f"profile {k}: {v['points']} points in {v['wall_s']:.1f} s, peak "
-                  f"{v['peak_memory_mb']} MB, exit {v['returncode']}")
+                  f"{v['peak_memory_mb']} MB (largest process "
+                  f"{v.get('largest_process_mb')} MB), exit {v['returncode']}")
 
 
 if __name__ == "__main__":

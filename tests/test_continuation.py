@@ -52,6 +52,22 @@ def test_fit_reproduces_a_quadratic_with_enough_points():
     np.testing.assert_allclose(fit.predict("f", t), f(t), rtol=1e-10)
 
 
+def test_fit_keeps_the_last_points_in_order():
+    # hand count: after KEEP + 5 points the first five are forgotten, the rest kept
+    # oldest first; the prediction then fits the kept ones only (a plane through
+    # the latest points, exact whatever the forgotten ones were)
+    fit = SolutionFit()
+    n = SolutionFit.KEEP + 5
+    for k in range(n):
+        t = np.array([0.4 + 0.005 * k, 1.0 + 0.01 * (k % 3), 1, 1, 1.0])
+        x = [1e6] if k < 5 else [2.0 + 3.0 * t[0] - t[1]]  # the forgotten ones are off
+        fit.add("f", t, _result(x))
+    assert len(fit.numbers) == SolutionFit.KEEP
+    np.testing.assert_array_equal(fit.numbers[:, 0], 0.4 + 0.005 * np.arange(5, n))
+    t = np.array([0.3, 1.005, 1, 1, 1.0])
+    np.testing.assert_allclose(fit.predict("f", t), [2.0 + 3.0 * 0.3 - 1.005], rtol=1e-9)
+
+
 def test_fit_forgets_another_family():
     # a point of another family (other heaters out, other unknowns) starts afresh
     fit = SolutionFit()

@@ -15,6 +15,7 @@ from __future__ import annotations
 import contextlib
 import functools
 import math
+import threading
 
 import numpy as np
 
@@ -98,16 +99,22 @@ def valve_points(model: Model, cond: Conditions, steam: SteamTables | str | None
 
 
 _BLAS: list = []  # the process's BLAS thread controller, made on first use
+_ON_ONE = threading.local()  # .inside: this thread runs in one_blas_thread already
 
 
+@contextlib.contextmanager
 def one_blas_thread():
     """A context in which the BLAS libraries numpy uses run on one thread.
 
     The systems here are small (tens to a few hundred unknowns): threads of a
     multi-threaded BLAS then cost more than they save, and on a busy machine a
     solve waits for them (threadpoolctl; a no-op without it).  The previous
-    thread counts come back on leaving.
+    thread counts come back on leaving.  Inside it already (a study's chunk
+    around its points), entering again costs nothing.
     """
+    if getattr(_ON_ONE, "inside", False):
+        yield
+        return
     if not _BLAS:
         try:
             from threadpoolctl import ThreadpoolController
@@ -115,9 +122,14 @@ def one_blas_thread():
         except Exception:  # noqa: BLE001 - threadpoolctl missing or failing: leave BLAS as is
             _BLAS.append(None)
     blas = _BLAS[0]
-    if blas is None or not blas.lib_controllers:
-        return contextlib.nullcontext()
-    return blas.limit(limits=1)
+    limit = (contextlib.nullcontext() if blas is None or not blas.lib_controllers
+             else blas.limit(limits=1))
+    _ON_ONE.inside = True
+    try:
+        with limit:
+            yield
+    finally:
+        _ON_ONE.inside = False
 
 
 def _on_one_blas_thread(f):
@@ -486,10 +498,7 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
         eq.bleeds, st["bleed_flow"], eq.bleed_control)}, heater_states, steam,
         st.get("node_records", {}))
     late = []
-    for kind in KINDS.values():
-        comps = model.of_kind(kind)
-        if not kind.results or not comps:
-            continue
+    for kind, comps in _result_kinds(model):
         if kind.reads_totals:
             late.append((kind, comps))
             continue
@@ -524,6 +533,18 @@ def build_result(model, cond, steam, eq, nr, st) -> PointResult:
         valve_mode=cond.valve_mode, pressure_mode=cond.pressure_mode, backend=steam.name,
         tables=tables, totals=totals,
         heaters=list(heater_states.values()), unknowns=nr.x, jacobian=nr.jacobian)
+
+
+def _result_kinds(model) -> list:
+    """``(kind, its components)`` of every registered kind with results that the
+    model has, in registry order; found once per model (kept in its solver cache)."""
+    key = ("result kinds",)
+    found = model.solver_cache.get(key)
+    if found is None:
+        found = [(kind, comps) for kind in KINDS.values()
+                 if kind.results and (comps := model.of_kind(kind))]
+        model.solver_cache[key] = found
+    return found
 
 
 class PointView:

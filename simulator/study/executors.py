@@ -128,20 +128,26 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
     ex = ProcessPoolExecutor(max_workers=n, mp_context=_default_context(),
                              initializer=init_worker, initargs=(spec,))
     pending = set()
-    handled = set()
+    # chunks handled, by index: a handled future is not kept, so that its arrays are
+    # freed once written (keeping them held the whole study in memory)
+    handled: set[int] = set()
+    chunk_of = {}
     try:
         for c in todo:
-            pending.add(ex.submit(solve_chunk_task, spec, c, plan.conditions[c.start:c.stop]))
+            fut = ex.submit(solve_chunk_task, spec, c, plan.conditions[c.start:c.stop])
+            chunk_of[fut] = c.index
+            pending.add(fut)
         while pending:
             done, pending = wait(pending, return_when=FIRST_COMPLETED)
             for fut in done:
-                handled.add(fut)
+                handled.add(chunk_of.pop(fut))
                 handle(_chunk_of(fut))
+            done = fut = None  # no reference to a handled chunk stays
     except KeyboardInterrupt:
         # keep what is finished: let running chunks end, drop the queued ones
         ex.shutdown(wait=True, cancel_futures=True)
         for fut in pending:
-            if fut not in handled and fut.done() and not fut.cancelled() \
+            if chunk_of.get(fut) not in handled and fut.done() and not fut.cancelled() \
                     and fut.exception() is None:
                 handle(fut.result())
         raise

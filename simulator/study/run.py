@@ -20,7 +20,7 @@ import numpy as np
 from ..errors import ConvergenceError, SolveError
 from ..plant.case import Conditions
 from ..plant.model import Model, build_model
-from ..solve.point import PointResult, solve_point
+from ..solve.point import PointResult, one_blas_thread, solve_point
 from ..steam.if97 import get_backend
 from ..store.layout import CAUTION_BYTES, CODES_BYTES, ResultLayout, cut_text
 from .plan import Chunk
@@ -157,35 +157,56 @@ class SolutionFit:
 
     def __init__(self):
         self.family = None
-        self.numbers: list[np.ndarray] = []
-        self.solutions: list[np.ndarray] = []
         self.valves = None
+        # the kept points, oldest first, as the first `_n` rows of two arrays that
+        # are allocated once per family (no arrays built anew at every point)
+        self._T = np.empty((0, 0))
+        self._X = np.empty((0, 0))
+        self._n = 0
+        self._varying = np.zeros(0, dtype=bool)
+
+    @property
+    def numbers(self) -> np.ndarray:
+        """The numbers of the kept points, oldest first [-]."""
+        return self._T[:self._n]
+
+    @property
+    def solutions(self) -> np.ndarray:
+        """The unknowns of the kept points, oldest first."""
+        return self._X[:self._n]
 
     def add(self, family: tuple, numbers: np.ndarray, r: PointResult) -> None:
         """Keep the solved point ``r`` of ``family`` with its ``numbers`` [-]."""
         if r.unknowns is None:
             return
+        x = np.asarray(r.unknowns, dtype=float)
         if (family != self.family or r.wide_open_valves != self.valves
-                or (self.solutions and len(r.unknowns) != len(self.solutions[0]))):
+                or (self._n and x.shape[0] != self._X.shape[1])):
             self.family, self.valves = family, r.wide_open_valves
-            self.numbers, self.solutions = [], []
-        self.numbers.append(numbers)
-        self.solutions.append(np.array(r.unknowns, dtype=float))
-        if len(self.numbers) > self.KEEP:
-            del self.numbers[0], self.solutions[0]
+            self._T = np.empty((self.KEEP, len(numbers)))
+            self._X = np.empty((self.KEEP, x.shape[0]))
+            self._n = 0
+        if self._n == self.KEEP:  # forget the oldest
+            self._T[:-1] = self._T[1:]
+            self._X[:-1] = self._X[1:]
+            self._n -= 1
+        self._T[self._n] = numbers
+        self._X[self._n] = x
+        self._n += 1
+        # numbers that differ between the kept points (an exact test, as np.ptp > 0)
+        T = self._T[:self._n]
+        self._varying = np.any(T != T[0], axis=0)
 
     def predict(self, family: tuple, numbers: np.ndarray) -> np.ndarray | None:
         """Predicted unknowns of a point of ``family`` at ``numbers`` [-], or ``None``
         when fewer than :attr:`NEAR` + 1 points of the family are kept."""
-        if family != self.family or len(self.numbers) <= self.NEAR:
+        n = self._n
+        if family != self.family or n <= self.NEAR:
             return None
-        T = np.array(self.numbers)
-        X = np.array(self.solutions)
-        d = T - numbers
-        varying = np.ptp(T, axis=0) > 0.0
-        d = d[:, varying]
+        X = self._X[:n]
+        d = (self._T[:n] - numbers)[:, self._varying]
         dist = np.einsum("ij,ij->i", d, d)
-        if len(X) >= self.NEAR_QUADRATIC and d.shape[1] <= 2:
+        if n >= self.NEAR_QUADRATIC and d.shape[1] <= 2:
             near = np.argsort(dist, kind="stable")[:self.NEAR_QUADRATIC]
             t = d[near]
             cols = [np.ones(len(near))] + [t[:, a] for a in range(t.shape[1])]
@@ -320,19 +341,20 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
         except ImportError:  # the worker lacks the module: leave count at -1
             check = None
     chain = Continuation(model, steam, spec.check_limits)
-    for i in solve_order(conditions):
-        cond = conditions[i]
-        try:
-            r = chain.solve(cond)
-        except SolveError as exc:
-            layout.fail(arrays, i, exc)
-            continue
-        except Exception as exc:  # noqa: BLE001 - recorded per point; the study goes on
-            layout.fail(arrays, i, exc, internal=True)
-            continue
-        layout.fill(arrays, i, r)
-        if check is not None:
-            _record_cautions(arrays, i, check, model, cond, r, layout.caution_codes)
+    with one_blas_thread():  # once for the chunk, not at every point
+        for i in solve_order(conditions):
+            cond = conditions[i]
+            try:
+                r = chain.solve(cond)
+            except SolveError as exc:
+                layout.fail(arrays, i, exc)
+                continue
+            except Exception as exc:  # noqa: BLE001 - recorded per point; the study goes on
+                layout.fail(arrays, i, exc, internal=True)
+                continue
+            layout.fill(arrays, i, r)
+            if check is not None:
+                _record_cautions(arrays, i, check, model, cond, r, layout.caution_codes)
     if CHUNK_PAUSE > 0.0:
         time.sleep(CHUNK_PAUSE)
     return ChunkResult(chunk.index, chunk.start, chunk.stop, arrays,
