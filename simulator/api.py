@@ -121,7 +121,7 @@ def load_case(path: str | Path) -> Case:
 _LOADS = ("throttle_flow", "throttle_flow_fraction", "output", "output_fraction")
 _SETTINGS = ("valve_mode", "pressure_mode", "throttle_pressure", "throttle_temperature",
              "reheat_temperature", "exhaust_pressure", "minimum_throttle_pressure",
-             "valves_open")
+             "valves_open", "reheater_spray", "superheater_spray")
 _MODES = ("valve_mode", "pressure_mode")
 #: keyword arguments of :func:`point`, with their units
 CONDITION_KEYS = {
@@ -132,6 +132,8 @@ CONDITION_KEYS = {
     "throttle_pressure": "Pa (held, pressure_mode 'fixed'; the top of a 'program')",
     "minimum_throttle_pressure": "Pa (the bottom of a pressure 'program')",
     "valves_open": "governing-stage valves wide open at sliding pressure",
+    "reheater_spray": "kg/s (attemperator water into the reheater)",
+    "superheater_spray": "kg/s (attemperator water into the superheater)",
     "throttle_temperature": "K", "reheat_temperature": "K", "exhaust_pressure": "Pa",
     "heaters_out": "heater names", "check_limits": "bool", "backend": "'seuif97' or 'iapws'",
 }
@@ -201,7 +203,8 @@ def _with_changes(model: Model, base: Conditions, changes: dict[str, Any]) -> Co
 
 # SI unit of each keyword of point() that a case file writes with a unit
 _SI_UNITS = {"throttle_flow": "kg/s", "output": "W", "throttle_pressure": "Pa",
-             "minimum_throttle_pressure": "Pa",
+             "minimum_throttle_pressure": "Pa", "reheater_spray": "kg/s",
+             "superheater_spray": "kg/s",
              "throttle_temperature": "K", "reheat_temperature": "K", "exhaust_pressure": "Pa"}
 
 
