@@ -185,9 +185,11 @@ def test_paired_bleeds_at_unequal_pressures_refused():
 
 
 def test_heater_out_closes_both_bleeds():
+    from partload.plant.case import read_conditions
     m = _model(PAIRED)
-    r = solve_point(m, Conditions(throttle_flow=40.0, heaters_out=frozenset({"LP"}),
-                                  extraction_control=(("EA", ("closed", 0.0)),
-                                                      ("EB", ("closed", 0.0)))))
+    cond = read_conditions({"operation": {"throttle_flow": "40 kg/s"},
+                            "heaters": {"LP": {"in_service": False}}}, m)
+    assert dict(cond.extraction_control)["EB"] == ("closed", 0.0)
+    r = solve_point(m, cond)
     assert r.table("extractions")["EA"]["flow"] == 0.0
     assert r.table("extractions")["EB"]["flow"] == 0.0

@@ -240,7 +240,7 @@ class Component:
 
     def point_row(self, point) -> tuple:
         """Values of :attr:`columns` at a solved point (kinds off the steam path);
-        ``point`` is a :class:`simulator.solve.point.PointView`."""
+        ``point`` is a :class:`simulator.solve.build.PointView`."""
         return ()
 
     def describe(self) -> list[str]:

@@ -47,6 +47,12 @@ class SquareLawDrop:
 
     drop_law: str = DROP_LAWS[0]
 
+    @staticmethod
+    def read_drop_law(rr) -> str:
+        """The table's ``pressure_drop_law`` (default the flow-squared law)."""
+        return rr.string("pressure_drop_law", default=DROP_LAWS[0], choices=DROP_LAWS) or \
+            DROP_LAWS[0]
+
     def calibrate_drop(self, m, p_in, h_in, p_out, steam) -> None:
         """Fix the design drop [Pa] at flow ``m`` [kg/s] and inlet ``(p_in, h_in)``."""
         self.dp_design, self.m_design, self.v_design = p_in - p_out, m, steam.v_ph(p_in, h_in)

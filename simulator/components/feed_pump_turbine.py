@@ -21,6 +21,7 @@ from typing import ClassVar
 
 from ..errors import InputError
 from ..physics.expansion import expansion_end, moisture_from_enthalpy
+from ..steam.constants import H_ABOVE_SAT_VAP
 from .base import Column, ReadContext, SteamPathComponent, Tunable
 from .reading import edge_names
 
@@ -90,7 +91,8 @@ class FeedPumpTurbine(SteamPathComponent):
         s_in = steam.s_ph(p_in, h_in)
         dh_s = h_in - steam.h_ps(p_out, s_in)
         h_l, h_v = steam.h_liq_sat(p_out), steam.h_vap_sat(p_out)
-        y_in = moisture_from_enthalpy(h_in, steam.h_liq_sat(p_in), steam.h_vap_sat(p_in))
+        y_in = (0.0 if h_in >= H_ABOVE_SAT_VAP else  # surely dry: no property call
+                moisture_from_enthalpy(h_in, steam.h_liq_sat(p_in), steam.h_vap_sat(p_in)))
         h_out = expansion_end(h_in, dh_s, self.efficiency, y_in, h_l, h_v)
         return h_out, moisture_from_enthalpy(h_out, h_l, h_v)
 

@@ -40,11 +40,11 @@ class Pipe(SquareLawDrop, SteamPathComponent):
     @classmethod
     def read(cls, rr, ctx: ReadContext):
         name, a, b = edge_names(rr, cls.table)
-        law = rr.string("pressure_drop_law", default=DROP_LAWS[0], choices=DROP_LAWS)
+        law = cls.read_drop_law(rr)
         rr.finish()
         if None in (name, a, b):
             return None
-        return cls(name, a, b, drop_law=law or DROP_LAWS[0])
+        return cls(name, a, b, drop_law=law)
 
     def calibrate(self, m, p_in, h_in, p_out, steam, model) -> float:
         self.calibrate_drop(m, p_in, h_in, p_out, steam)

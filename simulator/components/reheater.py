@@ -54,11 +54,11 @@ class Reheater(SquareLawDrop, SteamPathComponent):
     def read(cls, rr, ctx: ReadContext):
         name, a, b = edge_names(rr, cls.table)
         T_out = rr.quantity("outlet_temperature", "temperature", lo=T_MIN, hi=T_MAX, reason=IF97)
-        law = rr.string("pressure_drop_law", default=DROP_LAWS[0], choices=DROP_LAWS)
+        law = cls.read_drop_law(rr)
         rr.finish()
         if None in (name, a, b, T_out):
             return None
-        return cls(name, a, b, T_out, drop_law=law or DROP_LAWS[0])
+        return cls(name, a, b, T_out, drop_law=law)
 
     def check_design(self, ctx: ReadContext) -> None:
         p = (ctx.design_pressure or {}).get(self.outlet)
