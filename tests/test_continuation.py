@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from partload.plant.case import Conditions, load_case
+from partload.solve.equations import equations_for
 from partload.solve.point import solve_point
 from partload.solve.result import PointResult
 from partload.steam.if97 import get_backend
@@ -89,6 +90,7 @@ def test_profile_points_from_the_fit_equal_points_solved_alone():
     chain = Continuation(case.model, get_backend("seuif97"))
     plain = Continuation(case.model, get_backend("seuif97"))
     plain.fitted = False
+    chain.renew_jacobian = None  # the fit's own effect on the counts (no Jacobian columns)
     ev_fit, ev_plain = [], []
     for i in solve_order(conds):
         warm = chain.solve(conds[i])
@@ -113,3 +115,29 @@ def test_sweep_keeps_the_load_predictor(reheat_model):
         warm = chain.solve(cond)
         cold = solve_point(reheat_model, cond, broyden=False)
         np.testing.assert_allclose(warm.node_p, cold.node_p, rtol=1e-9)
+
+
+def test_renewed_jacobian_is_the_finite_difference_jacobian_at_the_answer():
+    # a point of the profile that took many evaluations hands the next the
+    # forward-difference Jacobian at its answer: equal bit for bit to the one formed
+    # afresh there (an identity of the two paths), its columns counted in the point's
+    # evaluations; and every answer still equals the point solved cold to 1e-9
+    case = load_case(ROOT / "cases" / "reheat_hourly_profile.toml")
+    plan = plan_study(case)
+    conds = plan.conditions[:60]
+    chain = Continuation(case.model, get_backend("seuif97"))
+    chain.renew_jacobian = 5
+    renewed = 0
+    for i in solve_order(conds):
+        r = chain.solve(conds[i])
+        eq = equations_for(case.model, conds[i], get_backend("seuif97"),
+                           wide_open=r.wide_open_valves)
+        x = np.asarray(r.unknowns)
+        _, J = eq.fd_jacobian(eq.residuals, x, eq.residuals(x))
+        if np.array_equal(J, r.jacobian):
+            renewed += 1
+            assert r.evaluations >= 5 + eq.n + 1
+        cold = solve_point(case.model, conds[i], broyden=False)
+        np.testing.assert_allclose(r.node_p, cold.node_p, rtol=1e-9)
+    # the Broyden-updated Jacobian is never the exact one; the renewed ones are
+    assert 5 <= renewed < len(conds)

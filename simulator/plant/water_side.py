@@ -294,39 +294,55 @@ class FeedwaterMarch:
             "pump_powers": pump_powers,
             "pump_outlet_enthalpy": pump_out_h,
         }
+        # what completing the detail needs (add_detail), kept with the summary
+        summary["march"] = (bleed, h_ext, drain_flow, through, p_sh, p_win, h_in, h_out,
+                            h_drain, duty, release, residuals, T_sat, T_in, T_out, bypass,
+                            p_c)
         if detail:
-            summary["T_feedwater"] = steam.T_ph(p_w, h_w)
-            states = {}
-            s_of = {st[2]: i for i, st in enumerate(steps) if st[2] >= 0}
-            for kind, _obj, k, name in steps:
-                if kind == 0:
-                    continue
-                if kind == 3:
-                    mw, hw = bypass[name]
-                    states[name] = HeaterState(name, False, self.heaters[name].heater_type,
-                                               m_water=mw, h_in=hw, h_out=hw)
-                    continue
-                hs = HeaterState(name, True, self.heaters[name].heater_type, bleed=bleed[k],
-                                 shell_pressure=p_sh[k],
-                                 h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
-                                 h_bleed=h_ext[k],
-                                 m_water=through[s_of[k]],
-                                 drain_flow=drain_flow[k], duty=duty[k],
-                                 steam_release=release[k], residual=residuals[k])
-                hs.T_sat = T_sat[k] if kind == 1 else steam.T_sat(p_sh[k])
-                if kind == 1:
-                    hs.T_in, hs.T_out = T_in[k], T_out[k]
-                    hs.T_drain = steam.T_ph(p_sh[k], h_drain[k])
-                    hs.ttd = hs.T_sat - hs.T_out
-                    hs.dca = hs.T_drain - hs.T_in
-                else:
-                    hs.T_in = steam.T_ph(p_sh[k], h_in[k])
-                    hs.T_out = hs.T_drain = hs.T_sat
-                states[name] = hs
-            summary["heaters"] = states
-            summary["problems"] = self._problems(steam, steps, p_sh, p_win, T_in, T_out,
-                                                 h_in, h_out, p_c)
+            self.add_detail(steam, summary)
         return residuals, summary
+
+    def add_detail(self, steam, summary: dict) -> dict:
+        """Complete ``summary`` of a march by :meth:`evaluate` with the detail:
+        ``T_feedwater`` [K], each heater's :class:`HeaterState` (``heaters``) and
+        the water-side ``problems``; from the march's kept values, without marching
+        again.  Returns ``summary``."""
+        (bleed, h_ext, drain_flow, through, p_sh, p_win, h_in, h_out, h_drain, duty,
+         release, residuals, T_sat, T_in, T_out, bypass, p_c) = summary["march"]
+        steps = self._steps
+        p_w, h_w = summary["p_feedwater"], summary["h_feedwater"]
+        summary["T_feedwater"] = steam.T_ph(p_w, h_w)
+        states = {}
+        s_of = {st[2]: i for i, st in enumerate(steps) if st[2] >= 0}
+        for kind, _obj, k, name in steps:
+            if kind == 0:
+                continue
+            if kind == 3:
+                mw, hw = bypass[name]
+                states[name] = HeaterState(name, False, self.heaters[name].heater_type,
+                                           m_water=mw, h_in=hw, h_out=hw)
+                continue
+            hs = HeaterState(name, True, self.heaters[name].heater_type, bleed=bleed[k],
+                             shell_pressure=p_sh[k],
+                             h_in=h_in[k], h_out=h_out[k], h_drain=h_drain[k],
+                             h_bleed=h_ext[k],
+                             m_water=through[s_of[k]],
+                             drain_flow=drain_flow[k], duty=duty[k],
+                             steam_release=release[k], residual=residuals[k])
+            hs.T_sat = T_sat[k] if kind == 1 else steam.T_sat(p_sh[k])
+            if kind == 1:
+                hs.T_in, hs.T_out = T_in[k], T_out[k]
+                hs.T_drain = steam.T_ph(p_sh[k], h_drain[k])
+                hs.ttd = hs.T_sat - hs.T_out
+                hs.dca = hs.T_drain - hs.T_in
+            else:
+                hs.T_in = steam.T_ph(p_sh[k], h_in[k])
+                hs.T_out = hs.T_drain = hs.T_sat
+            states[name] = hs
+        summary["heaters"] = states
+        summary["problems"] = self._problems(steam, steps, p_sh, p_win, T_in, T_out,
+                                             h_in, h_out, p_c)
+        return summary
 
     def _problems(self, steam, steps, p_sh, p_win, T_in, T_out, h_in, h_out,
                   p_c) -> list[tuple[str, str]]:

@@ -137,6 +137,10 @@ class PointView:
 
 def _columns(declared, rows) -> dict:
     """Column arrays from row tuples, by the declared dtype."""
+    if rows and all(col.dtype == "f8" for col in declared):
+        # one conversion for the whole table, each column a copy of its own
+        table = np.array(rows, dtype=float).T.copy()
+        return {col.name: table[k] for k, col in enumerate(declared)}
     out = {}
     for k, col in enumerate(declared):
         values = [row[k] for row in rows]

@@ -460,7 +460,8 @@ class PointEquations:
         if self.demand:
             F[k] = (P_gen - self.cond.output) / self.model.generator.rating
         F = np.array(F)
-        self._last = (xs, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps)
+        self._last = (xs, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps,
+                      summary)
         if not detail:
             return F, None
         return self._detail(*self._last[1:])
@@ -481,8 +482,10 @@ class PointEquations:
             out[c.name] = c.node_state(duty[c.name], self, out, circuit[c.name])
         return out
 
-    def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps):
-        """The full state of a marched point, as a dict (see :func:`build_result`)."""
+    def _detail(self, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps,
+                summary):
+        """The full state of a marched point, as a dict (see :func:`build_result`);
+        the water side's detail is completed from its march (``summary``)."""
         steam = self.steam
         by_name = {s[0].name: s for s in steps}
         needed = {}  # wide-open drop of each holding control valve at its flow [Pa]
@@ -490,11 +493,8 @@ class PointEquations:
             if c.name not in self.wide_open:
                 _c, i, _j, m, _h, _P, _r = by_name[c.name]
                 needed[c.name] = c.wide_open_drop(m, steam.v_ph(p[i], h[i]))
-        summary = None
-        if self.fw is not None:
-            _, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T - self.sh_from_pump,
-                                          p[self.src], offtakes=self.offtakes,
-                                          detail=True)
+        if summary is not None:
+            summary = self.fw.add_detail(steam, summary)
         records = self.node_states(p, h, M, summary) if self.at_nodes else {}
         state = {"p": p, "h": h, "M": M, "m_T": m_T, "bleed_flow": bleed_flow,
                  "steps": by_name, "shaft": shaft, "P_gen": P_gen,

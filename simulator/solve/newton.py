@@ -103,7 +103,7 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
         F = call(x)
     it = 0
     while True:
-        res = float(np.max(np.abs(F))) if F.size else 0.0
+        res = float(np.abs(F).max()) if F.size else 0.0
         if res <= tol:
             if J is None:
                 J = np.zeros((F.size, x.size))
@@ -153,9 +153,11 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             J = None  # stale Jacobian: form a fresh one and retry
             continue
         s = xt - x
-        if broyden:
-            y = Ft - F
-            J = J + np.outer(y - J @ s, s) / float(s @ s)
+        if broyden:  # J += (y - J s) s^T / (s^T s), in place (J is this solve's own copy)
+            u = Ft - F
+            u -= J @ s
+            u /= float(s @ s)
+            J += u[:, None] * s
             fresh = False
         else:
             J = None

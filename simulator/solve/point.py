@@ -144,7 +144,8 @@ def _on_one_blas_thread(f):
 def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None = None,
                 guess: np.ndarray | None = None, jacobian: np.ndarray | None = None,
                 broyden: bool = True, check_limits: bool = True,
-                neighbour: PointResult | None = None) -> PointResult:
+                neighbour: PointResult | None = None,
+                renew_jacobian: int | None = None) -> PointResult:
     """Solve one operating point.
 
     Parameters
@@ -160,6 +161,10 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
         than the valves wide open can pass
     neighbour : a solved neighbouring point with the same unknowns; its solution
         scaled to this flow and its Jacobian start the iteration (continuation)
+    renew_jacobian : when the solve took at least this many residual evaluations,
+        the result carries a fresh finite-difference Jacobian at the answer
+        (its evaluations counted in the point's) instead of the Broyden-updated one,
+        so that the next point of a chain starts from an exact Jacobian [-]
 
     Raises
     ------
@@ -168,7 +173,8 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     if steam is None or isinstance(steam, str):
         steam = get_backend(steam or "seuif97")
     if cond.pressure_mode == "program":
-        return _solve_program(model, cond, steam, broyden, check_limits, neighbour)
+        return _solve_program(model, cond, steam, broyden, check_limits, neighbour,
+                              renew_jacobian)
     # Control valves hold their inlet pressure unless they would need less than their
     # wide-open drop; then they are wide open and that pressure floats above its
     # setting.  Start from the neighbour's valve states and switch until consistent.
@@ -192,6 +198,9 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     except SolveError as exc:
         raise _with_request(exc, cond, eq) from None
     result = build_result(model, cond, steam, eq, nr, st)
+    if renew_jacobian is not None and nr.evaluations >= renew_jacobian:
+        _, result.jacobian = eq.fd_jacobian(eq.residuals, nr.x, nr.F)
+        result.evaluations += eq.n + 1  # the base march and one per column
     if eq.admission_throttles:
         adm = model.admission
         result.over_capacity = adm.over_capacity(st["admission"], st["p"][eq.src],
@@ -209,7 +218,8 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     return result
 
 
-def _solve_program(model, cond, steam, broyden, check_limits, neighbour) -> PointResult:
+def _solve_program(model, cond, steam, broyden, check_limits, neighbour,
+                   renew_jacobian=None) -> PointResult:
     """A point under a throttle-pressure program: sliding pressure (with the case's
     valves wide open) where that lies between the program's lowest and held
     pressures; held at the nearer of the two where it does not.  Where sliding
@@ -224,6 +234,7 @@ def _solve_program(model, cond, steam, broyden, check_limits, neighbour) -> Poin
     tries: list[float] = []
     try:
         result = solve_point(model, sliding, steam, broyden=broyden, check_limits=False,
+                             renew_jacobian=renew_jacobian,
                              neighbour=near if near is not None and not near.program_held
                              else None)
         p_T = result.totals["throttle_pressure"]
@@ -238,7 +249,7 @@ def _solve_program(model, cond, steam, broyden, check_limits, neighbour) -> Poin
                          minimum_throttle_pressure=None)
         try:
             result = solve_point(model, fixed, steam, broyden=broyden,
-                                 check_limits=check_limits,
+                                 check_limits=check_limits, renew_jacobian=renew_jacobian,
                                  neighbour=near if near is not None and near.program_held
                                  and near.totals["throttle_pressure"] == held else None)
             break
