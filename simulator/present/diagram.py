@@ -23,7 +23,9 @@ is built in:
   the boiler (left), pumps included; every feedwater stream between two items
   is labelled with flow, pressure, temperature and enthalpy.  The feedwater
   pressure is the water side's (pumps set it, a deaerator resets it to its
-  shell pressure, heaters pass it).  Drains are dashed lines under the train.
+  shell pressure, heaters pass it).  Drains are dashed lines under the train,
+  each on a run of its own, labelled with flow and temperature where the label
+  crosses no other drain line (:func:`text_width` estimates a label's width).
 * **Box** (top left): generator output, shaft power, heat added, the heat rate
   with its kind stated, the governing (valve and pressure mode) and the back
   pressure.
@@ -56,6 +58,8 @@ LANE = 16.0  # [px] between bleed-line lanes
 LEFT = 190.0  # [px] left of the throttle node: the boiler and the box
 TOP = 200.0  # [px] to the first steam-path row
 ITEM = 132.0  # [px] between items of the heater train
+LANE_DRAIN = 12.0  # [px] between the horizontal runs of two drains
+DRAIN_FONT = 7.0  # [px] font size of a drain's label
 FONT = "font-family:Helvetica,Arial,sans-serif"
 _UP, _DOWN = "#b2182b", "#1a7837"  # rose, fell (difference view)
 
@@ -161,12 +165,14 @@ class _Svg:
         self.add(f'<text x="{x:.1f}" y="{y:.1f}" text-anchor="{anchor}" fill="{colour}" '
                  f'style="{style}"{c}>{spans}</text>')
 
-    def line(self, points, colour="#000000", width=1.5, dash=None, arrow=False) -> None:
+    def line(self, points, colour="#000000", width=1.5, dash=None, arrow=False,
+             cls=None) -> None:
         pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in points)
         d = f' stroke-dasharray="{dash}"' if dash else ""
         a = f' marker-end="url(#{self.ident})"' if arrow else ""
+        c = f' class="{cls}"' if cls else ""
         self.add(f'<polyline points="{pts}" fill="none" stroke="{colour}" '
-                 f'stroke-width="{width}"{d}{a}/>')
+                 f'stroke-width="{width}"{d}{a}{c}/>')
 
     def poly(self, points, fill, colour="#000000", dash=None, title=None) -> None:
         pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in points)
@@ -384,7 +390,8 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
     _box(svg, model, result, design, fmt, cautions, case_name)
 
     width = max(right, LEFT + (lay.n_columns - 1) * lay.width) + 150
-    height = y_train + 100 + 12 * n_drains
+    # the drains' runs and, under the last, its label
+    height = y_train + 100 + LANE_DRAIN * (n_drains + 1 if n_drains else 0)
     head = title or (f"Heat balance: {model.name}" + (f", case {case_name}" if case_name
                                                      else "")
                      + (" (difference from design in brackets)" if design is not None
@@ -447,8 +454,9 @@ def _water_pressures(model, result, train, states) -> dict:
 
 
 def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_cond, y,
-           x_boiler) -> None:
-    """Condenser, heaters and pumps in water-flow order, streams labelled."""
+           x_boiler) -> int:
+    """Condenser, heaters and pumps in water-flow order, streams labelled; returns the
+    number of drains drawn [-]."""
     p_out = _water_pressures(model, result, train, states)
     dp_out = (_water_pressures(model, design, train, dstates) if design is not None else {})
     # condenser
@@ -466,7 +474,7 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
     svg.text(x_cond + 34, y + 41, fmt(pc, 2, dpc) + [(" kPa", None)], 8)
     prev_x = x_cond - 30
     drain_lane = y + 72
-    n_drains = 0
+    drains: list = []
     for k, name in enumerate(train):
         x = item_x[name]
         h = states.get(name)
@@ -512,20 +520,79 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
                 else:
                     xt = item_x.get(target, x_cond)
                 svg.line([(x - 10, y + 18), (x - 10, drain_lane), (xt + 10, drain_lane),
-                          (xt + 10, y + 18)], "#2171b5", 1.0, "4,3", arrow=True)
-                svg.text(x - 6, drain_lane - 3, [("drain ", None)]
-                         + fmt(h.drain_flow, 2, dh.drain_flow if dh else None)
-                         + [(" kg/s, ", None)]
-                         + fmt(_disp(h.T_drain, "K"), 1,
-                               _disp(dh.T_drain, "K") if dh and dh.in_service else None)
-                         + [(" \u00b0C", None)], 7, "start", colour="#2171b5")
-                drain_lane += 12
-                n_drains += 1
+                          (xt + 10, y + 18)], "#2171b5", 1.0, "4,3", arrow=True, cls="drain")
+                drains.append((x - 10, xt + 10, drain_lane, [("drain ", None)]
+                               + fmt(h.drain_flow, 2, dh.drain_flow if dh else None)
+                               + [(" kg/s, ", None)]
+                               + fmt(_disp(h.T_drain, "K"), 1,
+                                     _disp(dh.T_drain, "K") if dh and dh.in_service else None)
+                               + [(" \u00b0C", None)]))
+                drain_lane += LANE_DRAIN
         prev_x = x - 30
     # final feedwater to the boiler
     _stream_label(svg, fmt, result, design, train, len(train) - 1, p_out, dp_out,
                   (prev_x + x_boiler + 40) / 2, y)
-    return n_drains
+    for (x0, y0), pieces in zip(_place_drain_labels(drains, 10.0, x_cond + 140.0), drains):
+        svg.text(x0, y0, pieces[3], DRAIN_FONT, "start", colour="#2171b5", cls="drain")
+    return len(drains)
+
+
+def text_width(pieces, size: float) -> float:
+    """Estimated width of a line of text [px]: 0.6 em a character, more than the
+    advance of Helvetica's and Arial's digits (0.556 em, from memory) and than the
+    drain labels of the demo models drawn by Chromium in DejaVu Sans (at most
+    0.51 em a character, measured), so an upper bound for labels of digits, units
+    and spaces.
+
+    Parameters
+    ----------
+    pieces : the text, or its ``[(text, colour)]`` pieces [-]
+    size : font size [px]
+    """
+    text = pieces if isinstance(pieces, str) else "".join(t for t, _c in pieces)
+    return 0.6 * size * len(text)
+
+
+def _place_drain_labels(drains, x_min: float, x_max: float) -> list[tuple[float, float]]:
+    """Where each drain's label starts: ``[(x, baseline y)]`` [px].
+
+    A label sits under the horizontal run of its own drain line, at the height of
+    no other label's (the runs are ``LANE_DRAIN`` apart and a label is shorter),
+    so no two labels overlap.  Along that band the only lines are the vertical
+    legs of the drains with lower runs; the label is put where it crosses none of
+    them (and no other label), as near as it can to the right of its own drain's
+    first leg, else to the left of it.
+
+    Parameters
+    ----------
+    drains : ``(x of the leg leaving the heater, x of the leg arriving, y of the
+        run, label pieces)`` of every drain [px, px, px, -]
+    x_min, x_max : the room the labels have, left and right [px]
+    """
+    placed: list[tuple[float, float, float, float]] = []
+    out = []
+    for x_from, _x_to, lane, pieces in drains:
+        w = text_width(pieces, DRAIN_FONT)
+        base = lane + DRAIN_FONT + 2.0
+        top, bottom = base - DRAIN_FONT, base + 0.3 * DRAIN_FONT
+        legs = sorted(x for a, b, run, _p in drains if run > lane for x in (a, b))
+        gap = 3.0  # [px] kept clear round a leg
+        taken = [(x - gap, x + gap) for x in legs] + [
+            (x0, x1) for x0, y0, x1, y1 in placed if y0 < bottom and top < y1]
+        want = x_from + 4.0
+
+        def free(x0, w=w, taken=taken):
+            return x_min <= x0 and x0 + w <= x_max and all(
+                x0 + w <= a or b <= x0 for a, b in taken)
+
+        # candidate starts: the wanted one, and just after or just before each
+        # obstacle; the free one nearest the wanted start, the right side first
+        starts = [want] + [b for _a, b in taken] + [a - w for a, _b in taken]
+        ok = [x0 for x0 in starts if free(x0)]
+        x0 = min(ok, key=lambda v: (abs(v - want), v < want)) if ok else want
+        placed.append((x0, top, x0 + w, bottom))
+        out.append((x0, base))
+    return out
 
 
 def _stream_label(svg, fmt, result, design, train, k, p_out, dp_out, x, y):
