@@ -198,3 +198,40 @@ def test_drain_labels_overlap_neither_each_other_nor_a_drain_line():
             assert 0.0 <= a[0] and a[2] <= width and a[3] <= height - 36, (name, a[4])
     # the demo models have drains to label (7 in the reheat unit alone, its model file)
     assert n_labels >= 7
+
+
+def test_diagram_in_us_units():
+    # hand factors from the definitions of the units (independent of partload.units):
+    # 1 psi = 6894.757 Pa; 1 lb = 0.45359237 kg (exact); 1 Btu (IT) = 1.055056 kJ;
+    # 1 Btu/lb = 2.326 kJ/kg (exact); degF = degC * 9/5 + 32; 1 inHg = 3.386389 kPa
+    case = load_case(ROOT / "cases" / "reheat_top_heater_out.toml")
+    r = solve_point(case.model, case.conditions, case.backend)
+    d = solve_point(case.model, design_conditions(case.model), case.backend)
+    texts = _texts(diagram_svg(case.model, r, case_name=case.name, units="us"))
+    joined = "\n".join(texts)
+    for unit in (" psia", " \u00b0F", " Btu/lb", " klb/h", " Btu/kWh", " inHg"):
+        assert unit in joined, unit
+    for unit in (" bar", " \u00b0C", " kJ/kg", " kg/s", " kJ/kWh", " kPa"):
+        assert unit not in joined, unit
+    t = r.totals
+    assert f"generator output {t['generator_output'] / 1e6:.2f} MW" in texts
+    hr = t["heat_rate"] * 3600 / 1.055056  # J/J -> kJ/kWh -> Btu/kWh
+    assert f"turbine-cycle heat rate {hr:.1f} Btu/kWh" in texts
+    flow = t["throttle_flow"] * 3.6 / 0.45359237  # kg/s -> klb/h
+    assert any(x.startswith(f"throttle {flow:.2f} klb/h") for x in texts)
+    nodes = r.tables["nodes"]
+    i = nodes.names.index("throttle")
+    p = nodes.columns["pressure"][i] / 6894.757
+    T = (nodes.columns["temperature"][i] - 273.15) * 9 / 5 + 32
+    h = nodes.columns["enthalpy"][i] / 2326.0
+    for label in (f"{p:.2f} psia", f"{T:.1f} \u00b0F", f"{h:.1f} Btu/lb"):
+        assert label in texts, label
+    # the back pressure of the case in inHg
+    p_back = nodes.columns["pressure"][nodes.names.index("condenser")] / 3386.389
+    assert f"back pressure {p_back:.2f} inHg" in joined
+    # the difference view in US units: the output's change stays in MW, the heat
+    # rate's is in Btu/kWh (hand calculation from the two solved totals)
+    texts = _texts(diagram_svg(case.model, r, case_name=case.name, design=d, units="us"))
+    dhr = (t["heat_rate"] - d.totals["heat_rate"]) * 3600 / 1.055056
+    assert any(x.startswith(f"turbine-cycle heat rate {hr:.1f} ({dhr:+.1f}) Btu/kWh")
+               for x in texts)
