@@ -171,10 +171,11 @@ def _drain_diagrams():
            solve_point(case.model, design_conditions(case.model), case.backend))
 
 
-def test_drain_labels_overlap_neither_each_other_nor_a_drain_line():
+@pytest.mark.parametrize("units", ["metric", "us"])
+def test_drain_labels_overlap_neither_each_other_nor_a_drain_line(units):
     n_labels = 0
     for name, model, r, design in _drain_diagrams():
-        svg = diagram_svg(model, r, design=design)
+        svg = diagram_svg(model, r, design=design, units=units)
         boxes = _drain_boxes(svg)
         # every heater that drains (a closed heater in service with a drain flow) has
         # one label (count from the solved point)
