@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
 
 import pytest
 from partload.cli.main import main
+from partload.plant.model import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -19,6 +21,23 @@ def test_check_prints_constants_and_design_balance(capsys):
     for text in ["Stage groups (constants from calibration)", "LPB2", "Design heat balance",
                  "heat rate", "closure"]:
         assert text in out
+
+
+@pytest.mark.parametrize("name", ["demo_reheat_unit", "demo_industrial_unit"])
+def test_check_states_the_heater_closures_once(capsys, name):
+    # the closures belong to the closure report (with the given and closing bleeds);
+    # the model's heater table no longer repeats them
+    assert main(["check", str(ROOT / f"models/{name}.toml")]) == 0
+    out = capsys.readouterr().out
+    assert out.count("Heater balances at design") == 1
+    # two lines name the closure: the report's heading and its column heads
+    assert sum("closure" in line for line in out.splitlines()) == 2
+    # and each heater has one row in it (its name, then its extraction, as printed)
+    model = load_model(ROOT / f"models/{name}.toml")
+    for h in model.heaters.values():
+        rows = [line for line in out.splitlines()
+                if re.match(rf"\s*{re.escape(h.name)}\s+{re.escape(h.extraction)}\s", line)]
+        assert len(rows) == 1, (h.name, rows)
 
 
 def test_point_json_round_trip(capsys):

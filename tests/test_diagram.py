@@ -125,3 +125,114 @@ def test_a_model_without_heater_train_is_drawn():
     for comp in model.components:
         assert comp.name in joined
     assert "condenser" in texts  # the exhaust node is still labelled
+
+
+def _drain_boxes(svg: str) -> list[tuple[float, float, float, float, str]]:
+    """Boxes of the drain labels, ``(x0, y0, x1, y1, text)`` [px], estimated here
+    from the character count and the font size: 0.6 em a character and 1.3 em tall
+    (from the baseline up one em, down 0.3 em).  Hand bound over what headless
+    Chromium draws in DejaVu Sans for these labels (measured: at most 0.51 em a
+    character, 1.14 em tall)."""
+    out = []
+    for t in ET.fromstring(svg).iter(f"{SVG}text"):
+        if t.get("class") != "drain":
+            continue
+        text = "".join(t.itertext())
+        size = float(re.search(r"font-size:([\d.]+)px", t.get("style")).group(1))
+        x, y = float(t.get("x")), float(t.get("y"))
+        assert t.get("text-anchor") == "start"
+        out.append((x, y - size, x + 0.6 * size * len(text), y + 0.3 * size, text))
+    return out
+
+
+def _drain_segments(svg: str) -> list[tuple[float, float, float, float]]:
+    """The straight pieces of the drain lines, ``(x0, y0, x1, y1)`` [px]."""
+    out = []
+    for pl in ET.fromstring(svg).iter(f"{SVG}polyline"):
+        if pl.get("class") != "drain":
+            continue
+        pts = [tuple(float(v) for v in p.split(",")) for p in pl.get("points").split()]
+        out += [(a[0], a[1], b[0], b[1]) for a, b in zip(pts, pts[1:])]
+    return out
+
+
+def _overlap(a, b) -> bool:
+    return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
+
+
+def _drain_diagrams():
+    for path in MODELS:
+        model = load_model(path)
+        yield path.stem, model, solve_point(model, design_conditions(model)), None
+    # the difference view has the longest labels: the top-heater-out case
+    case = load_case(ROOT / "cases" / "reheat_top_heater_out.toml")
+    yield ("reheat_top_heater_out vs design", case.model,
+           solve_point(case.model, case.conditions, case.backend),
+           solve_point(case.model, design_conditions(case.model), case.backend))
+
+
+@pytest.mark.parametrize("units", ["metric", "us"])
+def test_drain_labels_overlap_neither_each_other_nor_a_drain_line(units):
+    n_labels = 0
+    for name, model, r, design in _drain_diagrams():
+        svg = diagram_svg(model, r, design=design, units=units)
+        boxes = _drain_boxes(svg)
+        # every heater that drains (a closed heater in service with a drain flow) has
+        # one label (count from the solved point)
+        drains = [h for h in r.heaters if h.in_service and h.heater_type == "closed"
+                  and h.drain_flow > 0]
+        assert len(boxes) == len(drains), name
+        assert all(b[4].startswith("drain ") for b in boxes)
+        n_labels += len(boxes)
+        for i, a in enumerate(boxes):
+            for b in boxes[i + 1:]:
+                assert not _overlap(a, b), f"{name}: {a[4]!r} overlaps {b[4]!r}"
+        for seg in _drain_segments(svg):
+            x0, y0, x1, y1 = seg
+            line = (min(x0, x1) - 0.5, min(y0, y1) - 0.5, max(x0, x1) + 0.5, max(y0, y1) + 0.5)
+            for a in boxes:
+                assert not _overlap(a, line), f"{name}: a drain line crosses {a[4]!r}"
+        # and inside the drawing
+        width = float(ET.fromstring(svg).get("width"))
+        height = float(ET.fromstring(svg).get("height"))
+        for a in boxes:
+            assert 0.0 <= a[0] and a[2] <= width and a[3] <= height - 36, (name, a[4])
+    # the demo models have drains to label (7 in the reheat unit alone, its model file)
+    assert n_labels >= 7
+
+
+def test_diagram_in_us_units():
+    # hand factors from the definitions of the units (independent of partload.units):
+    # 1 psi = 6894.757 Pa; 1 lb = 0.45359237 kg (exact); 1 Btu (IT) = 1.055056 kJ;
+    # 1 Btu/lb = 2.326 kJ/kg (exact); degF = degC * 9/5 + 32; 1 inHg = 3.386389 kPa
+    case = load_case(ROOT / "cases" / "reheat_top_heater_out.toml")
+    r = solve_point(case.model, case.conditions, case.backend)
+    d = solve_point(case.model, design_conditions(case.model), case.backend)
+    texts = _texts(diagram_svg(case.model, r, case_name=case.name, units="us"))
+    joined = "\n".join(texts)
+    for unit in (" psia", " \u00b0F", " Btu/lb", " klb/h", " Btu/kWh", " inHg"):
+        assert unit in joined, unit
+    for unit in (" bar", " \u00b0C", " kJ/kg", " kg/s", " kJ/kWh", " kPa"):
+        assert unit not in joined, unit
+    t = r.totals
+    assert f"generator output {t['generator_output'] / 1e6:.2f} MW" in texts
+    hr = t["heat_rate"] * 3600 / 1.055056  # J/J -> kJ/kWh -> Btu/kWh
+    assert f"turbine-cycle heat rate {hr:.1f} Btu/kWh" in texts
+    flow = t["throttle_flow"] * 3.6 / 0.45359237  # kg/s -> klb/h
+    assert any(x.startswith(f"throttle {flow:.2f} klb/h") for x in texts)
+    nodes = r.tables["nodes"]
+    i = nodes.names.index("throttle")
+    p = nodes.columns["pressure"][i] / 6894.757
+    T = (nodes.columns["temperature"][i] - 273.15) * 9 / 5 + 32
+    h = nodes.columns["enthalpy"][i] / 2326.0
+    for label in (f"{p:.2f} psia", f"{T:.1f} \u00b0F", f"{h:.1f} Btu/lb"):
+        assert label in texts, label
+    # the back pressure of the case in inHg
+    p_back = nodes.columns["pressure"][nodes.names.index("condenser")] / 3386.389
+    assert f"back pressure {p_back:.2f} inHg" in joined
+    # the difference view in US units: the output's change stays in MW, the heat
+    # rate's is in Btu/kWh (hand calculation from the two solved totals)
+    texts = _texts(diagram_svg(case.model, r, case_name=case.name, design=d, units="us"))
+    dhr = (t["heat_rate"] - d.totals["heat_rate"]) * 3600 / 1.055056
+    assert any(x.startswith(f"turbine-cycle heat rate {hr:.1f} ({dhr:+.1f}) Btu/kWh")
+               for x in texts)

@@ -291,3 +291,75 @@ def test_small_multiples_beyond_four_series(tmp_path):
     fig = plot_bleed_flows([st])
     assert len(fig.axes) == 5  # one panel per back pressure
     assert [ax.get_title() for ax in fig.axes] == st.series_labels
+
+
+# Hand factors from the definitions of the units, independent of partload.units:
+PSI_PER_BAR = 14.5037738  # 1 psi = 1 lbf/in^2 = 6894.757 Pa, so 1 bar = 1e5 / 6894.757 psi
+KLBH_PER_KGS = 3.6 / 0.45359237  # 1 lb = 0.45359237 kg (exact, 1959 definition); 3600 s/h
+BTUKWH_PER_KJKWH = 1.0 / 1.055056  # 1 Btu (International Table) = 1.055056 kJ
+BTULB_PER_KJKG = 1.0 / 2.326  # 1 Btu/lb = 2.326 kJ/kg (exact, IT Btu over the pound)
+BTULBR_PER_KJKGK = 1.0 / 4.1868  # 1 Btu/(lb degR) = 4.1868 kJ/(kg K) (exact, IT Btu)
+INHG_PER_KPA = 1.0 / 3.386389  # 1 inHg (conventional, 0 degC mercury) = 3.386389 kPa
+
+
+def _curves_drawn(fig):
+    """``(x, y)`` of every line drawn on the figure's axes with data, in order."""
+    return [(np.asarray(ln.get_xdata(), float), np.asarray(ln.get_ydata(), float))
+            for ax in fig.axes for ln in ax.lines if len(ln.get_xdata())]
+
+
+@pytest.mark.parametrize("chart,fx,fy,xunit,yunit", [
+    ("willans", KLBH_PER_KGS, 1.0, "klb/h", "MW"),
+    ("heat_rate", 1.0, BTUKWH_PER_KJKWH, "MW", "Btu/kWh"),
+    ("node_pressures", KLBH_PER_KGS, PSI_PER_BAR, "klb/h", "psia"),
+    ("bleed_flows", 1.0, KLBH_PER_KGS, "MW", "klb/h"),
+    ("expansion", BTULBR_PER_KJKGK, BTULB_PER_KJKG, "Btu/(lb degR)", "Btu/lb"),
+])
+def test_a_chart_in_us_units_draws_the_same_curves(results, chart, fx, fy, xunit, yunit):
+    st = read_study(results[0])
+    metric = CHARTS[chart]([st])
+    us = CHARTS[chart]([st], units="us")
+    a, b = _curves_drawn(metric), _curves_drawn(us)
+    assert len(a) == len(b) > 0
+    first = us.axes[0]
+    assert first.get_xlabel().endswith(f"[{xunit}]"), first.get_xlabel()
+    assert first.get_ylabel().endswith(f"[{yunit}]"), first.get_ylabel()
+    ratio_panel = chart == "node_pressures"
+    for k, ((xm, ym), (xu, yu)) in enumerate(zip(a, b)):
+        if ratio_panel and metric.axes[1].lines and k >= len(metric.axes[0].lines):
+            # the ratio panel is dimensionless: the same numbers in both systems
+            np.testing.assert_allclose(xu, xm, rtol=1e-9)
+            np.testing.assert_allclose(yu, ym, rtol=1e-9)
+            continue
+        # rtol 1e-6: the hand factors above carry seven figures
+        np.testing.assert_allclose(xu, xm * fx, rtol=1e-6)
+        np.testing.assert_allclose(yu, ym * fy, rtol=1e-6)
+    note = " ".join(t.get_text() for t in us.texts).replace("\n", " ")
+    # the case's 5 kPa back pressure in inHg (hand factor above): 1.48 inHg
+    assert f"back pressure {5.0 * INHG_PER_KPA:.2f} inHg" in note
+
+
+def test_profile_charts_and_plot_command_in_us_units(results, tmp_path, capsys):
+    from partload.present.charts import plot_load_duration, plot_time_series
+
+    st = read_study(results[2])
+    fig = plot_time_series([st], units="us")
+    assert fig.axes[0].get_ylabel() == "output [MW]"
+    assert fig.axes[1].get_ylabel() == "heat rate [Btu/kWh]"
+    hr = np.asarray(fig.axes[1].lines[0].get_ydata(), float)
+    # the stored heat rate [J/J] in Btu/kWh: 3600 kJ/kWh per J/J, then the IT Btu
+    np.testing.assert_allclose(hr, st.total("heat_rate")[st.ok] * 3600 * BTUKWH_PER_KJKWH,
+                               rtol=1e-6)
+    assert plot_load_duration([st], units="us").axes[0].get_ylabel() == \
+        "generator output [MW]"
+    assert main(["plot", str(results[0]), "--output", str(tmp_path), "--units", "us"]) == 0
+    printed = capsys.readouterr().out.split()
+    assert len(printed) == len(CHARTS)
+    for f in printed:
+        assert_chart(Path(f))
+    with pytest.raises(SystemExit):  # argparse refuses a system it does not know
+        main(["plot", str(results[0]), "--units", "si"])
+    from partload.errors import InputError
+
+    with pytest.raises(InputError, match="units"):
+        plot_study([results[0]], units="imperial")

@@ -65,6 +65,10 @@ def reports(tmp_path_factory):
         path = folder / f"{key}.html"
         assert main(["report", str(src), "--output", str(path)]) == 0
         out[key] = path
+    for key, src in (("point_us", POINT_CASE), ("profile_us", profile)):
+        path = folder / f"{key}.html"
+        assert main(["report", str(src), "--output", str(path), "--units", "us"]) == 0
+        out[key] = path
     return out
 
 
@@ -83,7 +87,7 @@ def _tags(path: Path):
     return p.tags
 
 
-@pytest.mark.parametrize("key", ["point", "sweep", "profile"])
+@pytest.mark.parametrize("key", ["point", "sweep", "profile", "point_us", "profile_us"])
 def test_page_is_self_contained(reports, key):
     tags = _tags(reports[key])
     for tag, attrs in tags:
@@ -139,6 +143,42 @@ def test_profile_totals_are_sums_of_the_points(reports):
     for name in ("time_series", "load_duration"):
         assert f'alt="{name}"' in text
     assert "2030-02" in text
+
+
+# US customary labels and the metric ones they replace, as tables and diagrams write
+# them (the case's own description, "process steam 25 kg/s", is the user's text)
+US_LABELS = ("[psia]", "[degF]", "[Btu/lb]", "[klb/h]", ">Btu/kWh<", " psia", " \u00b0F",
+             " Btu/lb", " klb/h", " Btu/kWh", " inHg")
+METRIC_LABELS = ("[bar]", "[degC]", "[kJ/kg]", "[kg/s]", ">kJ/kWh<", " bar</text>",
+                 " \u00b0C", " kJ/kg", " kg/s</text>", " kJ/kWh", " kPa")
+
+
+def _visible(path: Path) -> str:
+    """The page's text and markup without its embedded images, entities resolved."""
+    text = re.sub(r'src="data:[^"]*"', "", path.read_text(encoding="utf-8"))
+    return html.unescape(text.replace("<br>", " "))
+
+
+def test_us_reports_label_us_units(reports):
+    text = _visible(reports["point_us"])
+    for label in US_LABELS:
+        assert label in text, label
+    for label in METRIC_LABELS:
+        assert label not in text, label
+    # the metric page is unchanged: metric labels, no US ones but the totals' second
+    # heat rate in Btu/kWh
+    metric = _visible(reports["point"])
+    assert "[bar]" in metric and "[psia]" not in metric and " klb/h" not in metric
+    # the profile's tables: flows in klb/h, heat rates in Btu/kWh
+    profile = _visible(reports["profile_us"])
+    assert "[klb/h]" in profile and "[Btu/kWh]" in profile
+    assert "[kg/s]" not in profile and "[kJ/kWh]" not in profile
+    # the year's average heat rate: the metric page's value over 1.055056 kJ per Btu
+    # (International Table Btu), to the one decimal the page shows
+    st = read_study(reports["profile_h5"])
+    hr = profile_totals(st)[-1]["heat_rate"]  # kJ/kWh
+    assert f"{hr:,.1f}" in _visible(reports["profile"])
+    assert f"{hr / 1.055056:,.1f}" in profile
 
 
 def test_profile_times_a_sweep_axis_totals_each_series(tmp_path):
@@ -299,7 +339,8 @@ def browser(tmp_path_factory):
     return exe
 
 
-@pytest.mark.parametrize("key,n_svg", [("point", 2), ("sweep", 0), ("profile", 0)])
+@pytest.mark.parametrize("key,n_svg", [("point", 2), ("sweep", 0), ("profile", 0),
+                                       ("point_us", 2)])
 def test_page_renders_in_headless_chromium(reports, browser, tmp_path, key, n_svg):
     page = reports[key]
     tools = _DevTools(browser, tmp_path / "profile")
@@ -335,7 +376,8 @@ def test_page_renders_in_headless_chromium(reports, browser, tmp_path, key, n_sv
     svgs = [s for s in shapes if s["tag"] == "svg"]
     imgs = [s for s in shapes if s["tag"] == "img"]
     assert len(svgs) == n_svg
-    n_charts = {"point": 0, "sweep": len(CHARTS), "profile": len(CHARTS) + 2}[key]
+    n_charts = {"point": 0, "sweep": len(CHARTS), "profile": len(CHARTS) + 2,
+                "point_us": 0}[key]
     assert len(imgs) == n_charts
     for s in shapes:
         assert s["width"] > 100 and s["height"] > 100, s
@@ -357,3 +399,19 @@ def test_dump_dom_holds_the_drawn_page(reports, browser, tmp_path):
     for name in ("governing stage", "HP1", "HP2", "LP1", "LP2", "LP control valve",
                  "deaerator", "feed pump"):
         assert re.search(rf">\s*{re.escape(name)}\s*<", dom), name
+
+
+def test_dump_dom_of_the_us_report_holds_us_labels(reports, browser, tmp_path):
+    # the DOM Chromium built from the US page: its diagrams and tables speak psia,
+    # degF, Btu/lb, klb/h and Btu/kWh, and none of the metric units
+    out = subprocess.run(
+        [browser, "--headless", "--no-sandbox", "--disable-gpu",
+         f"--user-data-dir={tmp_path / 'p'}", "--dump-dom", reports["point_us"].as_uri()],
+        capture_output=True, text=True, timeout=60, check=True)
+    dom = html.unescape(out.stdout.replace("<br>", " "))
+    for label in US_LABELS:
+        assert label in dom, label
+    for label in METRIC_LABELS:
+        assert label not in dom, label
+    # the diagram's box in the DOM: the heat rate in Btu/kWh
+    assert re.search(r"turbine-cycle heat rate [\d.]+ Btu/kWh", dom)

@@ -50,6 +50,7 @@ def _cmd_check(args) -> int:
               f"that close every heater\n")
     print(format_model(model, args.units))
     if report:
+        print()
         print(format_closure(report))
     if model.warnings:
         print("\nWARNINGS")

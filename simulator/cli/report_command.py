@@ -17,7 +17,8 @@ __all__ = ["add_command"]
 def _cmd_report(args) -> int:
     from ..present.report import write_report
 
-    out = write_report(args.source, args.output, backend=args.backend, point=args.point)
+    out = write_report(args.source, args.output, backend=args.backend, point=args.point,
+                       units=args.units)
     print(out)
     if args.svg:
         from ..plant.case import design_conditions, load_case
@@ -42,7 +43,7 @@ def _cmd_report(args) -> int:
         r = solve_point(case.model, cond, backend, check_limits=check)
         d = solve_point(case.model, design_conditions(case.model), backend)
         for tag, design in (("diagram", None), ("diagram_vs_design", d)):
-            svg = diagram_svg(case.model, r, case_name=name, design=design)
+            svg = diagram_svg(case.model, r, case_name=name, design=design, units=args.units)
             path = out.with_name(f"{stem}_{tag}.svg")
             write_whole(path, lambda tmp, svg=svg: tmp.write_text(svg, encoding="utf-8"))
             print(path)
@@ -51,6 +52,8 @@ def _cmd_report(args) -> int:
 
 def add_command(sub) -> None:
     """Add ``report`` to the ``partload`` parser."""
+    from .main import add_units_option
+
     c = sub.add_parser(
         "report", help="write a one-page HTML report of a case's point, a study result or "
                        "one point of it",
@@ -71,4 +74,5 @@ def add_command(sub) -> None:
     c.add_argument("--svg", action="store_true",
                    help="also write the point's heat-balance diagram, and its differences "
                         "from design, as SVG next to the report")
+    add_units_option(c)
     c.set_defaults(func=_cmd_report)

@@ -179,7 +179,8 @@ def _cmd_plot(args) -> int:
 
     paths = [args.result] + ([args.other] if args.other else [])
     files = plot_study(paths, args.output, loads=args.loads,
-                       series=[k - 1 for k in args.series] if args.series else None)
+                       series=[k - 1 for k in args.series] if args.series else None,
+                       units=args.units)
     for f in files:
         print(f)
     return 0
@@ -205,6 +206,8 @@ def _cmd_demo(args) -> int:
 
 def add_commands(sub) -> None:
     """Add ``study``, ``export``, ``plot`` and ``demo`` to the ``partload`` parser."""
+    from .main import add_units_option
+
     c = sub.add_parser(
         "study", help="run a sweep or profile study into an HDF5 result file",
         description="Solve every point of the case's [sweep] and/or [profile] and store the "
@@ -273,6 +276,7 @@ def add_commands(sub) -> None:
     c.add_argument("--series", type=_numbers, default=None, metavar="N,...",
                    help="series drawn on the h-s chart, counted from 1 in the order of the "
                         "file (default: every series)")
+    add_units_option(c)
     c.set_defaults(func=_cmd_plot)
 
     c = sub.add_parser("demo", help="run the demo study: load sweep of the demo reheat unit "

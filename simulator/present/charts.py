@@ -7,7 +7,11 @@ every series (one combination of the swept values other than the load) has
 its own colour.  Sweeps are drawn as lines through their points; profiles,
 whose points are not ordered by load, as dots.
 
-Charts (:data:`CHARTS`), each 8 x 5 in at 100 dpi, i.e. 800 x 500 pixels:
+Charts (:data:`CHARTS`), each 8 x 5 in at 100 dpi, i.e. 800 x 500 pixels, in
+the display units of a system of :data:`partload.units.SYSTEMS` (``units=``:
+``"metric"``, the default and the units named below, or ``"us"``: klb/h,
+psia, Btu/kWh, Btu/lb, Btu/(lb degR), a back pressure in inHg; MW in both);
+axis labels name the unit drawn:
 
 ``willans``
     Generator output [MW] versus throttle flow [kg/s]: the Willans line.
@@ -145,7 +149,7 @@ def is_profile(st: StudyData) -> bool:
     return "profile" in str(st.attrs.get("study_kind", ""))
 
 
-def _note(fig: Figure, studies: Sequence[StudyData]) -> None:
+def _note(fig: Figure, studies: Sequence[StudyData], units: str = "metric") -> None:
     parts = []
     for st in studies:
         n = st.n_points
@@ -164,7 +168,7 @@ def _note(fig: Figure, studies: Sequence[StudyData]) -> None:
         parts.append(f"{label}: " + ", ".join(bits))
     models = sorted({str(st.attrs.get("model_name", "")) for st in studies})
     text = "; ".join(parts) + f".  Model: {', '.join(models)}.  " + "  ".join(
-        caption(st, len(studies) > 1 and _label(st, studies)) for st in studies)
+        caption(st, len(studies) > 1 and _label(st, studies), units) for st in studies)
     if any("totals/heat_rate" in st.data for st in studies):
         text += "  Heat rate: " + HEAT_RATE_KIND.split(": ", 1)[1] + "."
     fig.text(0.01, 0.005, textwrap.fill(text, 160), fontsize=6.5, color="0.3",
@@ -180,8 +184,9 @@ def exhaust_nodes(st: StudyData) -> list[str]:
     return [n for n in dict.fromkeys(outs) if n not in ins]
 
 
-def caption(st: StudyData, label=None) -> str:
-    """Governing (valve and pressure modes) and back pressure of a file's points."""
+def caption(st: StudyData, label=None, units: str = "metric") -> str:
+    """Governing (valve and pressure modes) and back pressure of a file's points
+    (in kPa, or inHg for ``units="us"``)."""
     ok = st.ok
     bits = []
     for key, word in (("valve_mode", "valves"), ("pressure_mode", "throttle pressure")):
@@ -193,10 +198,11 @@ def caption(st: StudyData, label=None) -> str:
     nodes = st.names.get("nodes", [])
     ex = [nodes.index(n) for n in exhaust_nodes(st) if n in nodes]
     if ex and ok.any() and "nodes/pressure" in st.data:
-        p = np.asarray(st.data["nodes/pressure"])[ok][:, ex] / 1e3  # kPa
+        p, unit = to_display_unit(np.asarray(st.data["nodes/pressure"])[ok][:, ex], "Pa",
+                                  system=units, quantity="back_pressure")
         lo, hi = float(np.nanmin(p)), float(np.nanmax(p))
-        bits.append(f"back pressure {lo:.2f} kPa" if hi - lo < 0.005
-                    else f"back pressure {lo:.2f} to {hi:.2f} kPa")
+        bits.append(f"back pressure {lo:.2f} {unit}" if hi - lo < 0.005
+                    else f"back pressure {lo:.2f} to {hi:.2f} {unit}")
     head = f"{label}: " if label else ""
     return head + ("Governing: " + ", ".join(bits) + "." if bits else "")
 
@@ -218,20 +224,39 @@ def _dots(n: int, scale: float = 1.0) -> dict:
     return {"marker": ".", "markersize": 2.0 * scale, "alpha": 0.4}
 
 
-def _disp(st: StudyData, key: str) -> np.ndarray:
-    return to_display(st.data[key], st.units.get(key, ""), key, st.display.get(key))[0]
+def _shown(st: StudyData, key: str, units: str = "metric") -> tuple[np.ndarray, str]:
+    """A dataset of a file in the display units of ``units``, and that unit [-]."""
+    return to_display(st.data[key], st.units.get(key, ""), key, st.display.get(key), units)
+
+
+def _disp(st: StudyData, key: str, units: str = "metric") -> np.ndarray:
+    return _shown(st, key, units)[0]
+
+
+def _axis(name: str, unit: str) -> str:
+    """An axis label: the quantity and its unit in brackets."""
+    return f"{name} [{unit}]" if unit else name
+
+
+def _check_units(units: str) -> None:
+    from ..units import SYSTEMS
+
+    if units not in SYSTEMS:
+        raise InputError(f"units must be one of {', '.join(SYSTEMS)}, not {units!r}",
+                         key="units")
 
 
 def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, ylabel: str,
-              title: str) -> Figure:
+              title: str, units: str = "metric") -> Figure:
+    """``ykey`` against ``xkey``; the labels name the quantities, the units are added."""
     fig = _figure()
     ax = fig.add_subplot(111)
     fig.subplots_adjust(left=0.10, right=0.97, top=0.92, bottom=0.2)
     colour = 0
     for k, st in enumerate(studies):
         ls, _m = _STYLES[k % len(_STYLES)]
-        x_all = _disp(st, xkey)
-        y_all = _disp(st, ykey)
+        x_all, x_unit = _shown(st, xkey, units)
+        y_all, y_unit = _shown(st, ykey, units)
         profile = is_profile(st)
         for _s, text, idx in _curves(st):
             x, y = x_all[idx], y_all[idx]
@@ -252,8 +277,8 @@ def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, y
             if cz is not None:
                 ring = cz[idx] > 0
                 _rings(ax, x[ring], y[ring], small=profile)
-    ax.set_xlabel(xlabel)
-    ax.set_ylabel(ylabel)
+    ax.set_xlabel(_axis(xlabel, x_unit))
+    ax.set_ylabel(_axis(ylabel, y_unit))
     ax.set_title(title)
     ax.grid(True, alpha=0.3)
     handles = [ln for ln in ax.lines if not ln.get_label().startswith("_")]
@@ -261,7 +286,7 @@ def _xy_chart(studies: Sequence[StudyData], xkey: str, ykey: str, xlabel: str, y
         handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
                               markeredgecolor=_CAUTION, label="cautions"))
     _legend_beside(fig, handles)
-    _note(fig, studies)
+    _note(fig, studies, units)
     return fig
 
 
@@ -295,30 +320,34 @@ def _mark_valve_points(ax, st: StudyData, idx: np.ndarray, x: np.ndarray,
                             fontsize=7)
 
 
-def plot_willans(studies: Sequence[StudyData]) -> Figure:
-    """Generator output [MW] versus throttle flow [kg/s] (the Willans line)."""
+def plot_willans(studies: Sequence[StudyData], units: str = "metric") -> Figure:
+    """Generator output [MW] versus throttle flow [kg/s, klb/h in US units] (the
+    Willans line)."""
     return _xy_chart(studies, "totals/throttle_flow", "totals/generator_output",
-                     "throttle flow [kg/s]", "generator output [MW]",
-                     "Output versus throttle flow (Willans line)")
+                     "throttle flow", "generator output",
+                     "Output versus throttle flow (Willans line)", units)
 
 
-def plot_heat_rate(studies: Sequence[StudyData]) -> Figure:
-    """Heat rate [kJ/kWh] versus generator output [MW]."""
+def plot_heat_rate(studies: Sequence[StudyData], units: str = "metric") -> Figure:
+    """Heat rate [kJ/kWh, Btu/kWh in US units] versus generator output [MW]."""
     for st in studies:
         if "totals/heat_rate" not in st.data:
             raise ResultFileError(f"{st.path} has no heat rate (the model has no feedwater "
                                   f"train), so no heat-rate chart")
     return _xy_chart(studies, "totals/generator_output", "totals/heat_rate",
-                     "generator output [MW]", "turbine-cycle heat rate [kJ/kWh]",
-                     "Heat rate (turbine cycle) versus output")
+                     "generator output", "turbine-cycle heat rate",
+                     "Heat rate (turbine cycle) versus output", units)
 
 
 def _multi_chart(studies: Sequence[StudyData], xkey: str, group: str, quantity: str,
                  xlabel: str, ylabel: str, title: str, log: bool = False,
                  skip_zero: bool = False, fig: Figure | None = None, slot=(1, 1, 1),
-                 transform=None, allow_multiples: bool = True) -> Figure:
+                 transform=None, allow_multiples: bool = True,
+                 units: str = "metric") -> Figure:
     """One colour per item (node, extraction), one line style per file and series;
-    beyond four series, small multiples: one panel per series.
+    beyond four series, small multiples: one panel per series.  ``xlabel`` and
+    ``ylabel`` name the quantities; the display unit of ``units`` is added to each
+    (none to a ratio drawn through ``transform``).
 
     ``slot``: ``(rows, columns, index)`` of the figure's grid this chart takes;
     ``transform(st, x, y, j, idx)`` -> ``(x, y)`` replaces the values drawn;
@@ -354,8 +383,8 @@ def _multi_chart(studies: Sequence[StudyData], xkey: str, group: str, quantity: 
         ax = axes[k_style]
         ls, marker = (("-", "o") if multiples else ("-", None) if many
                       else _STYLES[k_style % len(_STYLES)])
-        x_all = _disp(st, xkey)
-        y_all = _disp(st, f"{group}/{quantity}")
+        x_all, x_unit = _shown(st, xkey, units)
+        y_all, y_unit = _shown(st, f"{group}/{quantity}", units)
         profile = is_profile(st)
         name = text or "all points"
         if len(studies) > 1:
@@ -380,6 +409,8 @@ def _multi_chart(studies: Sequence[StudyData], xkey: str, group: str, quantity: 
         if multiples:
             ax.set_title(name, fontsize=6)
             ax.tick_params(labelsize=6)
+    if transform is None and curves:
+        xlabel, ylabel = _axis(xlabel, x_unit), _axis(ylabel, y_unit)
     done = []
     for ax in axes:
         if ax in done:
@@ -402,11 +433,12 @@ def _multi_chart(studies: Sequence[StudyData], xkey: str, group: str, quantity: 
         axes[0].set_title(title)
     if own:
         fig.subplots_adjust(left=0.10, right=0.97, top=0.90, bottom=0.2)
-        _finish_multi(fig, studies, group, items, colours, curve_styles, many)
+        _finish_multi(fig, studies, group, items, colours, curve_styles, many, units)
     return fig, (items, colours, curve_styles, many)
 
 
-def _finish_multi(fig, studies, group, items, colours, curve_styles, multiples) -> None:
+def _finish_multi(fig, studies, group, items, colours, curve_styles, multiples,
+                  units: str = "metric") -> None:
     handles = [Line2D([], [], color=colours[i], label=i) for i in items]
     styles = []
     if len(curve_styles) > 1 and not multiples:
@@ -416,7 +448,7 @@ def _finish_multi(fig, studies, group, items, colours, curve_styles, multiples) 
         styles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
                              markeredgecolor=_CAUTION, label="cautions"))
     _legend_beside(fig, handles, title=group.replace("_", " "), groups=[styles])
-    _note(fig, studies)
+    _note(fig, studies, units)
 
 
 def _design_pressures(st: StudyData) -> dict:
@@ -431,44 +463,48 @@ def _design_pressures(st: StudyData) -> dict:
     return dict(model.design_pressure)
 
 
-def plot_node_pressures(studies: Sequence[StudyData]) -> Figure:
-    """Pressure at every node [bar, log scale] versus throttle flow [kg/s] (left),
-    and the pressure ratio to design [-] versus the flow ratio to design [-] with
-    the line of pressure proportional to flow (right)."""
+def plot_node_pressures(studies: Sequence[StudyData], units: str = "metric") -> Figure:
+    """Pressure at every node [bar, psia in US units; log scale] versus throttle
+    flow [kg/s, klb/h] (left), and the pressure ratio to design [-] versus the flow
+    ratio to design [-] with the line of pressure proportional to flow (right)."""
     fig = _figure()
     _f, (items, colours, styles, multiples) = _multi_chart(
-        studies, "totals/throttle_flow", "nodes", "pressure", "throttle flow [kg/s]",
-        "pressure [bar]", "Node pressures", log=True, fig=fig, slot=(1, 2, 1),
-        allow_multiples=False)
+        studies, "totals/throttle_flow", "nodes", "pressure", "throttle flow",
+        "pressure", "Node pressures", log=True, fig=fig, slot=(1, 2, 1),
+        allow_multiples=False, units=units)
     try:
         design = {id(st): _design_pressures(st) for st in studies}
     except (PartloadError, ValueError, KeyError):
         design = None
     if design is not None:
         def ratio(st, x, y, j, idx):
-            p0 = design[id(st)].get(st.names["nodes"][j], math.nan) / 1e5  # bar
-            m0 = float(st.attrs.get("design_throttle_flow", math.nan))
+            # x and y come in display units: the design values go the same way
+            p0 = to_display_unit(design[id(st)].get(st.names["nodes"][j], math.nan), "Pa",
+                                 system=units)[0]
+            m0 = to_display_unit(float(st.attrs.get("design_throttle_flow", math.nan)),
+                                 "kg/s", system=units)[0]
             return x / m0, y / p0
 
         _multi_chart(studies, "totals/throttle_flow", "nodes", "pressure",
                      "flow / design [-]", "pressure / design [-]",
                      "Pressure ratio versus flow ratio", fig=fig, slot=(1, 2, 2),
-                     transform=ratio)
+                     transform=ratio, units=units)
         for ax in fig.axes[1:]:
             lim = max(ax.get_xlim()[1], 1.05)
             ax.plot([0, lim], [0, lim], color="0.5", linewidth=0.8, linestyle="--")
             ax.set_xlim(0.0, lim)
             ax.set_ylim(bottom=0.0)
     fig.subplots_adjust(left=0.08, right=0.97, top=0.90, bottom=0.2, wspace=0.3)
-    _finish_multi(fig, studies, "nodes", items, colours, styles, multiples)
+    _finish_multi(fig, studies, "nodes", items, colours, styles, multiples, units)
     return fig
 
 
-def plot_bleed_flows(studies: Sequence[StudyData]) -> Figure:
-    """Bleed flow of every extraction [kg/s] versus generator output [MW]."""
+def plot_bleed_flows(studies: Sequence[StudyData], units: str = "metric") -> Figure:
+    """Bleed flow of every extraction [kg/s, klb/h in US units] versus generator
+    output [MW]."""
     return _multi_chart(studies, "totals/generator_output", "extractions", "flow",
-                        "generator output [MW]", "bleed flow [kg/s]",
-                        "Bleed flows versus load", skip_zero=True)[0]
+                        "generator output", "bleed flow",
+                        "Bleed flows versus load", skip_zero=True, units=units)[0]
 
 
 def saturation_line(steam=None, n: int = 120) -> tuple[np.ndarray, np.ndarray]:
@@ -547,7 +583,8 @@ def _branches(st: StudyData) -> list[tuple[list[tuple[str, str, str]], int]]:
 
 
 def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None = None,
-                   steam=None, series: Sequence[int] | None = None) -> Figure:
+                   steam=None, series: Sequence[int] | None = None,
+                   units: str = "metric") -> Figure:
     """Expansion lines on the h-s chart with the saturation line.
 
     Parameters
@@ -558,6 +595,8 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
         flow of each series
     steam : property backend for the saturation line (default seuif97)
     series : indices of the series to draw [-] (default every series)
+    units : ``"metric"`` (kJ/(kg K), kJ/kg; default) or ``"us"`` (Btu/(lb degR),
+        Btu/lb) [-]
     """
     fig = _figure()
     ax = fig.add_subplot(111)
@@ -572,8 +611,9 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
         names = st.names["nodes"]
         pos = {n: j for j, n in enumerate(names)}
         branches = _branches(st)
-        S = to_display_unit(st.data["nodes/entropy"], "J/(kg K)")[0]  # kJ/(kg K)
-        H = to_display_unit(st.data["nodes/enthalpy"], "J/kg")[0]  # kJ/kg
+        S, s_unit = to_display_unit(st.data["nodes/entropy"], "J/(kg K)", system=units)
+        H, h_unit = to_display_unit(st.data["nodes/enthalpy"], "J/kg", system=units)
+        M, m_unit = to_display_unit(st.total("throttle_flow"), "kg/s", system=units)
         cz = st.cautions
         for s_index, text, idx in _curves(st):
             if series is not None and s_index not in series:
@@ -581,9 +621,9 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
             for i in _pick_points(st, loads, idx):
                 c, marker = series_style(colour)
                 colour += 1
-                P = float(to_display_unit(st.total("generator_output")[i], "W")[0])  # MW
-                m = st.total("throttle_flow")[i]
-                name = f"{P:.0f} MW, {m:.0f} kg/s" + (f" ({text})" if text else "")
+                P = float(to_display_unit(st.total("generator_output")[i], "W",
+                                          system=units)[0])  # MW in both systems
+                name = f"{P:.0f} MW, {M[i]:.0f} {m_unit}" + (f" ({text})" if text else "")
                 if len(studies) > 1:
                     name = f"{_label(st, studies)}: {name}"
                 for segs, row in branches:
@@ -604,8 +644,9 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
                 ok = np.isfinite(S[i]) & np.isfinite(H[i])
                 s_lo, s_hi = min(s_lo, S[i, ok].min()), max(s_hi, S[i, ok].max())
                 h_lo, h_hi = min(h_lo, H[i, ok].min()), max(h_hi, H[i, ok].max())
-    ax.plot(to_display_unit(s_sat, "J/(kg K)")[0], to_display_unit(h_sat, "J/kg")[0],
-            color="0.35", linewidth=1.0)
+    s_sat, s_unit = to_display_unit(s_sat, "J/(kg K)", system=units)
+    h_sat, h_unit = to_display_unit(h_sat, "J/kg", system=units)
+    ax.plot(s_sat, h_sat, color="0.35", linewidth=1.0)
     keys = [Line2D([], [], color="0.35", linewidth=1.0, label="saturation line"),
             Line2D([], [], color="0.2", linestyle=":", label="valves, reheater, pipes")]
     if any_branch:
@@ -615,15 +656,17 @@ def plot_expansion(studies: Sequence[StudyData], loads: Sequence[float] | None =
         keys.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
                            markeredgecolor=_CAUTION, label="cautions (at the throttle)"))
     if math.isfinite(s_lo):
-        ds, dh = max(s_hi - s_lo, 0.2), max(h_hi - h_lo, 200.0)
+        # at least 0.2 kJ/(kg K) and 200 kJ/kg wide, in the units drawn
+        ds = max(s_hi - s_lo, float(to_display_unit(200.0, "J/(kg K)", system=units)[0]))
+        dh = max(h_hi - h_lo, float(to_display_unit(200e3, "J/kg", system=units)[0]))
         ax.set_xlim(s_lo - 0.15 * ds, s_hi + 0.15 * ds)
         ax.set_ylim(h_lo - 0.12 * dh, h_hi + 0.08 * dh)
-    ax.set_xlabel("specific entropy [kJ/(kg K)]")
-    ax.set_ylabel("specific enthalpy [kJ/kg]")
+    ax.set_xlabel(_axis("specific entropy", s_unit))
+    ax.set_ylabel(_axis("specific enthalpy", h_unit))
     ax.set_title("Expansion lines (h-s chart)")
     ax.grid(True, alpha=0.3)
     _legend_beside(fig, handles, fontsize=6.5, groups=[keys])
-    _note(fig, studies)
+    _note(fig, studies, units)
     return fig
 
 
@@ -639,7 +682,7 @@ CHARTS = {
 def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
                loads: Sequence[float] | None = None,
                charts: Sequence[str] | None = None,
-               series: Sequence[int] | None = None) -> list[Path]:
+               series: Sequence[int] | None = None, units: str = "metric") -> list[Path]:
     """Draw the charts of one result file, or of two overlaid, as PNG files.
 
     Parameters
@@ -649,6 +692,7 @@ def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
     loads : throttle flows for the expansion lines, fractions of design [-]
     charts : names from :data:`CHARTS` (default all)
     series : series indices for the expansion lines [-] (default every series)
+    units : display units, ``"metric"`` (default) or ``"us"`` [-]
 
     Returns
     -------
@@ -658,6 +702,7 @@ def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
     """
     if not 1 <= len(paths) <= 2:
         raise InputError("give one result file, or two to overlay")
+    _check_units(units)
     studies = [read_study(p) for p in paths]
     chosen = list(charts) if charts else list(CHARTS)
     for c in chosen:
@@ -671,8 +716,8 @@ def plot_study(paths: Sequence[str | Path], out_dir: str | Path | None = None,
     for c in chosen:
         if c == "heat_rate" and any("totals/heat_rate" not in st.data for st in studies):
             continue
-        fig = (CHARTS[c](studies, loads, series=series) if c == "expansion"
-               else CHARTS[c](studies))
+        fig = (CHARTS[c](studies, loads, series=series, units=units) if c == "expansion"
+               else CHARTS[c](studies, units=units))
         out = out_dir / f"{stem}_{c}.png"
         write_whole(out, lambda tmp, fig=fig: fig.savefig(tmp, dpi=DPI))
         written.append(out)
@@ -710,9 +755,9 @@ def profile_times(st: StudyData):
     return times, 1.0
 
 
-def plot_time_series(studies: Sequence[StudyData]) -> Figure:
-    """Generator output [MW] and heat rate [kJ/kWh] of a profile against time,
-    one line per file and series."""
+def plot_time_series(studies: Sequence[StudyData], units: str = "metric") -> Figure:
+    """Generator output [MW] and heat rate [kJ/kWh, Btu/kWh in US units] of a
+    profile against time, one line per file and series."""
     fig = _figure()
     ax1 = fig.add_subplot(211)
     ax2 = fig.add_subplot(212, sharex=ax1)
@@ -721,8 +766,9 @@ def plot_time_series(studies: Sequence[StudyData]) -> Figure:
         times, _dt_h = profile_times(st)
         x_all = np.array(times, dtype=object) if times is not None else \
             np.arange(st.n_points, dtype=float)
-        P = _disp(st, "totals/generator_output")
-        HR = _disp(st, "totals/heat_rate") if "totals/heat_rate" in st.data else None
+        P, p_unit = _shown(st, "totals/generator_output", units)
+        HR, hr_unit = (_shown(st, "totals/heat_rate", units) if "totals/heat_rate" in st.data
+                       else (None, ""))
         cz = st.cautions
         for _s, text, idx in _curves(st):
             c = f"C{j % 10}"
@@ -736,8 +782,8 @@ def plot_time_series(studies: Sequence[StudyData]) -> Figure:
                 _rings(ax1, x_all[ring], P[ring], small=True)
                 if HR is not None:
                     _rings(ax2, x_all[ring], HR[ring], small=True)
-    ax1.set_ylabel("output [MW]")
-    ax2.set_ylabel("heat rate [kJ/kWh]")
+    ax1.set_ylabel(_axis("output", p_unit))
+    ax2.set_ylabel(_axis("heat rate", hr_unit))
     ax2.set_xlabel("time" if any(profile_times(s)[0] is not None for s in studies)
                    else "profile point")
     ax1.set_title("Output and turbine-cycle heat rate over the profile")
@@ -746,11 +792,11 @@ def plot_time_series(studies: Sequence[StudyData]) -> Figure:
     fig.autofmt_xdate()
     fig.subplots_adjust(left=0.11, right=0.97, top=0.93, bottom=0.2, hspace=0.15)
     _legend_beside(fig, [ln for ln in ax1.lines if not ln.get_label().startswith("_")])
-    _note(fig, studies)
+    _note(fig, studies, units)
     return fig
 
 
-def plot_load_duration(studies: Sequence[StudyData]) -> Figure:
+def plot_load_duration(studies: Sequence[StudyData], units: str = "metric") -> Figure:
     """Load-duration curve: generator output [MW] against the hours [h] it is
     reached or exceeded over the profile, one line per file and series."""
     fig = _figure()
@@ -759,7 +805,7 @@ def plot_load_duration(studies: Sequence[StudyData]) -> Figure:
     j = 0
     for st in studies:
         _times, dt_h = profile_times(st)
-        P_all = _disp(st, "totals/generator_output")
+        P_all, p_unit = _shown(st, "totals/generator_output", units)
         cz = st.cautions
         for _s, text, idx in _curves(st):
             P = P_all[idx]
@@ -773,11 +819,11 @@ def plot_load_duration(studies: Sequence[StudyData]) -> Figure:
                 ring = (cz[idx] > 0)[order]
                 _rings(ax, hours[ring], P[ring], small=True)
     ax.set_xlabel("hours at or above this output [h]")
-    ax.set_ylabel("generator output [MW]")
+    ax.set_ylabel(_axis("generator output", p_unit))
     ax.set_title("Load-duration curve")
     ax.grid(True, alpha=0.3)
     _legend_beside(fig, [ln for ln in ax.lines if not ln.get_label().startswith("_")])
-    _note(fig, studies)
+    _note(fig, studies, units)
     return fig
 
 

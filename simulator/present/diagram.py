@@ -23,7 +23,9 @@ is built in:
   the boiler (left), pumps included; every feedwater stream between two items
   is labelled with flow, pressure, temperature and enthalpy.  The feedwater
   pressure is the water side's (pumps set it, a deaerator resets it to its
-  shell pressure, heaters pass it).  Drains are dashed lines under the train.
+  shell pressure, heaters pass it).  Drains are dashed lines under the train,
+  each on a run of its own, labelled with flow and temperature where the label
+  crosses no other drain line (:func:`text_width` estimates a label's width).
 * **Box** (top left): generator output, shaft power, heat added, the heat rate
   with its kind stated, the governing (valve and pressure mode) and the back
   pressure.
@@ -32,8 +34,10 @@ Out-of-service heaters and closed extractions are drawn grey and dashed.
 The difference view (``design=`` a design point) adds to every number its
 difference from design, in brackets, green when it fell and red when it rose
 (a colour, not a judgement).  Units are the display units of
-:func:`simulator.units.to_display_unit` (bar, degC, kJ/kg, kg/s, MW,
-kJ/kWh).
+:func:`simulator.units.to_display_unit` in the system asked (``units=``):
+metric (bar, degC, kJ/kg, kg/s, MW, kJ/kWh, the condenser and back pressure in
+kPa; the default) or US customary (psia, degF, Btu/lb, klb/h, MW, Btu/kWh, the
+condenser and back pressure in inHg).
 """
 
 from __future__ import annotations
@@ -56,6 +60,8 @@ LANE = 16.0  # [px] between bleed-line lanes
 LEFT = 190.0  # [px] left of the throttle node: the boiler and the box
 TOP = 200.0  # [px] to the first steam-path row
 ITEM = 132.0  # [px] between items of the heater train
+LANE_DRAIN = 12.0  # [px] between the horizontal runs of two drains
+DRAIN_FONT = 7.0  # [px] font size of a drain's label
 FONT = "font-family:Helvetica,Arial,sans-serif"
 _UP, _DOWN = "#b2182b", "#1a7837"  # rose, fell (difference view)
 
@@ -114,15 +120,28 @@ def layout(graph: nx.DiGraph, throttle: str, width: float = COLUMN) -> Layout:
     return Layout(column, row, max(column.values()) + 1, len(used), width)
 
 
-def _disp(value: float, unit: str) -> float:
-    return float(to_display_unit(value, unit)[0])
+_SYMBOL = {"degC": "\u00b0C", "degF": "\u00b0F"}  # temperatures drawn with the degree sign
 
 
 class _Fmt:
-    """Numbers of a label, with the difference from design in the difference view."""
+    """Numbers of a label, with the difference from design in the difference view,
+    in the display units of the system ``units`` (``"metric"`` or ``"us"``)."""
 
-    def __init__(self, design_on: bool):
+    def __init__(self, design_on: bool, units: str = "metric"):
         self.design_on = design_on
+        self.units = units
+
+    def disp(self, value: float | None, si_unit: str, quantity: str | None = None
+             ) -> float | None:
+        """``value`` [si_unit] in its display unit (``None`` stays ``None``)."""
+        if value is None:
+            return None
+        return float(to_display_unit(value, si_unit, None, self.units, quantity)[0])
+
+    def unit(self, si_unit: str, quantity: str | None = None) -> str:
+        """The display unit of ``si_unit``, written with a leading space."""
+        u = to_display_unit(0.0, si_unit, None, self.units, quantity)[1]
+        return " " + _SYMBOL.get(u, u)
 
     def __call__(self, value: float, digits: int, design: float | None = None) -> list:
         """``[(text, colour)]`` pieces of one number [display units]."""
@@ -161,12 +180,14 @@ class _Svg:
         self.add(f'<text x="{x:.1f}" y="{y:.1f}" text-anchor="{anchor}" fill="{colour}" '
                  f'style="{style}"{c}>{spans}</text>')
 
-    def line(self, points, colour="#000000", width=1.5, dash=None, arrow=False) -> None:
+    def line(self, points, colour="#000000", width=1.5, dash=None, arrow=False,
+             cls=None) -> None:
         pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in points)
         d = f' stroke-dasharray="{dash}"' if dash else ""
         a = f' marker-end="url(#{self.ident})"' if arrow else ""
+        c = f' class="{cls}"' if cls else ""
         self.add(f'<polyline points="{pts}" fill="none" stroke="{colour}" '
-                 f'stroke-width="{width}"{d}{a}/>')
+                 f'stroke-width="{width}"{d}{a}{c}/>')
 
     def poly(self, points, fill, colour="#000000", dash=None, title=None) -> None:
         pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in points)
@@ -207,7 +228,7 @@ def _component_shape(svg: _Svg, comp, x: float, y: float, grey: bool) -> None:
 
 
 def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
-                title: str | None = None) -> str:
+                title: str | None = None, units: str = "metric") -> str:
     """The heat-balance diagram of a solved point as SVG text.
 
     Parameters
@@ -220,6 +241,7 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
     cautions : operating-limit cautions of the point; nodes they name are
         ringed in red and their codes listed in the box [-]
     title : replaces the generated title [-]
+    units : display units, ``"metric"`` (default) or ``"us"`` [-]
 
     Returns
     -------
@@ -227,7 +249,7 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
         A standalone SVG document (``<svg xmlns=...>``) whose size follows the
         model; every component of the model is named in it.
     """
-    fmt = _Fmt(design is not None)
+    fmt = _Fmt(design is not None, units)
     lay = layout(model.graph, model.throttle.node, COLUMN if design is None else 1.3 * COLUMN)
     svg = _Svg("arrow-" + hashlib.sha256(repr((model.name, case_name, design is not None,
                                                 result.totals.get("generator_output")))
@@ -241,7 +263,7 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
         t, idx = (dnodes, dni) if des else (nodes, ni)
         if t is None or name not in idx:
             return None
-        return _disp(t.columns[col][idx[name]], unit)
+        return fmt.disp(t.columns[col][idx[name]], unit)
 
     path = result.tables["steam_path"]
     pi = {n: i for i, n in enumerate(path.names)}
@@ -252,7 +274,7 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
         t, idx = (dpath, dpi) if des else (path, pi)
         if t is None or name not in idx:
             return None
-        return _disp(t.columns[col][idx[name]], unit)
+        return fmt.disp(t.columns[col][idx[name]], unit)
 
     caution_where = {getattr(c, "where", None) or (c.get("where") if isinstance(c, dict)
                                                     else None) for c in cautions}
@@ -276,16 +298,16 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
         _component_shape(svg, comp, cx, cy, grey)
         svg.text(cx, cy + 30, comp.name, 10, "middle", weight="bold", cls="component")
         svg.text(cx, cy + 42, fmt(flow, 2, path_val(comp.name, "flow", "kg/s", True))
-                 + [(" kg/s", None)], 9, "middle")
+                 + [(fmt.unit("kg/s"), None)], 9, "middle")
         power = path_val(comp.name, "power", "W")
         heat = path_val(comp.name, "heat", "W")
         if power is not None and abs(power) > 1e-9:
             svg.text(cx, cy + 53, fmt(power, 2, path_val(comp.name, "power", "W", True))
-                     + [(" MW", None)], 9, "middle", colour="#444444")
+                     + [(fmt.unit("W"), None)], 9, "middle", colour="#444444")
         elif heat is not None and abs(heat) > 1e-9:
             svg.text(cx, cy + 53, [("+", None)] + fmt(heat, 2, path_val(comp.name, "heat", "W",
                                                                        True))
-                     + [(" MW heat", None)], 9, "middle", colour="#8c510a")
+                     + [(fmt.unit("W") + " heat", None)], 9, "middle", colour="#8c510a")
         if _kind(comp) == "GoverningStage":
             _valve_table(svg, result, design, fmt, cx, cy + 66)
 
@@ -298,11 +320,11 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
                     f'stroke-width="1.5"><title>caution at {escape(n)}</title></circle>')
         lines = [
             fmt(node_val(n, "pressure", "Pa"), 3 if node_val(n, "pressure", "Pa") < 1 else 2,
-                node_val(n, "pressure", "Pa", True)) + [(" bar", None)],
+                node_val(n, "pressure", "Pa", True)) + [(fmt.unit("Pa"), None)],
             fmt(node_val(n, "temperature", "K"), 1, node_val(n, "temperature", "K", True))
-            + [(" \u00b0C", None)],
+            + [(fmt.unit("K"), None)],
             fmt(node_val(n, "enthalpy", "J/kg"), 1, node_val(n, "enthalpy", "J/kg", True))
-            + [(" kJ/kg", None)],
+            + [(fmt.unit("J/kg"), None)],
         ]
         q = nodes.columns["quality"][ni[n]] if n in ni else 1.0
         if math.isfinite(q) and q < 1.0 - 1e-9:
@@ -346,12 +368,12 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
         off = per_node.get(e.node, 0)
         per_node[e.node] = off + 1
         x = nx0 + 8 + 12 * off
-        flow = _disp(ext_rows.columns["flow"][ei[e.name]], "kg/s") if e.name in ei else None
-        dflow = _disp(dext.columns["flow"][dei[e.name]], "kg/s") if e.name in dei else None
+        flow = fmt.disp(ext_rows.columns["flow"][ei[e.name]], "kg/s") if e.name in ei else None
+        dflow = fmt.disp(dext.columns["flow"][dei[e.name]], "kg/s") if e.name in dei else None
         grey = flow is not None and abs(flow) < 1e-9
         colour = "#999999" if grey else "#6a3d9a"
         dash = "5,3" if grey else None
-        label = [(e.name + " ", None)] + fmt(flow, 2, dflow) + [(" kg/s", None)]
+        label = [(e.name + " ", None)] + fmt(flow, 2, dflow) + [(fmt.unit("kg/s"), None)]
         if e.heater and e.heater in item_x:
             lane = lanes_top + LANE * (k + 1)
             xh = item_x[e.heater]
@@ -384,7 +406,8 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
     _box(svg, model, result, design, fmt, cautions, case_name)
 
     width = max(right, LEFT + (lay.n_columns - 1) * lay.width) + 150
-    height = y_train + 100 + 12 * n_drains
+    # the drains' runs and, under the last, its label
+    height = y_train + 100 + LANE_DRAIN * (n_drains + 1 if n_drains else 0)
     head = title or (f"Heat balance: {model.name}" + (f", case {case_name}" if case_name
                                                      else "")
                      + (" (difference from design in brackets)" if design is not None
@@ -418,11 +441,11 @@ def _valve_table(svg: _Svg, result, design, fmt, x: float, y: float) -> None:
     svg.text(x, y, "valve  opening  flow", 8, "middle", colour="#444444")
     for k, name in enumerate(t.names):
         o = 100 * float(t.columns["opening"][k])
-        m = float(t.columns["flow"][k])
+        m = fmt.disp(float(t.columns["flow"][k]), "kg/s")
         do = 100 * float(d.columns["opening"][k]) if d is not None else None
-        dm = float(d.columns["flow"][k]) if d is not None else None
+        dm = fmt.disp(float(d.columns["flow"][k]), "kg/s") if d is not None else None
         svg.text(x, y + 11 * (k + 1), [(f"{name}  ", None)] + fmt(o, 0, do) + [(" %  ", None)]
-                 + fmt(m, 1, dm) + [(" kg/s", None)], 8, "middle", cls="valve")
+                 + fmt(m, 1, dm) + [(fmt.unit("kg/s"), None)], 8, "middle", cls="valve")
 
 
 def _water_pressures(model, result, train, states) -> dict:
@@ -447,8 +470,9 @@ def _water_pressures(model, result, train, states) -> dict:
 
 
 def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_cond, y,
-           x_boiler) -> None:
-    """Condenser, heaters and pumps in water-flow order, streams labelled."""
+           x_boiler) -> int:
+    """Condenser, heaters and pumps in water-flow order, streams labelled; returns the
+    number of drains drawn [-]."""
     p_out = _water_pressures(model, result, train, states)
     dp_out = (_water_pressures(model, design, train, dstates) if design is not None else {})
     # condenser
@@ -457,16 +481,17 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
     nodes = result.tables["nodes"]
     i_c = nodes.names.index(model.feedwater.condenser)
     svg.text(x_cond + 34, y + 30, "condenser pressure", 8, colour="#555555")
-    pc = _disp(nodes.columns["pressure"][i_c], "Pa") * 100  # kPa
+    pc = fmt.disp(nodes.columns["pressure"][i_c], "Pa", "back_pressure")  # kPa or inHg
     dpc = None
     if design is not None:
         dn = design.tables["nodes"]
-        dpc = _disp(dn.columns["pressure"][dn.names.index(model.feedwater.condenser)],
-                    "Pa") * 100
-    svg.text(x_cond + 34, y + 41, fmt(pc, 2, dpc) + [(" kPa", None)], 8)
+        dpc = fmt.disp(dn.columns["pressure"][dn.names.index(model.feedwater.condenser)],
+                       "Pa", "back_pressure")
+    svg.text(x_cond + 34, y + 41, fmt(pc, 2, dpc) + [(fmt.unit("Pa", "back_pressure"), None)],
+             8)
     prev_x = x_cond - 30
     drain_lane = y + 72
-    n_drains = 0
+    drains: list = []
     for k, name in enumerate(train):
         x = item_x[name]
         h = states.get(name)
@@ -496,9 +521,9 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
             svg.text(x, y - 24, "out of service", 8, "middle", colour="#999999")
         elif h is not None:
             svg.text(x + 4, y - 24, [("shell ", None)]
-                     + fmt(_disp(h.shell_pressure, "Pa"), 3,
-                           _disp(dh.shell_pressure, "Pa") if dh and dh.in_service else None)
-                     + [(" bar", None)], 8, "start", colour="#444444")
+                     + fmt(fmt.disp(h.shell_pressure, "Pa"), 3 if fmt.units == "metric" else 2,
+                           fmt.disp(dh.shell_pressure, "Pa") if dh and dh.in_service else None)
+                     + [(fmt.unit("Pa"), None)], 8, "start", colour="#444444")
             if not deaer and h.drain_flow > 0:
                 target = heater.drain_to
                 if target in model.heaters and target in states and \
@@ -512,20 +537,81 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
                 else:
                     xt = item_x.get(target, x_cond)
                 svg.line([(x - 10, y + 18), (x - 10, drain_lane), (xt + 10, drain_lane),
-                          (xt + 10, y + 18)], "#2171b5", 1.0, "4,3", arrow=True)
-                svg.text(x - 6, drain_lane - 3, [("drain ", None)]
-                         + fmt(h.drain_flow, 2, dh.drain_flow if dh else None)
-                         + [(" kg/s, ", None)]
-                         + fmt(_disp(h.T_drain, "K"), 1,
-                               _disp(dh.T_drain, "K") if dh and dh.in_service else None)
-                         + [(" \u00b0C", None)], 7, "start", colour="#2171b5")
-                drain_lane += 12
-                n_drains += 1
+                          (xt + 10, y + 18)], "#2171b5", 1.0, "4,3", arrow=True, cls="drain")
+                drains.append((x - 10, xt + 10, drain_lane, [("drain ", None)]
+                               + fmt(fmt.disp(h.drain_flow, "kg/s"), 2,
+                                     fmt.disp(dh.drain_flow, "kg/s") if dh else None)
+                               + [(fmt.unit("kg/s") + ", ", None)]
+                               + fmt(fmt.disp(h.T_drain, "K"), 1,
+                                     fmt.disp(dh.T_drain, "K") if dh and dh.in_service
+                                     else None)
+                               + [(fmt.unit("K"), None)]))
+                drain_lane += LANE_DRAIN
         prev_x = x - 30
     # final feedwater to the boiler
     _stream_label(svg, fmt, result, design, train, len(train) - 1, p_out, dp_out,
                   (prev_x + x_boiler + 40) / 2, y)
-    return n_drains
+    for (x0, y0), pieces in zip(_place_drain_labels(drains, 10.0, x_cond + 140.0), drains):
+        svg.text(x0, y0, pieces[3], DRAIN_FONT, "start", colour="#2171b5", cls="drain")
+    return len(drains)
+
+
+def text_width(pieces, size: float) -> float:
+    """Estimated width of a line of text [px]: 0.6 em a character, more than the
+    advance of Helvetica's and Arial's digits (0.556 em, from memory) and than the
+    drain labels of the demo models drawn by Chromium in DejaVu Sans (at most
+    0.51 em a character, measured), so an upper bound for labels of digits, units
+    and spaces.
+
+    Parameters
+    ----------
+    pieces : the text, or its ``[(text, colour)]`` pieces [-]
+    size : font size [px]
+    """
+    text = pieces if isinstance(pieces, str) else "".join(t for t, _c in pieces)
+    return 0.6 * size * len(text)
+
+
+def _place_drain_labels(drains, x_min: float, x_max: float) -> list[tuple[float, float]]:
+    """Where each drain's label starts: ``[(x, baseline y)]`` [px].
+
+    A label sits under the horizontal run of its own drain line, at the height of
+    no other label's (the runs are ``LANE_DRAIN`` apart and a label is shorter),
+    so no two labels overlap.  Along that band the only lines are the vertical
+    legs of the drains with lower runs; the label is put where it crosses none of
+    them (and no other label), as near as it can to the right of its own drain's
+    first leg, else to the left of it.
+
+    Parameters
+    ----------
+    drains : ``(x of the leg leaving the heater, x of the leg arriving, y of the
+        run, label pieces)`` of every drain [px, px, px, -]
+    x_min, x_max : the room the labels have, left and right [px]
+    """
+    placed: list[tuple[float, float, float, float]] = []
+    out = []
+    for x_from, _x_to, lane, pieces in drains:
+        w = text_width(pieces, DRAIN_FONT)
+        base = lane + DRAIN_FONT + 2.0
+        top, bottom = base - DRAIN_FONT, base + 0.3 * DRAIN_FONT
+        legs = sorted(x for a, b, run, _p in drains if run > lane for x in (a, b))
+        gap = 3.0  # [px] kept clear round a leg
+        taken = [(x - gap, x + gap) for x in legs] + [
+            (x0, x1) for x0, y0, x1, y1 in placed if y0 < bottom and top < y1]
+        want = x_from + 4.0
+
+        def free(x0, w=w, taken=taken):
+            return x_min <= x0 and x0 + w <= x_max and all(
+                x0 + w <= a or b <= x0 for a, b in taken)
+
+        # candidate starts: the wanted one, and just after or just before each
+        # obstacle; the free one nearest the wanted start, the right side first
+        starts = [want] + [b for _a, b in taken] + [a - w for a, _b in taken]
+        ok = [x0 for x0 in starts if free(x0)]
+        x0 = min(ok, key=lambda v: (abs(v - want), v < want)) if ok else want
+        placed.append((x0, top, x0 + w, bottom))
+        out.append((x0, base))
+    return out
 
 
 def _stream_label(svg, fmt, result, design, train, k, p_out, dp_out, x, y):
@@ -555,16 +641,15 @@ def _stream_label(svg, fmt, result, design, train, k, p_out, dp_out, x, y):
     dm, dhh = state(design, dp) or (None, None)
     T = steam.T_ph(p, hh)
     dT = steam.T_ph(dp, dhh) if dp is not None and dhh is not None else None
-    rows = [fmt(m, 2, dm) + [(" kg/s", None)],
-            fmt(_disp(p, "Pa"), 2, None if dp is None else _disp(dp, "Pa")) + [(" bar", None)],
-            fmt(_disp(T, "K"), 1, None if dT is None else _disp(dT, "K")) + [(" \u00b0C", None)],
-            fmt(_disp(hh, "J/kg"), 1, None if dhh is None else _disp(dhh, "J/kg"))
-            + [(" kJ/kg", None)]]
+    rows = [fmt(fmt.disp(m, "kg/s"), 2, fmt.disp(dm, "kg/s")) + [(fmt.unit("kg/s"), None)],
+            fmt(fmt.disp(p, "Pa"), 2, fmt.disp(dp, "Pa")) + [(fmt.unit("Pa"), None)],
+            fmt(fmt.disp(T, "K"), 1, fmt.disp(dT, "K")) + [(fmt.unit("K"), None)],
+            fmt(fmt.disp(hh, "J/kg"), 1, fmt.disp(dhh, "J/kg")) + [(fmt.unit("J/kg"), None)]]
     for j, r in enumerate(rows):
         svg.text(x, y + 28 + 9 * j, r, 7, "middle", colour="#08519c", cls="stream")
 
 
-def _plant_lines(model, result) -> list:
+def _plant_lines(model, result, units: str = "metric") -> list:
     """A line for each component of the plant around the turbine (condensers,
     auxiliaries, boiler): its declared results in display units."""
     lines = []
@@ -577,7 +662,8 @@ def _plant_lines(model, result) -> list:
         for col in table.declared:
             if not col.console or col.dtype != "f8":
                 continue
-            value, unit = to_display_unit([table.columns[col.name][k]], col.unit, col.display)
+            value, unit = to_display_unit([table.columns[col.name][k]], col.unit, col.display,
+                                          units, col.name)
             if math.isfinite(float(value[0])):
                 parts.append(f"{col.label or col.name.replace('_', ' ')} {float(value[0]):.5g}"
                              + (f" {unit}" if unit and unit != "-" else ""))
@@ -595,36 +681,35 @@ def _box(svg, model, result, design, fmt, cautions, case_name) -> None:
     def v(key, unit, digits, scale=1.0):
         val = t.get(key)
         dv = d.get(key)
-        return fmt(None if val is None else _disp(val, unit) * scale, digits,
-                   None if dv is None else _disp(dv, unit) * scale)
+        return fmt(None if val is None else fmt.disp(val, unit) * scale, digits,
+                   None if dv is None else fmt.disp(dv, unit) * scale)
 
     x, y = 10, 40
     lines = [
-        [("generator output ", None)] + v("generator_output", "W", 2) + [(" MW", None)],
-        [("shaft power ", None)] + v("shaft_power", "W", 2) + [(" MW", None)],
+        [("generator output ", None)] + v("generator_output", "W", 2) + [(fmt.unit("W"), None)],
+        [("shaft power ", None)] + v("shaft_power", "W", 2) + [(fmt.unit("W"), None)],
         [("heat added (boiler + reheater) ", None)] + v("heat_added", "W", 1)
-        + [(" MW", None)],
-        [("turbine-cycle heat rate ", None)] + v("heat_rate", "J/J", 1) + [(" kJ/kWh", None)],
+        + [(fmt.unit("W"), None)],
+        [("turbine-cycle heat rate ", None)] + v("heat_rate", "J/J", 1)
+        + [(fmt.unit("J/J"), None)],
         [("  = heat added / generator output (boiler efficiency not included)", None)],
     ]
     if abs(t.get("process_steam_energy", 0.0)) > 1e-6 * max(abs(t.get("heat_added", 1.0)), 1):
         lines.append([("heat rate of power ", None)] + v("heat_rate_power", "J/J", 1)
-                     + [(" kJ/kWh", None)])
+                     + [(fmt.unit("J/J"), None)])
         lines.append([("  = heat chargeable to power (heat added less process steam energy)"
                        " / output", None)])
     nodes = result.tables["nodes"]
-    p_ex = [_disp(nodes.columns["pressure"][nodes.names.index(n)], "Pa") * 100
+    p_ex = [fmt.disp(nodes.columns["pressure"][nodes.names.index(n)], "Pa", "back_pressure")
             for n in model.exhaust_nodes]
-    lines.append([("throttle ", None)] + v("throttle_flow", "kg/s", 2) + [(" kg/s; governing: "
-                                                                           f"valves "
-                                                                           f"{result.valve_mode}"
-                                                                           f", pressure "
-                                                                           f"{result.pressure_mode}",
-                                                                           None)])
-    lines.append([("back pressure " + ", ".join(f"{p:.2f}" for p in p_ex) + " kPa; "
+    lines.append([("throttle ", None)] + v("throttle_flow", "kg/s", 2)
+                 + [(f"{fmt.unit('kg/s')}; governing: valves {result.valve_mode}, pressure "
+                     f"{result.pressure_mode}", None)])
+    lines.append([("back pressure " + ", ".join(f"{p:.2f}" for p in p_ex)
+                   + f"{fmt.unit('Pa', 'back_pressure')}; "
                    + f"generator: {model.generator.name}; " + f"properties {result.backend}",
                    None)])
-    lines += _plant_lines(model, result)
+    lines += _plant_lines(model, result, fmt.units)
     if cautions:
         codes = sorted({getattr(c, "code", None) or c.get("code", "") for c in cautions})
         lines.append([("cautions (red rings): " + ", ".join(codes), "#d62728")])

@@ -18,9 +18,11 @@ sheet inline; there is no script and nothing is fetched from a network.
   generated energy [MWh], heat added [MWh] and the average turbine-cycle heat
   rate (heat added over energy generated, so weighted by energy) [kJ/kWh].
 
-Numbers are shown in the display units of :mod:`simulator.units` (bar, degC,
-MW, kJ/kWh).  :func:`write_report` picks the kind from the file given and
-writes the page whole or not at all.
+Numbers are shown in the display units of :mod:`simulator.units`, metric
+(bar, degC, kg/s, MW, kJ/kWh; the default) or US customary (``units="us"``:
+psia, degF, klb/h, MW, Btu/kWh, a back pressure in inHg), in the tables, the
+diagrams and the charts alike.  :func:`write_report` picks the kind from the
+file given and writes the page whole or not at all.
 """
 
 from __future__ import annotations
@@ -126,7 +128,7 @@ def _file_sha(path) -> str:
 
 def point_report(case, *, backend: str | None = None, design: bool = True,
                  conditions=None, label: str = "", source: list | None = None,
-                 check_limits: bool = True) -> str:
+                 check_limits: bool = True, units: str = "metric") -> str:
     """The report of one operating point of a case, as HTML text.
 
     Parameters
@@ -140,6 +142,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
     source : further provenance rows ``[item, value]`` (HTML) [-]
     check_limits : refuse a point beyond the valves wide open (``False``: solve
         it as a what-if, as a study run with ``--beyond-limits`` did) [-]
+    units : display units, ``"metric"`` (default) or ``"us"`` [-]
     """
     from ..cautions.checks import check_point
     from ..plant.case import design_conditions, load_case
@@ -155,7 +158,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
     r = solve_point(model, cond, backend, check_limits=check_limits)
     cautions = check_point(model, cond, r)
     d = solve_point(model, design_conditions(model), backend) if design else None
-    info = point_to_dict(r, case.name, cautions)
+    info = point_to_dict(r, case.name, cautions, units)
     name = case.name + (f", {label}" if label else "")
     body = [f"<h1>Operating point: {_esc(name)}</h1>",
             f'<p>{_esc(model.name)}{": " + _esc(case.description) if case.description else ""}'
@@ -181,16 +184,16 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
         body.append("<p>None of the operating-limit checks is exceeded (the checks cover "
                     "only what the model knows).</p>")
     body.append("<h2>Heat balance</h2>")
-    svg = diagram_svg(model, r, case_name=name, cautions=cautions)
+    svg = diagram_svg(model, r, case_name=name, cautions=cautions, units=units)
     body.append(f'<div class="figure">{_svg_body(svg)}</div>')
     if d is not None:
         body.append("<h2>Difference from design</h2>")
-        svg = diagram_svg(model, r, case_name=name, design=d, cautions=cautions)
+        svg = diagram_svg(model, r, case_name=name, design=d, cautions=cautions, units=units)
         body.append(f'<div class="figure">{_svg_body(svg)}</div>')
     body.append("<h2>Totals</h2>")
     tu = info["units"]["totals"]
     rows = []
-    dinfo = point_to_dict(d, "design") if d is not None else None
+    dinfo = point_to_dict(d, "design", units=units) if d is not None else None
     for k, v in info["totals"].items():
         row = [_esc(k.replace("_", " ")), _num(v, 3), _esc(tu.get(k, ""))]
         if dinfo is not None:
@@ -246,15 +249,16 @@ def _provenance(st) -> list[list[str]]:
     return rows
 
 
-def _series_summary(st) -> str:
+def _series_summary(st, units: str = "metric") -> str:
     from ..store import to_display
 
     def disp(key):
-        return to_display(st.data[key], st.units.get(key, ""), key, st.display.get(key))[0]
+        return to_display(st.data[key], st.units.get(key, ""), key, st.display.get(key),
+                          units)
 
-    P = disp("totals/generator_output")
-    m = st.total("throttle_flow")
-    HR = disp("totals/heat_rate") if "totals/heat_rate" in st.data else None
+    P, p_unit = disp("totals/generator_output")
+    m, m_unit = disp("totals/throttle_flow")
+    HR, hr_unit = disp("totals/heat_rate") if "totals/heat_rate" in st.data else (None, "")
     cz = st.cautions
     rows = []
     labels = st.series_labels or [""]
@@ -275,11 +279,11 @@ def _series_summary(st) -> str:
         rows.append(row)
     heads = ["series", "points", "converged", "failed", "with cautions", "flow min",
              "flow max", "output min", "output max"]
-    units = ["", "", "", "", "", "kg/s", "kg/s", "MW", "MW"]
+    shown = ["", "", "", "", "", m_unit, m_unit, p_unit, p_unit]
     if HR is not None:
         heads += ["heat rate at max output", "lowest heat rate"]
-        units += ["kJ/kWh", "kJ/kWh"]
-    return _table(heads, rows, units)
+        shown += [hr_unit, hr_unit]
+    return _table(heads, rows, shown)
 
 
 def profile_totals(st, series: int | None = None) -> list[dict]:
@@ -329,14 +333,16 @@ def profile_totals(st, series: int | None = None) -> list[dict]:
     return out
 
 
-def study_report(path) -> str:
+def study_report(path, units: str = "metric") -> str:
     """The report of a study result file (a sweep or a profile), as HTML text.
 
     Parameters
     ----------
     path : the result file (HDF5) [-]
+    units : display units, ``"metric"`` (default) or ``"us"`` [-]
     """
     from ..store import read_study
+    from ..units import to_display_unit
     from . import charts as ch
 
     st = read_study(path)
@@ -357,7 +363,7 @@ def study_report(path) -> str:
                 f"{int(np.sum(st.status < 0))} not solved"
                 + (f", {int(np.sum(cz > 0))} with operating-limit cautions" if cz is not None
                    else "") + ".</p>")
-    body.append(_series_summary(st))
+    body.append(_series_summary(st, units))
     if profile:
         body.append("<h2>Monthly and annual totals</h2>")
         labels = st.series_labels if len(st.series_labels) > 1 else [None]
@@ -366,25 +372,26 @@ def study_report(path) -> str:
                 body.append(f"<h3>{_esc(label)}</h3>")
             rows = []
             for t in profile_totals(st, None if label is None else k):
+                hr, hr_unit = to_display_unit(t["heat_rate"] / 3600.0, "J/J", system=units)
                 rows.append([_esc(t["period"]), _num(t["hours"], 0),
                              _num(t["solved_hours"], 0), _num(t["energy"], 0),
-                             _num(t["heat"], 0), _num(t["heat_rate"], 1)])
+                             _num(t["heat"], 0), _num(float(hr), 1)])
             body.append(_table(["period", "hours", "solved hours", "energy generated",
                                 "heat added", "average heat rate"], rows,
-                               ["", "h", "h", "MWh", "MWh", "kJ/kWh"]))
+                               ["", "h", "h", "MWh", "MWh", hr_unit]))
         body.append('<p class="note">Average heat rate: heat added over energy generated in '
                     "the period (converged points only), the turbine-cycle heat rate weighted "
                     "by energy.</p>")
         for name, fn in ch.PROFILE_CHARTS.items():
             body.append(f"<h2>{_esc(name.replace('_', ' ').capitalize())}</h2>")
-            body.append(_png(fn([st]), name))
+            body.append(_png(fn([st], units=units), name))
     body.append("<h2>Charts</h2>")
     for name, fn in ch.CHARTS.items():
         if name == "heat_rate" and "totals/heat_rate" not in st.data:
             continue
         if n_ok == 0:
             break
-        body.append(_png(fn([st]), name))
+        body.append(_png(fn([st], units=units), name))
     return _page(f"partload {kind}: {st.name}", body)
 
 
@@ -442,7 +449,7 @@ def study_point(path, index: int, backend: str | None = None):
 
 
 def write_report(source, output=None, *, backend: str | None = None,
-                 point: int | None = None) -> Path:
+                 point: int | None = None, units: str = "metric") -> Path:
     """Write the report of a case file (one point) or a result file (a study).
 
     Parameters
@@ -454,6 +461,7 @@ def write_report(source, output=None, *, backend: str | None = None,
     backend : steam properties for a case (default: the case's) [-]
     point : with a result file, the report of this point (index from 0)
         instead of the study's: the point re-solved from the study's case [-]
+    units : display units, ``"metric"`` (default) or ``"us"`` [-]
 
     Returns
     -------
@@ -461,18 +469,22 @@ def write_report(source, output=None, *, backend: str | None = None,
         The file written (whole or not at all).
     """
     from ..store import write_whole
+    from ..units import SYSTEMS
 
+    if units not in SYSTEMS:
+        raise InputError(f"units must be one of {', '.join(SYSTEMS)}, not {units!r}",
+                         key="units")
     source = Path(source)
     if source.suffix.lower() == ".toml":
-        text = point_report(source, backend=backend)
+        text = point_report(source, backend=backend, units=units)
         default = Path("results") / f"{source.stem}_report.html"
     elif source.suffix.lower() in (".h5", ".hdf5") and point is not None:
         case, cond, label, rows, be, check = study_point(source, point, backend)
         text = point_report(case, backend=be, conditions=cond, label=label, source=rows,
-                            check_limits=check)
+                            check_limits=check, units=units)
         default = source.with_name(f"{source.stem}_point{point}_report.html")
     elif source.suffix.lower() in (".h5", ".hdf5"):
-        text = study_report(source)
+        text = study_report(source, units)
         default = source.with_name(f"{source.stem}_report.html")
     else:
         raise InputError(f"{source}: give a case file (.toml) for a point report or a study "

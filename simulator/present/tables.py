@@ -303,18 +303,16 @@ def format_model(model, units: str = "metric") -> str:
     if model.heaters:
         diff_u = _d(0.0, "K", units, display="K")[1]
         lines.append(_table("Heaters", ["heater", "type", "extraction", "TTD", "DCA", "drains to",
-                                        "design duty", "closure"],
+                                        "design duty"],
                             [[h.name, h.heater_type, ", ".join(h.extractions),
                               _d(h.ttd, "K", units, display="K")[0]
                               if h.heater_type == "closed" else None,
                               _d(h.dca, "K", units, display="K")[0] if h.dca is not None
                               else None,
                               h.drain_to if h.heater_type == "closed" else "",
-                              h.duty_design / 1e6, h.closure]
+                              h.duty_design / 1e6]
                              for h in model.heaters.values()],
-                            ["", "", "", diff_u, diff_u, "", "MW", "-"]))
-        lines.append("  closure = feedwater duty / heat given up by bleed and drains at design;"
-                     " 1 for a consistent heat balance")
+                            ["", "", "", diff_u, diff_u, "", "MW"]))
         lines.append("")
     g = model.generator
     lines.append(f"generator: rating {g.rating / 1e6:.2f} MW; losses: mechanical "
