@@ -141,9 +141,10 @@ def _columns(declared, rows) -> dict:
         # one conversion for the whole table, each column a copy of its own
         table = np.array(rows, dtype=float).T.copy()
         return {col.name: table[k] for k, col in enumerate(declared)}
+    by_column = list(zip(*rows)) if rows else [()] * len(declared)
     out = {}
     for k, col in enumerate(declared):
-        values = [row[k] for row in rows]
+        values = list(by_column[k])
         if col.dtype == "text":
             out[col.name] = values
         elif col.dtype == "f8":
@@ -191,7 +192,7 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
         "exhaust_flow": sum(st["M"][eq.idx[n]] for n in model.exhaust_nodes),
     }
     reheat = 0.0
-    for q in tables["steam_path"].columns["heat"]:
+    for q in tables["steam_path"].columns["heat"].tolist():
         reheat += q
     totals["reheat_heat"] = reheat
     fw = st["feedwater"]
@@ -199,7 +200,8 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
         return totals
     heaters = list(fw["heaters"].values())
     h_T = h[src]
-    ex = tables["extractions"].columns if "extractions" in tables else {"flow": [], "enthalpy": []}
+    ex = (tables["extractions"].columns if "extractions" in tables
+          else {"flow": np.zeros(0), "enthalpy": np.zeros(0)})
     boiler = perf.heat_added(m_T, h_T, fw["h_feedwater"], reheat)
     if eq.sh_from_pump:  # superheater spray water from the pump, not the final feedwater
         boiler += eq.sh_from_pump * (fw["h_feedwater"] - _spray_enthalpy(model, st))
@@ -222,8 +224,8 @@ def _totals(model, eq, st, tables) -> dict[str, float]:
         fw["m_condensate"], h_c)
     heater_loss = sum(hs.steam_release - hs.duty for hs in heaters if hs.in_service)
     totals["heater_heat_loss"] = heater_loss
-    process = sum(f * hh for f, hh, b in zip(ex["flow"], ex["enthalpy"], eq.bleeds)
-                  if b[2] != 2)
+    process = sum(f * hh for f, hh, b in zip(ex["flow"].tolist(), ex["enthalpy"].tolist(),
+                                             eq.bleeds) if b[2] != 2)
     totals["process_steam_energy"] = perf.net_process_steam_energy(process, makeup, h_c)
     # equal to heat_rate for a unit without process steam
     totals["heat_rate_power"] = perf.heat_rate(
