@@ -333,11 +333,13 @@ def bench_profile(quick: bool) -> dict:
     repeats = 1 if quick else 3
     for workers in (1, 2):
         runs = [_profile_run(case, workers, quick) for _ in range(repeats)]
-        walls = [r["wall_s"] for r in runs]
+        # a run that failed measured nothing: its time is left out (none left: not measured)
+        walls = [r["wall_s"] for r in runs if r["returncode"] == 0]
         peaks = [r["peak_memory_mb"] for r in runs if r["peak_memory_mb"] is not None]
         largest = [r["largest_process_mb"] for r in runs if r.get("largest_process_mb")]
         out[f"workers_{workers}"] = {
-            **runs[-1], "wall_s": statistics.median(walls), "wall_s_runs": walls,
+            **runs[-1], "wall_s": statistics.median(walls) if walls else None,
+            "wall_s_runs": walls,
             "peak_memory_mb": max(peaks) if peaks else None,
             "largest_process_mb": max(largest) if largest else None,
             "returncode": max(r["returncode"] for r in runs), "repeats": repeats}
@@ -746,7 +748,8 @@ def _print(report: dict) -> None:
           f"on pressures to {cmp_['backends_pressure_agreement']:.1e}")
     for k, v in report.get("profile", {}).items():
         if isinstance(v, dict):
-            print(f"profile {k}: {v['points']} points in {v['wall_s']:.1f} s, peak "
+            wall = "-" if v["wall_s"] is None else f"{v['wall_s']:.1f}"
+            print(f"profile {k}: {v['points']} points in {wall} s, peak "
                   f"{v['peak_memory_mb']} MB (largest process "
                   f"{v.get('largest_process_mb')} MB), exit {v['returncode']}")
 
