@@ -85,14 +85,9 @@ def load_model(path: str | Path) -> Model:
     InputError
         A mistake in the file, naming file, table and key.
     """
-    from .inputs.reading import load_toml
-    from .measure.tested import is_as_tested, load_as_tested
     from .plant.model import load_model as _load_model
 
-    data, _ = load_toml(path)
-    if is_as_tested(data):  # a fitted model file ("as tested", partload fit)
-        return load_as_tested(path)
-    return _load_model(path)
+    return _load_model(path)  # a design model file, or a fitted one (plant/fitted.py)
 
 
 def load_case(path: str | Path) -> Case:

@@ -449,4 +449,9 @@ def fit(meas: Measurements, tunables: list[str] | None = None,
     if not keys:
         raise InputError("no tunables to fit: list them in [fit] tunables", file=meas.file,
                          table="fit", key="tunables")
+    if meas.model.fitted:
+        raise InputError(f"the map's model is a fitted (as tested) model, of "
+                         f"{', '.join(k for k, _v in meas.model.fitted)}; fit from its design "
+                         f"model, with every tunable to fit listed in [fit] tunables",
+                         file=meas.file, key="model")
     return _solve_setting_aside(meas, keys, backend, set_aside)

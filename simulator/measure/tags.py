@@ -45,6 +45,7 @@ import numpy as np
 from ..components.registry import KINDS
 from ..errors import InputError
 from ..inputs.reading import closest, csv_table, load_toml
+from ..plant.fitted import TunableRef, resolve_tunable
 from ..units import Where, linear_factors, parse
 
 __all__ = ["Tag", "TunableRef", "Measurements", "read_measurements", "read_tags", "COVERAGE",
@@ -106,19 +107,6 @@ class Tag:
         the coverage factor [SI]."""
         u = self.absolute if self.absolute is not None else self.relative * abs(value)
         return u / COVERAGE
-
-
-@dataclass(frozen=True)
-class TunableRef:
-    """A declared tunable of one component: ``key`` as the map writes it."""
-
-    key: str
-    component: object
-    tunable: object
-
-    @property
-    def design(self) -> float:
-        return float(getattr(self.component, self.tunable.attribute))
 
 
 @dataclass
@@ -200,38 +188,6 @@ def _quantity(text, model, w: Where) -> tuple[tuple[str, str, str], str]:
     if dim is None:
         raise w.error(f"{text!r} is not a measurable quantity (unit {unit!r})")
     return (group, item, column), dim
-
-
-def resolve_tunable(model, key, w: Where) -> TunableRef:
-    """The tunable ``key`` (``TABLE.NAME.TUNABLE`` or ``TABLE.TUNABLE``) of ``model``."""
-    if not isinstance(key, str) or "." not in key:
-        raise w.error(f"expected a tunable such as 'stage_group.HP1.efficiency', got {key!r}")
-    table, rest = key.split(".", 1)
-    kind = KINDS.get(table)
-    if kind is None or not kind.tunables:
-        known = [t for t, k in KINDS.items() if k.tunables]
-        raise w.error(f"no kind with tunables called {table!r}; known: {', '.join(known)}"
-                      + closest(table, known))
-    if kind.many:
-        if "." not in rest:
-            raise w.error(f"write a tunable of {table} as '{table}.NAME.TUNABLE', not {key!r}")
-        name, tname = rest.rsplit(".", 1)
-        comps = {c.name: c for c in model.of_kind(kind)}
-        if name not in comps:
-            raise w.error(f"the model has no {kind.title or table} {name!r}"
-                          + closest(name, comps))
-        comp = comps[name]
-    else:
-        tname = rest
-        comps = model.of_kind(kind)
-        if not comps:
-            raise w.error(f"the model has no [{table}]")
-        comp = comps[0]
-    tunables = {t.name: t for t in kind.tunables}
-    if tname not in tunables:
-        raise w.error(f"{table} declares no tunable {tname!r}; known: {', '.join(tunables)}"
-                      + closest(tname, tunables))
-    return TunableRef(key, comp, tunables[tname])
 
 
 def _uncertainty(text, dim: str, w: Where) -> tuple[float | None, float | None]:

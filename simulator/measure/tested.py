@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import copy
 import datetime as _dt
-import hashlib
 import json
 import os
 from dataclasses import dataclass
@@ -24,20 +23,16 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputError
-from ..inputs.reading import load_toml
 from ..plant.case import design_conditions
+from ..plant.fitted import BASIS, is_as_tested, load_as_tested, resolve_tunable
 from ..solve.point import solve_point
 from ..units import Where
 from ..version import __version__
 from .fit import FitResult
-from .tags import COVERAGE, resolve_tunable
+from .tags import COVERAGE
 
 __all__ = ["Deviation", "deviation_report", "write_as_tested", "load_as_tested", "BASIS",
-           "predict", "monte_carlo_band"]
-
-#: the basis a fitted model file states
-BASIS = "as tested"
+           "is_as_tested", "predict", "monte_carlo_band"]
 
 
 @dataclass
@@ -273,63 +268,3 @@ def write_as_tested(result: FitResult, path: str | Path) -> Path:
         if tmp.exists():
             tmp.unlink()
     return path
-
-
-def is_as_tested(data: dict) -> bool:
-    """Whether TOML ``data`` is a fitted model file."""
-    return data.get("basis") == BASIS and "design_model" in data
-
-
-def load_as_tested(path: str | Path):
-    """Read a fitted model file: the design model, calibrated, with the fitted
-    constants put in.
-
-    Parameters
-    ----------
-    path : the fitted model file (TOML) [-]
-
-    Returns
-    -------
-    Model
-        Named "<design name> (as tested)".
-
-    Raises
-    ------
-    InputError
-        Not a fitted model file, a design model changed since the fit, or an
-        unknown or out-of-range tunable (file, table and key named).
-    """
-    from ..plant.model import load_model
-
-    path = Path(path)
-    file = str(path)
-    data, _ = load_toml(path)
-    if not is_as_tested(data):
-        raise InputError(f"not a fitted model file (expected basis = {BASIS!r} and "
-                         f"design_model)", file=file, key="basis")
-    if not isinstance(data["design_model"], str):
-        raise Where(file, None, "design_model").error("expected a path relative to this file")
-    target = path.parent / data["design_model"]
-    model = load_model(target)
-    want = data.get("design_model_sha256")
-    if want is not None and want != hashlib.sha256(Path(target).read_bytes()).hexdigest():
-        raise Where(file, None, "design_model_sha256").error(
-            f"the design model {str(target)!r} changed since the fit; fit again")
-    tables = data.get("tunables", {})
-    if not isinstance(tables, dict):
-        raise Where(file, "tunables").error("expected tables [tunables.\"KEY\"]")
-    for key, t in tables.items():
-        w = Where(file, f"tunables.{key}")
-        ref = resolve_tunable(model, key, w)
-        if not isinstance(t, dict) or not isinstance(t.get("value"), (int, float)):
-            raise w.child("value").error("expected a number")
-        value = float(t["value"])
-        if not ref.tunable.lo <= value <= ref.tunable.hi:
-            raise w.child("value").error(f"{value!r} is outside {ref.tunable.lo}..."
-                                         f"{ref.tunable.hi} [{ref.tunable.unit}]")
-        setattr(ref.component, ref.tunable.attribute, value)
-    model.name = f"{model.name} ({BASIS})"
-    model.description = (f"{model.description}. AS TESTED: constants fitted to measured data "
-                         f"({file}), not the design values")
-    model.solver_cache.clear()
-    return model

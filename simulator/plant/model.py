@@ -50,6 +50,7 @@ from ..steam.if97 import P_MAX, P_MIN, T_MAX, T_MIN, SteamTables, get_backend
 from ..units import Where, parse
 from .calibrate import calibrate, rewrite_design_flows
 from .feedwater_train import FeedwaterTrain, read_feedwater
+from .fitted import is_as_tested, load_as_tested
 from .limits import Limits, default_limits, read_limits
 from .topology import build_graph
 
@@ -96,6 +97,9 @@ class Model:
     limits: Limits = field(default_factory=default_limits)
     warnings: list[str] = field(default_factory=list)
     atmosphere: float | None = None  # [Pa] stated local atmosphere, for gauge pressures
+    # tunables set to fitted values after calibration, (key, value) pairs [unit of each]:
+    # a model read from a fitted ("as tested") file, see plant/fitted.py
+    fitted: tuple = ()
     # compiled equations kept by the solver, one per structure and thread
     # (simulator.solve.equations.equations_for); not part of the model's identity
     solver_cache: dict = field(default_factory=dict, repr=False, compare=False)
@@ -171,8 +175,12 @@ class Model:
 
 
 def load_model(path: str | Path, steam: SteamTables | None = None) -> Model:
-    """Read, validate and calibrate the model file at ``path``."""
+    """Read, validate and calibrate the model file at ``path``: a design model, or
+    a fitted ("as tested") model file, read as its design model with the fitted
+    constants put in (:func:`~simulator.plant.fitted.load_as_tested`)."""
     data, text = load_toml(path)
+    if is_as_tested(data):
+        return load_as_tested(path)
     return build_model(data, text=text, file=str(path), steam=steam)
 
 

@@ -34,7 +34,10 @@ Root attributes
     ``format`` = ``"partload-study"``, ``format_version`` (2), ``software``
     (``"partload"``), ``software_version``, ``created`` (UTC, ISO 8601),
     ``property_backend``, ``units`` (a reminder that all is SI),
-    ``model_name``, ``model_path``, ``model_sha256``, ``case_name``,
+    ``model_name``, ``model_path``, ``model_sha256``, ``model_fitted`` (a
+    fitted, as tested, model only: its fitted tunables, ``KEY = VALUE`` a line,
+    set after calibrating the design model of ``/model_file``; the SHA-256
+    then covers them too), ``case_name``,
     ``case_description``, ``case_path``, ``case_sha256``, ``profile_path``
     and ``profile_sha256`` (profile studies), ``throttle_node`` and
     ``valve_outlet_node`` (the throttle valves' nodes),

@@ -521,6 +521,8 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
     except ValueError:  # another drive
         a["model_path"] = Path(model.file).name
     a["model_sha256"] = model.sha256
+    if getattr(model, "fitted", ()):  # a fitted model: /model_file is its design model
+        a["model_fitted"] = "\n".join(f"{k} = {v!r}" for k, v in model.fitted)
     a["case_name"] = case.name
     a["case_description"] = case.description
     a["case_path"] = str(case.file)
@@ -609,6 +611,15 @@ def _check_same_study(f: h5py.File, path: Path, plan) -> None:
         if not re.fullmatch(r"[0-9a-f]{64}", attr(k)):
             raise ResultFileError(
                 f"{path} is damaged: its {k} attribute is not a SHA-256 digest. {fix}")
+    was_fitted = f.attrs.get("model_fitted")
+    if attr("model_sha256") != model.sha256 and (was_fitted is not None or model.fitted):
+        now = "; ".join(f"{k} = {v!r}" for k, v in model.fitted) or "none (the design model)"
+        then = (attr("model_fitted").replace("\n", "; ") if was_fitted is not None
+                else "none (the design model)")
+        raise ResultFileError(
+            f"cannot resume {path}: the model's fitted values have changed since this study "
+            f"was started (then: {then}; now: {now}), or its design model has; resuming "
+            f"would mix results of two machines. {fix}")
     if attr("model_sha256") != model.sha256:
         raise ResultFileError(
             f"cannot resume {path}: the model has changed since this study was started. The "

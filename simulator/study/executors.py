@@ -78,7 +78,8 @@ def run_study(plan: StudyPlan, on_result: Callable[[ChunkResult], None], *,
     """
     model = plan.case.model
     layout = layout or result_layout(model)
-    spec = SolveSpec(model.text, model.file, model.sha256, plan.backend, layout, check_limits)
+    spec = SolveSpec(model.text, model.file, model.sha256, plan.backend, layout, check_limits,
+                     model.fitted)
     keep_model(model)  # inherited by forked workers
     todo = [c for c in plan.chunks if c.index not in skip]
     summary = StudySummary(plan.n_points, n_skipped=sum(c.size for c in plan.chunks

@@ -19,6 +19,7 @@ import numpy as np
 
 from ..errors import ConvergenceError, SolveError
 from ..plant.case import Conditions
+from ..plant.fitted import apply_fitted
 from ..plant.model import Model, build_model
 from ..solve.point import PointResult, one_blas_thread, solve_point
 from ..steam.if97 import get_backend
@@ -51,6 +52,7 @@ class SolveSpec:
     backend: str
     layout: ResultLayout
     check_limits: bool = True
+    fitted: tuple = ()  # tunables set after calibration (a fitted model, Model.fitted)
 
 
 @dataclass
@@ -78,6 +80,8 @@ def worker_model(spec: SolveSpec) -> Model:
     if m is None:
         m = build_model(tomllib.loads(spec.model_text), text=spec.model_text,
                         file=spec.model_file)
+        if spec.fitted:  # a fitted model: its design model's text, then the fitted values
+            m = apply_fitted(m, spec.fitted, spec.model_file)
         _MODELS[key] = m
     return m
 
