@@ -141,3 +141,31 @@ def test_renewed_jacobian_is_the_finite_difference_jacobian_at_the_answer():
         np.testing.assert_allclose(r.node_p, cold.node_p, rtol=1e-9)
     # the Broyden-updated Jacobian is never the exact one; the renewed ones are
     assert 5 <= renewed < len(conds)
+
+
+def test_a_jacobian_that_cannot_be_renewed_keeps_the_point(monkeypatch):
+    # a finite-difference column beyond the laws' range after the point converged
+    # (forced here) leaves the point as solved, with the Broyden-updated Jacobian
+    from partload.errors import PropertyRangeError
+    from partload.solve.equations import PointEquations
+
+    case = load_case(ROOT / "cases" / "reheat_hourly_profile.toml")
+    conds = plan_study(case).conditions[:30]
+    steam = get_backend("seuif97")
+    original = PointEquations.fd_jacobian
+    refused = []
+
+    def refuse_at_answers(self, fun, x, F):
+        # the renewal passes the equations' own residuals; Newton passes its counter
+        if fun == self.residuals:
+            refused.append(True)
+            raise PropertyRangeError("forced for the test")
+        return original(self, fun, x, F)
+
+    first = solve_point(case.model, conds[0], steam)
+    monkeypatch.setattr(PointEquations, "fd_jacobian", refuse_at_answers)
+    # solve_point itself keeps the point (the study's other starts are not needed)
+    r = solve_point(case.model, conds[1], steam, neighbour=first, renew_jacobian=1)
+    assert refused and r.jacobian is not None
+    cold = solve_point(case.model, conds[1], broyden=False)
+    np.testing.assert_allclose(r.node_p, cold.node_p, rtol=1e-9)

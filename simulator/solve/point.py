@@ -199,8 +199,11 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
         raise _with_request(exc, cond, eq) from None
     result = build_result(model, cond, steam, eq, nr, st)
     if renew_jacobian is not None and nr.evaluations >= renew_jacobian:
-        _, result.jacobian = eq.fd_jacobian(eq.residuals, nr.x, nr.F)
         result.evaluations += eq.n + 1  # the base march and one per column
+        try:
+            _, result.jacobian = eq.fd_jacobian(eq.residuals, nr.x, nr.F)
+        except SolveError:  # a column beyond the laws' range: keep Broyden's, keep the point
+            pass
     if eq.admission_throttles:
         adm = model.admission
         result.over_capacity = adm.over_capacity(st["admission"], st["p"][eq.src],
