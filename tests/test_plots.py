@@ -168,9 +168,16 @@ def test_demo_command_writes_file_and_charts(tmp_path, monkeypatch, capsys):
             assert np.abs(np.diff(d1)).max() < 0.3 * d1.max(), what
     for c in CHARTS:
         assert_chart(out / f"reheat_load_sweep_{c}.png")
-    # run again: the complete result is kept and the charts redrawn
-    assert main(["demo", "--output", str(out), "-q"]) == 0
+    # run again: the complete result is kept and the charts redrawn, here in US units
+    import partload.present.charts as charts
+
+    drawn = []
+    plot = charts.plot_study
+    monkeypatch.setattr(charts, "plot_study",
+                        lambda *a, **kw: drawn.append(kw.get("units")) or plot(*a, **kw))
+    assert main(["demo", "--output", str(out), "-q", "--units", "us"]) == 0
     assert "nothing to do" in capsys.readouterr().out
+    assert drawn == ["us"]
 
 
 def test_valve_points_marked(tmp_path):

@@ -79,7 +79,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
                       resume: bool = False, force: bool = False, backend: str | None = None,
                       plots: bool = False, quiet: bool = False, out=None,
                       auto_resume: bool = False, limit: int | None = None,
-                      beyond_limits: bool = False) -> int:
+                      beyond_limits: bool = False, units: str = "metric") -> int:
     """Plan, run and store a study; print its summary.  Returns the exit code.
 
     The work is :func:`simulator.api.run_study_file`, shared with the Python API;
@@ -87,7 +87,8 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     result of the same study, which does nothing when it is complete, instead of
     refusing it.  ``limit`` plans only the first points (a trial run).
     ``beyond_limits`` solves points beyond valves wide open as what-ifs instead
-    of recording them as failed.
+    of recording them as failed.  ``units`` (``"metric"`` or ``"us"``) are those of
+    the charts drawn with ``plots``.
     """
     out = out or sys.stdout
     workers = cap_workers(workers, scheduler)
@@ -134,7 +135,7 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
     if plots:
         from ..present.charts import plot_study
 
-        files = plot_study([path])
+        files = plot_study([path], units=units)
         print("  plots: " + ", ".join(str(f) for f in files), file=out)
     return 0
 
@@ -162,7 +163,8 @@ def _cmd_study(args) -> int:
     return run_study_command(args.case, output=args.output, workers=args.workers,
                              scheduler=args.scheduler, resume=args.resume, force=args.force,
                              backend=args.backend, plots=args.plots, quiet=args.quiet,
-                             limit=args.limit, beyond_limits=args.beyond_limits)
+                             limit=args.limit, beyond_limits=args.beyond_limits,
+                             units=args.units)
 
 
 def _cmd_export(args) -> int:
@@ -201,7 +203,8 @@ def _cmd_demo(args) -> int:
     case = _demo_case()
     output = Path(args.output) / f"{case.stem}.h5"
     return run_study_command(case, output=output, workers=args.workers, force=args.force,
-                             plots=True, quiet=args.quiet, auto_resume=not args.force)
+                             plots=True, quiet=args.quiet, auto_resume=not args.force,
+                             units=args.units)
 
 
 def add_commands(sub) -> None:
@@ -244,6 +247,7 @@ def add_commands(sub) -> None:
                    help="solve points beyond valves wide open as what-ifs (marked with the "
                         "valves_wide_open caution) instead of recording them as failed")
     c.add_argument("--plots", action="store_true", help="draw the charts next to the file")
+    add_units_option(c)
     c.add_argument("--quiet", "-q", action="store_true", help="no progress display")
     c.set_defaults(func=_cmd_study)
 
@@ -289,5 +293,6 @@ def add_commands(sub) -> None:
     c.add_argument("--workers", type=_workers, default=None,
                    help="local worker processes (default: the CPUs available)")
     c.add_argument("--force", action="store_true", help="start the demo afresh")
+    add_units_option(c)
     c.add_argument("--quiet", "-q", action="store_true", help="no progress display")
     c.set_defaults(func=_cmd_demo)
