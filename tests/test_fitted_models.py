@@ -138,3 +138,17 @@ def test_a_fitted_file_naming_a_missing_design_model(tmp_path):
     with pytest.raises(InputError) as e:
         load_case(_case(tmp_path, path))
     assert e.value.key == "design_model" and "gone.toml" in str(e.value)
+
+
+def test_a_fitted_file_naming_a_fitted_file(tmp_path):
+    # itself, or another fitted file: refused naming the key (it looped without end)
+    path = _fitted_file(tmp_path)
+    other = tmp_path / "other.toml"
+    template = path.read_text(encoding="utf-8")
+    other.write_text(template, encoding="utf-8")
+    for target in (path.name, other.name):
+        path.write_text(template.replace(json.dumps(str(MODEL)), json.dumps(target)),
+                        encoding="utf-8")
+        with pytest.raises(InputError) as e:
+            load_model(path)
+        assert e.value.key == "design_model" and "fitted model file" in str(e.value)
