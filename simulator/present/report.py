@@ -437,15 +437,12 @@ def study_point(path, index: int, backend: str | None = None):
         raise ResultFileError(f"{st.path}: the case file {case_path} changed since the study "
                               f"ran (SHA-256 differs); its points cannot be re-solved as "
                               f"they were")
-    stored_model = st.attrs.get("model_sha256")
-    if stored_model is not None and case.model.sha256 != stored_model:
-        then = st.attrs.get("model_fitted") or "none (the design model)"
-        now = "; ".join(f"{k} = {v!r}" for k, v in case.model.fitted) or \
-            "none (the design model)"
+    if st.attrs.get("model_sha256", case.model.sha256) != case.model.sha256:
+        now = "; ".join(f"{k} = {v!r}" for k, v in case.model.fitted) or "none"
+        then = str(st.attrs.get("model_fitted") or "none").replace("\n", "; ")
         raise ResultFileError(f"{st.path}: the model of {case_path} changed since the study ran "
-                              f"(SHA-256 differs; fitted values then: "
-                              f"{str(then).replace(chr(10), '; ')}, now: {now}); its points "
-                              f"cannot be re-solved as they were")
+                              f"(fitted values then: {then}; now: {now}); its points cannot "
+                              f"be re-solved as they were")
     plan = plan_study(case, backend or str(st.attrs.get("property_backend", "")) or None)
     if plan.n_points < st.n_points:
         raise ResultFileError(f"{st.path}: the case plans {plan.n_points} points, the file "
