@@ -333,10 +333,12 @@ def bench_profile(quick: bool) -> dict:
     repeats = 1 if quick else 3
     for workers in (1, 2):
         runs = [_profile_run(case, workers, quick) for _ in range(repeats)]
-        # a run that failed measured nothing: its time is left out (none left: not measured)
-        walls = [r["wall_s"] for r in runs if r["returncode"] == 0]
-        peaks = [r["peak_memory_mb"] for r in runs if r["peak_memory_mb"] is not None]
-        largest = [r["largest_process_mb"] for r in runs if r.get("largest_process_mb")]
+        # a run that failed measured nothing: its time and memory are left out (none
+        # left: not measured)
+        done = [r for r in runs if r["returncode"] == 0]
+        walls = [r["wall_s"] for r in done]
+        peaks = [r["peak_memory_mb"] for r in done if r["peak_memory_mb"] is not None]
+        largest = [r["largest_process_mb"] for r in done if r.get("largest_process_mb")]
         out[f"workers_{workers}"] = {
             **runs[-1], "wall_s": statistics.median(walls) if walls else None,
             "wall_s_runs": walls,

@@ -143,29 +143,37 @@ def test_renewed_jacobian_is_the_finite_difference_jacobian_at_the_answer():
     assert 5 <= renewed < len(conds)
 
 
-def test_a_jacobian_that_cannot_be_renewed_keeps_the_point(monkeypatch):
-    # a finite-difference column beyond the laws' range after the point converged
-    # (forced here) leaves the point as solved, with the Broyden-updated Jacobian
-    from partload.errors import PropertyRangeError
-    from partload.solve.equations import PointEquations
+def test_a_renewal_that_fails_keeps_the_converged_point(monkeypatch):
+    # the renewed Jacobian is formed after the point converged: a column the laws
+    # cannot take there (made to fail here) must not lose the point nor, under a
+    # pressure program, send a sliding answer to a held pressure.  Expected: the
+    # answer of the point solved without renewal (regression value, 1e-12)
+    from partload.solve import point as point_module
+    from partload.solve.equations import PointEquations, TrialPointError
 
-    case = load_case(ROOT / "cases" / "reheat_hourly_profile.toml")
-    conds = plan_study(case).conditions[:30]
+    case = load_case(ROOT / "cases" / "reheat_nozzle_pressure_program.toml")
+    cond = plan_study(case).conditions[6]  # 108 bar: sliding, between 90 and 166 bar
     steam = get_backend("seuif97")
-    original = PointEquations.fd_jacobian
-    refused = []
+    plain = solve_point(case.model, cond, steam)
+    assert not plain.program_held
+    built = {"sliding": False}
+    build, fd = point_module.build_result, PointEquations.fd_jacobian
 
-    def refuse_at_answers(self, fun, x, F):
-        # the renewal passes the equations' own residuals; Newton passes its counter
-        if fun == self.residuals:
-            refused.append(True)
-            raise PropertyRangeError("forced for the test")
-        return original(self, fun, x, F)
+    def build_result(model, c, *args):
+        built["sliding"] = c.pressure_mode == "sliding"
+        return build(model, c, *args)
 
-    first = solve_point(case.model, conds[0], steam)
-    monkeypatch.setattr(PointEquations, "fd_jacobian", refuse_at_answers)
-    # solve_point itself keeps the point (the study's other starts are not needed)
-    r = solve_point(case.model, conds[1], steam, neighbour=first, renew_jacobian=1)
-    assert refused and r.jacobian is not None
-    cold = solve_point(case.model, conds[1], broyden=False)
-    np.testing.assert_allclose(r.node_p, cold.node_p, rtol=1e-9)
+    def fd_jacobian(self, fun, x, F):
+        if built["sliding"]:  # the renewal at the sliding answer
+            built["sliding"] = False
+            fun(x)  # the base march, then a column fails
+            raise TrialPointError("a column beyond a limit")
+        return fd(self, fun, x, F)
+
+    monkeypatch.setattr(point_module, "build_result", build_result)
+    monkeypatch.setattr(PointEquations, "fd_jacobian", fd_jacobian)
+    r = solve_point(case.model, cond, steam, renew_jacobian=1)
+    assert not r.program_held
+    assert r.totals["throttle_pressure"] == pytest.approx(
+        plain.totals["throttle_pressure"], rel=1e-12)
+    assert r.evaluations == plain.evaluations + 1  # the failed renewal's base march counted

@@ -138,3 +138,47 @@ def test_a_fitted_file_naming_a_missing_design_model(tmp_path):
     with pytest.raises(InputError) as e:
         load_case(_case(tmp_path, path))
     assert e.value.key == "design_model" and "gone.toml" in str(e.value)
+
+
+def test_a_fitted_file_naming_a_fitted_file(tmp_path):
+    # itself, or another fitted file: refused naming the key (it looped without end)
+    path = _fitted_file(tmp_path)
+    other = tmp_path / "other.toml"
+    template = path.read_text(encoding="utf-8")
+    other.write_text(template, encoding="utf-8")
+    for target in (path.name, other.name):
+        path.write_text(template.replace(json.dumps(str(MODEL)), json.dumps(target)),
+                        encoding="utf-8")
+        with pytest.raises(InputError) as e:
+            load_model(path)
+        assert e.value.key == "design_model" and "fitted model file" in str(e.value)
+
+
+def test_a_study_point_is_not_re_solved_with_other_fitted_values(tmp_path):
+    # the point report of a study re-solves the point from its case: after a new fit
+    # the case file is unchanged but the machine is not, so the point is refused
+    # rather than shown with other values than the file holds
+    from partload.present.report import study_point
+
+    body = "\n[sweep]\nthrottle_flow_fraction = [0.6, 0.8]\n"
+    out = tmp_path / "study.h5"
+    run_study_file(_case(tmp_path, _fitted_file(tmp_path), body), output=out, workers=1)
+    case, cond, *_ = study_point(out, 0)
+    assert case.model.fitted == (("stage_group.HP1.efficiency", FITTED_EFFICIENCY),)
+    _fitted_file(tmp_path, 0.70)
+    with pytest.raises(ResultFileError, match="fitted values then") as e:
+        study_point(out, 0)
+    assert "stage_group.HP1.efficiency = 0.7" in str(e.value)
+
+
+def test_a_fitted_file_of_a_design_model_with_crlf_line_ends(tmp_path):
+    # the fit writes the design model's SHA-256 as the model has it (of the text read);
+    # a design model with Windows line ends is the same model, not "changed since the fit"
+    crlf = tmp_path / "design.toml"
+    crlf.write_bytes(MODEL.read_bytes().replace(b"\n", b"\r\n"))
+    design = load_model(crlf)
+    path = tmp_path / "as_tested.toml"
+    path.write_text('basis = "as tested"\ndesign_model = "design.toml"\n'
+                    f'design_model_sha256 = "{design.sha256}"\n\n'
+                    '[tunables."stage_group.HP1.efficiency"]\nvalue = 0.8\n', encoding="utf-8")
+    assert load_model(path).fitted == (("stage_group.HP1.efficiency", 0.8),)

@@ -437,6 +437,12 @@ def study_point(path, index: int, backend: str | None = None):
         raise ResultFileError(f"{st.path}: the case file {case_path} changed since the study "
                               f"ran (SHA-256 differs); its points cannot be re-solved as "
                               f"they were")
+    if st.attrs.get("model_sha256", case.model.sha256) != case.model.sha256:
+        now = "; ".join(f"{k} = {v!r}" for k, v in case.model.fitted) or "none"
+        then = str(st.attrs.get("model_fitted") or "none").replace("\n", "; ")
+        raise ResultFileError(f"{st.path}: the model of {case_path} changed since the study ran "
+                              f"(fitted values then: {then}; now: {now}); its points cannot "
+                              f"be re-solved as they were")
     plan = plan_study(case, backend or str(st.attrs.get("property_backend", "")) or None)
     if plan.n_points < st.n_points:
         raise ResultFileError(f"{st.path}: the case plans {plan.n_points} points, the file "

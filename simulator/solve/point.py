@@ -199,11 +199,7 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
         raise _with_request(exc, cond, eq) from None
     result = build_result(model, cond, steam, eq, nr, st)
     if renew_jacobian is not None and nr.evaluations >= renew_jacobian:
-        result.evaluations += eq.n + 1  # the base march and one per column
-        try:
-            _, result.jacobian = eq.fd_jacobian(eq.residuals, nr.x, nr.F)
-        except SolveError:  # a column beyond the laws' range: keep Broyden's, keep the point
-            pass
+        _renew_jacobian(eq, nr, result)
     if eq.admission_throttles:
         adm = model.admission
         result.over_capacity = adm.over_capacity(st["admission"], st["p"][eq.src],
@@ -219,6 +215,28 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
             result.unknowns_curvature = ((result.unknowns_slope - neighbour.unknowns_slope)
                                          / (r - neighbour.slope_from))
     return result
+
+
+def _renew_jacobian(eq: PointEquations, nr, result: PointResult) -> None:
+    """Give ``result`` the forward-difference Jacobian at its answer, its
+    evaluations (the base march and one per column) counted in the point's.  A
+    column the laws cannot take (a trial state beyond a limit) keeps the
+    converged point with its Newton Jacobian: the point is solved, only the
+    start of the next is at stake."""
+    done = 0
+
+    def counted(z):
+        nonlocal done
+        done += 1
+        return eq.residuals(z)
+
+    try:
+        _, J = eq.fd_jacobian(counted, nr.x, nr.F)
+    except SolveError:
+        pass
+    else:
+        result.jacobian = J
+    result.evaluations += done
 
 
 def _solve_program(model, cond, steam, broyden, check_limits, neighbour,
