@@ -182,3 +182,33 @@ def test_a_fitted_file_of_a_design_model_with_crlf_line_ends(tmp_path):
                     f'design_model_sha256 = "{design.sha256}"\n\n'
                     '[tunables."stage_group.HP1.efficiency"]\nvalue = 0.8\n', encoding="utf-8")
     assert load_model(path).fitted == (("stage_group.HP1.efficiency", 0.8),)
+
+
+def test_check_names_the_fitted_file_its_design_model_and_values(tmp_path, capsys):
+    from partload.cli.main import main
+
+    fitted = _fitted_file(tmp_path)
+    assert main(["check", str(fitted)]) == 0
+    head = capsys.readouterr().out.splitlines()[:3]
+    assert str(fitted) in head[0] and str(MODEL) in head[0]
+    assert "stage_group.HP1.efficiency = 0.8" in "\n".join(head)
+    assert main(["check", str(fitted), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["fitted_file"] == str(fitted) and data["file"] == str(MODEL)
+    assert data["fitted"] == {"stage_group.HP1.efficiency": FITTED_EFFICIENCY}
+    # a fitted file has no design bleeds of its own to balance
+    assert main(["check", str(fitted), "--write-balanced", str(tmp_path / "b.toml")]) == 2
+    err = capsys.readouterr().err
+    assert "balance its design model" in err and "basis" in err
+    # the design model's own check is unchanged: no fitted lines
+    assert main(["check", str(MODEL)]) == 0
+    assert "fitted" not in capsys.readouterr().out.splitlines()[1]
+
+
+def test_a_point_report_names_the_fitted_file(tmp_path):
+    from partload.present.report import point_report
+
+    case = _case(tmp_path, _fitted_file(tmp_path))
+    html = point_report(case)
+    assert "as_tested.toml" in html and "demo_reheat_unit.toml" in html
+    assert "stage_group.HP1.efficiency = 0.8" in html

@@ -39,7 +39,9 @@ def _cmd_check(args) -> int:
     result = solve_point(model, design_conditions(model), args.backend)
     report = closure_report(model, get_backend(args.backend))
     if args.json:
-        print(json.dumps({"model": model.name, "file": model.file,
+        fitted = ({"fitted_file": model.fitted_file, "fitted": dict(model.fitted)}
+                  if model.fitted else {})
+        print(json.dumps({"model": model.name, "file": model.file, **fitted,
                           "warnings": list(model.warnings),
                           "calibration": calibration_to_dict(model, report, args.backend),
                           "design": point_to_dict(result, "design", units=args.units)},

@@ -114,13 +114,14 @@ def apply_fitted(model, fitted, file: str = "<fitted model>"):
     return model
 
 
-def load_as_tested(path: str | Path):
+def load_as_tested(path: str | Path, steam=None):
     """Read a fitted model file: the design model, calibrated, with the fitted
     constants put in.
 
     Parameters
     ----------
     path : the fitted model file (TOML) [-]
+    steam : property backend for the calibration (default: the model's) [-]
 
     Returns
     -------
@@ -151,7 +152,7 @@ def load_as_tested(path: str | Path):
     if is_as_tested(design):  # checked before reading it: a file naming itself loops
         raise Where(file, None, "design_model").error(
             "names a fitted model file; name the design model it was fitted from")
-    model = build_model(design, text=text, file=str(target))
+    model = build_model(design, text=text, file=str(target), steam=steam)
     want = data.get("design_model_sha256")
     # the digest of the text read, as Model.sha256 and the fit's writer have it (a
     # file with CRLF line ends reads as the same text)
@@ -172,4 +173,6 @@ def load_as_tested(path: str | Path):
             raise w.child("value").error(f"{value!r} is outside {ref.tunable.lo}..."
                                          f"{ref.tunable.hi} [{ref.tunable.unit}]")
         fitted.append((key, value))
-    return apply_fitted(model, fitted, file)
+    model = apply_fitted(model, fitted, file)
+    model.fitted_file = file
+    return model

@@ -100,6 +100,7 @@ class Model:
     # tunables set to fitted values after calibration, (key, value) pairs [unit of each]:
     # a model read from a fitted ("as tested") file, see plant/fitted.py
     fitted: tuple = ()
+    fitted_file: str | None = None  # the fitted model file read (``file``: its design model)
     # compiled equations kept by the solver, one per structure and thread
     # (simulator.solve.equations.equations_for); not part of the model's identity
     solver_cache: dict = field(default_factory=dict, repr=False, compare=False)
@@ -180,7 +181,7 @@ def load_model(path: str | Path, steam: SteamTables | None = None) -> Model:
     constants put in (:func:`~simulator.plant.fitted.load_as_tested`)."""
     data, text = load_toml(path)
     if is_as_tested(data):
-        return load_as_tested(path)
+        return load_as_tested(path, steam)
     return build_model(data, text=text, file=str(path), steam=steam)
 
 
@@ -190,6 +191,10 @@ def balanced_model_text(path: str | Path, backend: str | None = None) -> str:
     ``design_flow = "closing"`` for each of them, calibrated, and its text
     rewritten with the flows found (nothing else changes)."""
     data, text = load_toml(path)
+    if is_as_tested(data):
+        raise InputError(f"a fitted (as tested) model file has no design bleeds of its own; "
+                         f"balance its design model {data.get('design_model')!r}",
+                         file=str(path), key="basis")
     heaters = data.get("heater") if isinstance(data, dict) else None
     fed = {h.get("extraction") for h in heaters or [] if isinstance(h, dict)}
     for e in data.get("extraction") or []:

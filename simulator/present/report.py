@@ -148,7 +148,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
     from ..plant.case import design_conditions, load_case
     from ..solve.point import solve_point
     from .diagram import diagram_svg
-    from .tables import point_to_dict, table_cells
+    from .tables import model_files, point_to_dict, table_cells
 
     if isinstance(case, (str, Path)):
         case = load_case(case)
@@ -165,7 +165,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
             f"</p>"]
     body.append("<h2>Provenance</h2>")
     body.append(_table(["item", "value"], [
-        ["model file", f"<code>{_esc(Path(model.file).name)}</code>"],
+        *([k, f"<code>{_esc(v)}</code>"] for k, v in model_files(model)),
         ["model SHA-256", f"<code>{_esc(model.sha256)}</code>"],
         ["case file", f"<code>{_esc(Path(case.file).name)}</code>"],
         ["case SHA-256", f"<code>{_esc(case.sha256)}</code>"],
@@ -228,9 +228,9 @@ def _provenance(st) -> list[list[str]]:
     a = st.attrs
     rows = []
     for key, label in (("model_name", "model"), ("model_file", "model file"),
-                       ("model_sha256", "model SHA-256"), ("case_file", "case file"),
-                       ("case_sha256", "case SHA-256"), ("profile_file", "profile file"),
-                       ("profile_sha256", "profile SHA-256"),
+                       ("model_fitted", "fitted values"), ("model_sha256", "model SHA-256"),
+                       ("case_file", "case file"), ("case_sha256", "case SHA-256"),
+                       ("profile_file", "profile file"), ("profile_sha256", "profile SHA-256"),
                        ("software_version", "partload version of the study"),
                        ("property_backend", "steam properties"),
                        ("created", "study created")):

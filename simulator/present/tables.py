@@ -12,14 +12,15 @@ results appear here without further code.
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 
 from ..solve.result import TOTALS, PointResult
 from ..units import to_display_unit
 
-__all__ = ["point_to_dict", "format_point", "format_model", "shown", "format_corrections",
-           "corrections_to_dict"]
+__all__ = ["point_to_dict", "format_point", "format_model", "model_files", "shown",
+           "format_corrections", "corrections_to_dict"]
 
 BTU_PER_KJ = 1.0 / 1.05505585262  # International Table Btu
 _TOTALS = {c.name: c for c in TOTALS}
@@ -249,12 +250,26 @@ def _d(value, si_unit: str, units: str, display: str | None = None,
     return float(v), u
 
 
+def model_files(model) -> list[tuple[str, str]]:
+    """``(label, text)`` of the files a model was read from: the model file, and for
+    a fitted (as tested) model its fitted file, design model and fitted values."""
+    if not model.fitted:
+        return [("model file", Path(model.file).name)]
+    return [("model file", Path(model.fitted_file or model.file).name),
+            ("design model file", Path(model.file).name),
+            ("fitted values", ", ".join(f"{k} = {v:.6g}" for k, v in model.fitted))]
+
+
 def format_model(model, units: str = "metric") -> str:
     """The calibrated model: design heat balance and component constants, in the
     display units of ``units`` (``"metric"`` or ``"us"``; the lines each kind adds
     with ``describe()`` are its own, in metric units)."""
     lines = [f"partload: model {model.name!r} ({model.file})", "calibrated to its design "
              "heat balance", ""]
+    if model.fitted:  # a fitted model file: its design model, then the fitted constants
+        lines[0] = (f"partload: model {model.name!r} ({model.fitted_file}; design model "
+                    f"{model.file})")
+        lines[1] += ", then fitted: " + ", ".join(f"{k} = {v:.6g}" for k, v in model.fitted)
     if model.description:
         lines.insert(1, model.description)
     th = model.throttle

@@ -138,7 +138,7 @@ class PointView:
 def _columns(declared, rows) -> dict:
     """Column arrays from row tuples, by the declared dtype."""
     if rows and all(col.dtype == "f8" for col in declared):
-        # one conversion for the whole table, each column a copy of its own
+        # one conversion for the whole table; the columns are rows of one new array
         table = np.array(rows, dtype=float).T.copy()
         return {col.name: table[k] for k, col in enumerate(declared)}
     by_column = list(zip(*rows)) if rows else [()] * len(declared)

@@ -153,7 +153,8 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             J = None  # stale Jacobian: form a fresh one and retry
             continue
         s = xt - x
-        if broyden:  # J += (y - J s) s^T / (s^T s), in place (J is this solve's own copy)
+        if broyden:  # J += (y - J s) s^T / (s^T s), in place (J is this solve's own copy;
+            # the same update as formed anew, rounded otherwise)
             u = Ft - F
             u -= J @ s
             u /= float(s @ s)

@@ -164,7 +164,8 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     renew_jacobian : when the solve took at least this many residual evaluations,
         the result carries a fresh finite-difference Jacobian at the answer
         (its evaluations counted in the point's) instead of the Broyden-updated one,
-        so that the next point of a chain starts from an exact Jacobian [-]
+        so that the next point of a chain starts from an exact Jacobian (under a
+        pressure program only a held point's: a sliding attempt may be dropped) [-]
 
     Raises
     ------
@@ -255,7 +256,6 @@ def _solve_program(model, cond, steam, broyden, check_limits, neighbour,
     tries: list[float] = []
     try:
         result = solve_point(model, sliding, steam, broyden=broyden, check_limits=False,
-                             renew_jacobian=renew_jacobian,
                              neighbour=near if near is not None and not near.program_held
                              else None)
         p_T = result.totals["throttle_pressure"]
