@@ -32,8 +32,8 @@ from ..errors import InputError
 from ..inputs.reading import closest, load_toml
 from ..units import Where
 
-__all__ = ["BASIS", "TunableRef", "apply_fitted", "is_as_tested", "load_as_tested",
-           "resolve_tunable"]
+__all__ = ["BASIS", "TunableRef", "apply_fitted", "fitted_text", "is_as_tested",
+           "load_as_tested", "resolve_tunable"]
 
 #: the basis a fitted model file states
 BASIS = "as tested"
@@ -84,6 +84,12 @@ def resolve_tunable(model, key, w: Where) -> TunableRef:
     return TunableRef(key, comp, tunables[tname])
 
 
+def fitted_text(fitted, sep: str = "; ") -> str:
+    """Fitted values ``(key, value)`` as ``KEY = VALUE`` items joined by ``sep``, each
+    value written in full (as a fitted model file and a study file store it)."""
+    return sep.join(f"{k} = {v!r}" for k, v in fitted)
+
+
 def is_as_tested(data: dict) -> bool:
     """Whether TOML ``data`` is a fitted model file."""
     return isinstance(data, dict) and data.get("basis") == BASIS and "design_model" in data
@@ -106,7 +112,7 @@ def apply_fitted(model, fitted, file: str = "<fitted model>"):
     design_sha = model.sha256
     model.fitted = fitted
     model.sha256 = hashlib.sha256("".join(
-        [design_sha, "\n"] + [f"{k} = {v!r}\n" for k, v in fitted]).encode()).hexdigest()
+        [design_sha, "\n"] + [fitted_text([kv]) + "\n" for kv in fitted]).encode()).hexdigest()
     model.name = f"{model.name} ({BASIS})"
     model.description = (f"{model.description}. AS TESTED: constants fitted to measured data "
                          f"({file}), not the design values")

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..plant.fitted import fitted_text
 from ..solve.result import TOTALS, PointResult
 from ..units import to_display_unit
 
@@ -257,7 +258,7 @@ def model_files(model) -> list[tuple[str, str]]:
         return [("model file", Path(model.file).name)]
     return [("model file", Path(model.fitted_file or model.file).name),
             ("design model file", Path(model.file).name),
-            ("fitted values", ", ".join(f"{k} = {v:.6g}" for k, v in model.fitted))]
+            ("fitted values", fitted_text(model.fitted, ", "))]
 
 
 def format_model(model, units: str = "metric") -> str:
@@ -269,7 +270,7 @@ def format_model(model, units: str = "metric") -> str:
     if model.fitted:  # a fitted model file: its design model, then the fitted constants
         lines[0] = (f"partload: model {model.name!r} ({model.fitted_file}; design model "
                     f"{model.file})")
-        lines[1] += ", then fitted: " + ", ".join(f"{k} = {v:.6g}" for k, v in model.fitted)
+        lines[1] += ", then fitted: " + fitted_text(model.fitted, ", ")
     if model.description:
         lines.insert(1, model.description)
     th = model.throttle

@@ -35,6 +35,7 @@ import h5py
 import numpy as np
 
 from ..errors import ResultFileError
+from ..plant.fitted import fitted_text
 from ..version import __version__
 from .dimensions import add_dimensions
 from .format import (
@@ -521,8 +522,8 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
     except ValueError:  # another drive
         a["model_path"] = Path(model.file).name
     a["model_sha256"] = model.sha256
-    if getattr(model, "fitted", ()):  # a fitted model: /model_file is its design model
-        a["model_fitted"] = "\n".join(f"{k} = {v!r}" for k, v in model.fitted)
+    if model.fitted:  # a fitted model: /model_file is its design model
+        a["model_fitted"] = fitted_text(model.fitted, "\n")
     a["case_name"] = case.name
     a["case_description"] = case.description
     a["case_path"] = str(case.file)
@@ -613,7 +614,7 @@ def _check_same_study(f: h5py.File, path: Path, plan) -> None:
                 f"{path} is damaged: its {k} attribute is not a SHA-256 digest. {fix}")
     was_fitted = f.attrs.get("model_fitted")
     if attr("model_sha256") != model.sha256 and (was_fitted is not None or model.fitted):
-        now = "; ".join(f"{k} = {v!r}" for k, v in model.fitted) or "none (the design model)"
+        now = fitted_text(model.fitted) or "none (the design model)"
         then = (attr("model_fitted").replace("\n", "; ") if was_fitted is not None
                 else "none (the design model)")
         raise ResultFileError(

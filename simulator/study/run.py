@@ -229,7 +229,7 @@ class SolutionFit:
 # [-] a point started from the fit that took this many residual evaluations hands
 # the next a fresh Jacobian: on the demo hourly profile the Broyden-updated one
 # handed along drifts from the exact one, and renewing it after such points cut
-# the CPU time a point by about 5 % (measured); along a sweep's load line,
+# the instructions a point by 4 % (callgrind); along a sweep's load line,
 # where the steps are larger, renewing cost more than it saved
 RENEW_JACOBIAN = 6
 
