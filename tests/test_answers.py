@@ -36,6 +36,14 @@ def test_answers_unchanged(answers, key):
             # 1e-9 relative; an absolute floor for quantities that are zero at a point
             # (moisture of a dry end, an unused bleed), on the scale of their kind
             floor = 1e-9 * (1e5 if "/pressure" in name or "shell_pressure" in name else 1.0)
-            if "imbalance" in name:  # rounding noise of balances of about 1e9 W
+            if ("imbalance" in name or name.endswith(("/heater_heat_loss",
+                                                        "/process_steam_energy"))):
+                # rounding noise of balances of about 1e9 W: what is left of a heat or
+                # energy balance that closes at the answer
                 floor = 1.0
+            elif name.endswith("temperature"):
+                # a state on the saturation line: the backward function (p, h) -> T
+                # keeps a state 1e-6 K inside its phase (steam/if97.py), so which side
+                # an answer lands on may differ by that much with its last digits
+                floor = 2.5e-6
             assert new[name] == pytest.approx(value, rel=1e-9, abs=floor), name

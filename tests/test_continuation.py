@@ -117,11 +117,11 @@ def test_sweep_keeps_the_load_predictor(reheat_model):
         np.testing.assert_allclose(warm.node_p, cold.node_p, rtol=1e-9)
 
 
-def test_renewed_jacobian_is_the_finite_difference_jacobian_at_the_answer():
+def test_renewed_jacobian_is_the_jacobian_at_the_answer():
     # a point of the profile that took many evaluations hands the next the
-    # forward-difference Jacobian at its answer: equal bit for bit to the one formed
-    # afresh there (an identity of the two paths), its columns counted in the point's
-    # evaluations; and every answer still equals the point solved cold to 1e-9
+    # Jacobian at its answer: equal bit for bit to the one formed afresh there (an
+    # identity of the two paths), its columns counted in the point's evaluations;
+    # and every answer still equals the point solved cold to 1e-9
     case = load_case(ROOT / "cases" / "reheat_hourly_profile.toml")
     plan = plan_study(case)
     conds = plan.conditions[:60]
@@ -133,7 +133,7 @@ def test_renewed_jacobian_is_the_finite_difference_jacobian_at_the_answer():
         eq = equations_for(case.model, conds[i], get_backend("seuif97"),
                            wide_open=r.wide_open_valves)
         x = np.asarray(r.unknowns)
-        _, J = eq.fd_jacobian(eq.residuals, x, eq.residuals(x))
+        _, J = eq.jacobian(eq.residuals, x, eq.residuals(x))
         if np.array_equal(J, r.jacobian):
             renewed += 1
             assert r.evaluations >= 5 + eq.n + 1
@@ -155,17 +155,17 @@ def test_a_renewal_that_fails_keeps_the_converged_point(monkeypatch):
     steam = get_backend("seuif97")
     first = solve_point(case.model, conds[0], steam)
     plain = solve_point(case.model, conds[1], steam, neighbour=first)
-    fd = PointEquations.fd_jacobian
+    formed = PointEquations.jacobian
     failed = []
 
-    def fd_jacobian(self, fun, x, F):
+    def jacobian(self, fun, x, F):
         if F is not None and np.array_equal(x, plain.unknowns):  # at the answer
             failed.append(True)
-            fun(x)  # the base march, then a column fails
+            fun(x)  # the base march, then a state beyond a limit
             raise TrialPointError("a column beyond a limit")
-        return fd(self, fun, x, F)
+        return formed(self, fun, x, F)
 
-    monkeypatch.setattr(PointEquations, "fd_jacobian", fd_jacobian)
+    monkeypatch.setattr(PointEquations, "jacobian", jacobian)
     r = solve_point(case.model, conds[1], steam, neighbour=first, renew_jacobian=1)
     assert failed
     np.testing.assert_allclose(r.node_p, plain.node_p, rtol=1e-12)

@@ -303,6 +303,13 @@ class SteamPathComponent(Component):
         requires, or ``None`` while they hold their inlet pressure (or, as the
         admission under a held throttle pressure, take what is left), and
         ``power`` [W] the work they take from the steam (0 for valves and lines).
+
+        A step reads only ``march.p[i]``, ``march.p[j]``, ``march.h[i]``, the
+        saturation enthalpies the march keeps at ``i`` (``march.hv``,
+        ``march.hl``), ``m_net`` (kinds that pass it; a kind that sets its flow
+        does not read it), its own unknown flow (``flow_unknown`` kinds) and the
+        point's fixed conditions: the Jacobian moves exactly these
+        (:mod:`simulator.solve.tangent`).
         """
         raise NotImplementedError
 

@@ -171,25 +171,6 @@ class PointEquations:
                               + [f"bleed({h})/m_design" for h in self.active_heaters]
                               + [f"flow({c.name})/m_design" for c in self.flow_comps]
                               + (["throttle flow/m_design"] if self.flow_unknown else []))
-        # the first node of the march each unknown touches: a node's pressure is read
-        # by the components leaving it and by those entering it (evaluated at their
-        # inlet, earlier in the order); a heater's bleed at its extraction node; the
-        # throttle flow at the source.  A finite-difference column re-marches from there.
-        pred_first = list(range(N))
-        for i in range(N):
-            for _c, j in self.outs[i]:
-                pred_first[j] = min(pred_first[j], i)
-        self.first_node = [pred_first[i] for i in self.free]
-        for k in range(self.n_h):
-            self.first_node.append(min((i for _n, i, kind, v in self.bleeds
-                                        if kind == 2 and v == k), default=0))
-        self.first_node += [idx[c.inlet] for c in self.flow_comps]
-        if self.flow_unknown:
-            self.first_node.append(0)
-        self.structured = True  # False: every column marches the whole graph
-        self._snaps = None  # march states at the start of nodes, while a Jacobian is formed
-        self._resume = 0  # the node a Jacobian column's march starts at
-        self._resume_from: dict = {}  # its kept states, by node
         self._last = None
         self.set_conditions(cond)
 
@@ -290,49 +271,16 @@ class PointEquations:
             x[k_after] = min(x[k_after], math.log(self.p_fix[self.src] * 0.995))
         return x
 
-    def fd_jacobian(self, fun, x: np.ndarray, F: np.ndarray | None):
-        """Residuals and forward-difference Jacobian at ``x`` [-]: ``(F, J)``, with
-        ``J`` equal to :func:`~simulator.solve.newton.fd_jacobian` bit for bit.
+    def jacobian(self, fun, x: np.ndarray, F: np.ndarray | None):
+        """Residuals and Jacobian at ``x`` [-]: ``(F, J)``, the derivatives carried
+        along the march (:func:`~simulator.solve.tangent.tangent_jacobian`: a few
+        evaluations of each component instead of a march a column).  ``fun`` and
+        ``fun`` is the residual function Newton counts evaluations with (the base
+        point is marched through it once); ``F = fun(x)`` when known, ``None``
+        otherwise."""
+        from .tangent import tangent_jacobian
 
-        The base point is marched with the property calls remembered
-        (:class:`~simulator.steam.if97.MemoTables`) and the march state kept at
-        the first node each unknown touches; each column then re-marches from
-        there and asks the backend only for the states its perturbed unknown
-        changes (those downstream of it, and the water side).  ``fun`` is the
-        residual function Newton counts evaluations with; ``F = fun(x)`` [-]
-        when known (the base is marched once more), ``None`` otherwise.
-        """
-        from .newton import fd_jacobian
-
-        memo = self.memo_steam
-        memo.clear()
-        self.steam = memo
-        try:
-            if not self.structured:
-                base = fun(x)  # fills the memo with the base point's states
-                F = base if F is None else F
-                return F, fd_jacobian(fun, x, F)
-            self._snaps = {i: None for i in self.first_node if i > 0}
-            base = fun(x)  # fills the memo and keeps the march state at each first node
-            F = base if F is None else F
-            self._resume_from, self._snaps = self._snaps, None
-            step = 1e-7  # as fd_jacobian
-            n = x.size
-            J = np.empty((F.size, n))
-            xp = x.copy()
-            for j in range(n):
-                xp[j] = x[j] + step
-                self._resume = self.first_node[j]
-                try:
-                    J[:, j] = (fun(xp) - F) / step
-                finally:
-                    self._resume = 0
-                xp[j] = x[j]
-            return F, J
-        finally:
-            self._snaps = None
-            self.steam = self.raw_steam
-            memo.clear()
+        return tangent_jacobian(self, fun, x, F)
 
     # ---------------------------------------------------------------- residuals
     def residuals(self, x: np.ndarray) -> np.ndarray:
@@ -380,31 +328,22 @@ class PointEquations:
         for q, c in enumerate(self.flow_comps):
             self.component_flow[c.name] = xs[nc + q] * md
         src = self.src
-        start = self._resume
-        snaps = self._snaps  # a base point of a Jacobian: keep states to resume from
-        if start:  # a Jacobian column: the march before node `start` is the base point's
-            M, E, h, hv, hl, F, shaft, n_steps, steps = self._resume_from[start]
-            M, E, h, hv, hl, F = M[:], E[:], h[:], hv[:], hl[:], F[:]
-            steps = steps[:n_steps]
-        else:
-            M = [0.0] * N
-            E = [0.0] * N
-            h = [0.0] * N
-            hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
-            hl = [math.nan] * N
-            M[src] = m_T
-            h[src] = steam.h_pT(p[src], self.T_throttle)
-            F = [0.0] * self.n_res
-            shaft = 0.0
-            steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
+        M = [0.0] * N
+        E = [0.0] * N
+        h = [0.0] * N
+        hv = [math.nan] * N  # saturated vapour enthalpy at node pressure, when known
+        hl = [math.nan] * N
+        M[src] = m_T
+        h[src] = steam.h_pT(p[src], self.T_throttle)
+        F = [0.0] * self.n_res
+        shaft = 0.0
+        steps = []  # (component, inlet, outlet, flow, outlet enthalpy, power, record)
         row_of = self.row_of
         passes_net = self.passes_net
         p_design = self.p_design
         self.p, self.h, self.hv, self.hl = p, h, hv, hl  # what the components read
         trace = 1e-9 * md  # a flow this small means no steam reaches the node
-        for i in range(start, N):
-            if snaps is not None and i in snaps:
-                snaps[i] = (M[:], E[:], h[:], hv[:], hl[:], F[:], shaft, len(steps), steps)
+        for i in range(N):
             if i != src:
                 if M[i] <= trace:
                     raise TrialPointError(f"no steam reaches node {self.names[i]!r}")
@@ -439,32 +378,50 @@ class PointEquations:
                 if not s[0].drives_generator:
                     drive += s[5]
             shaft -= drive
-        P_gen = self.model.generator.output(shaft)
-        k = len(self.node_rows)
-        summary = None
-        if self.fw is not None:
-            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T - self.sh_from_pump,
-                                            p[src], offtakes=self.offtakes)
-            F[k:k + self.n_h] = res
-            k += self.n_h
-            if self.n_c:
-                for c in self.flow_comps:
-                    power = sum(s[5] for s in steps if s[0] is c)
-                    F[k] = c.residual(power, summary["pump_powers"][c.pump])
-                    k += 1
-        if self.freed:
-            records = self.node_states(p, h, M, summary)
-            for c, i in self.at_nodes:
-                if row_of[i] >= 0:
-                    F[row_of[i]] = c.residual(p[i], records[c.name], steam)
-        if self.demand:
-            F[k] = (P_gen - self.cond.output) / self.model.generator.rating
+        comp_power = [sum(s[5] for s in steps if s[0] is c) for c in self.flow_comps]
+        P_gen, summary = self.close(F, p, h, M, heater_bleed, m_T, shaft, comp_power)
         F = np.array(F)
         self._last = (xs, F, p, h, M, m_T, bleed_flow, heater_bleed, shaft, P_gen, steps,
                       summary)
         if not detail:
             return F, None
         return self._detail(*self._last[1:])
+
+    def close(self, F: list, p, h, M, heater_bleed, m_T: float, shaft: float,
+              comp_power) -> tuple:
+        """The residuals that follow the steam-path march, written into ``F``:
+        the water side's heater balances, the power balances of kinds whose flow
+        is an unknown, the laws of freed nodes and the output demand.
+
+        They read the march only through the node pressures ``p`` [Pa],
+        enthalpies ``h`` [J/kg] and flows ``M`` [kg/s], the heaters' bleeds
+        ``heater_bleed`` [kg/s], the throttle flow ``m_T`` [kg/s], the shaft
+        power that turns the generator ``shaft`` [W] and the power of each kind
+        whose flow is an unknown ``comp_power`` [W] (which the Jacobian's
+        directional differences rely on).  Returns ``(generator output [W],
+        water-side summary or None)``.
+        """
+        steam = self.steam
+        P_gen = self.model.generator.output(shaft)
+        k = len(self.node_rows)
+        summary = None
+        if self.fw is not None:
+            res, summary = self.fw.evaluate(steam, p, h, heater_bleed, m_T - self.sh_from_pump,
+                                            p[self.src], offtakes=self.offtakes)
+            F[k:k + self.n_h] = res
+            k += self.n_h
+            for c, power in zip(self.flow_comps, comp_power):
+                F[k] = c.residual(power, summary["pump_powers"][c.pump])
+                k += 1
+        if self.freed:
+            records = self.node_states(p, h, M, summary)
+            row_of = self.row_of
+            for c, i in self.at_nodes:
+                if row_of[i] >= 0:
+                    F[row_of[i]] = c.residual(p[i], records[c.name], steam)
+        if self.demand:
+            F[k] = (P_gen - self.cond.output) / self.model.generator.rating
+        return P_gen, summary
 
     def node_states(self, p, h, M, summary) -> dict:
         """The state of each kind at a node (a condenser: the heat it rejects, its

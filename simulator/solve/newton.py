@@ -74,10 +74,10 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
         finite-difference Jacobians
     max_step : largest change of any unknown in one step
     jacobian_fn : ``jacobian_fn(f, x, F)`` returns ``(F, J)``: the residuals and
-        the finite-difference Jacobian at ``x`` (the differences of
-        :func:`fd_jacobian`), evaluating through ``f`` so that its evaluations
-        are counted; ``F`` is ``None`` at a start without a Jacobian, where the
-        base evaluation is its own
+        the Jacobian at ``x``, evaluating its base point through ``f`` so that
+        it is counted; ``F`` is ``None`` at a start without a Jacobian, where the
+        base evaluation is its own.  Its columns are counted as one evaluation
+        each, however it forms them (as :func:`fd_jacobian`'s are)
 
     Raises
     ------
@@ -97,6 +97,7 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
     njac = 0
     if J is None and jacobian_fn is not None:  # a Jacobian first: one base evaluation
         F, J = jacobian_fn(call, x, None)
+        evals += x.size
         njac = 1
         fresh = True
     else:
@@ -112,8 +113,11 @@ def newton(fun: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *, tol: floa
             worst = names[int(np.argmax(np.abs(F)))] if len(names) else "?"
             raise ConvergenceError("Newton's method did not converge", it, res, worst)
         if J is None:
-            J = (fd_jacobian(call, x, F) if jacobian_fn is None
-                 else jacobian_fn(call, x, F)[1])
+            if jacobian_fn is None:
+                J = fd_jacobian(call, x, F)
+            else:
+                J = jacobian_fn(call, x, F)[1]
+                evals += x.size
             njac += 1
             fresh = True
         try:

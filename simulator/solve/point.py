@@ -162,7 +162,7 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
     neighbour : a solved neighbouring point with the same unknowns; its solution
         scaled to this flow and its Jacobian start the iteration (continuation)
     renew_jacobian : when the solve took at least this many residual evaluations,
-        the result carries a fresh finite-difference Jacobian at the answer
+        the result carries a fresh Jacobian at the answer
         (its evaluations counted in the point's) instead of the Broyden-updated one,
         so that the next point of a chain starts from an exact Jacobian (under a
         pressure program only a held point's: a sliding attempt may be dropped) [-]
@@ -219,11 +219,11 @@ def solve_point(model: Model, cond: Conditions, steam: SteamTables | str | None 
 
 
 def _renew_jacobian(eq: PointEquations, nr, result: PointResult) -> None:
-    """Give ``result`` the forward-difference Jacobian at its answer, its
-    evaluations (the base march and one per column) counted in the point's.  A
-    column the laws cannot take (a trial state beyond a limit) keeps the
-    converged point with its Newton Jacobian: the point is solved, only the
-    start of the next is at stake."""
+    """Give ``result`` the Jacobian at its answer (:meth:`PointEquations.jacobian`),
+    counted in the point's evaluations as Newton counts one: its base march and
+    one a column.  A Jacobian the laws cannot take (a trial state beyond a
+    limit) keeps the converged point with its Newton Jacobian: the point is
+    solved, only the start of the next is at stake."""
     done = 0
 
     def counted(z):
@@ -232,11 +232,12 @@ def _renew_jacobian(eq: PointEquations, nr, result: PointResult) -> None:
         return eq.residuals(z)
 
     try:
-        _, J = eq.fd_jacobian(counted, nr.x, nr.F)
+        _, J = eq.jacobian(counted, nr.x, nr.F)
     except SolveError:
         pass
     else:
         result.jacobian = J
+        done += eq.n
     result.evaluations += done
 
 
@@ -297,12 +298,12 @@ def _solve_structure(eq: PointEquations, steam, guess, jacobian, broyden, neighb
                        and np.shape(jacobian) == shape) else None
     try:
         nr = newton(eq.residuals, x0, tol=TOL, names=eq.residual_names, jacobian=jac,
-                    broyden=broyden, jacobian_fn=eq.fd_jacobian)
+                    broyden=broyden, jacobian_fn=eq.jacobian)
     except ConvergenceError:
         if not usable:
             raise
         nr = newton(eq.residuals, eq.guess(), tol=TOL, names=eq.residual_names,
-                    broyden=broyden, jacobian_fn=eq.fd_jacobian)
+                    broyden=broyden, jacobian_fn=eq.jacobian)
     F, st = eq.evaluate(nr.x, detail=True)
     return nr, st, F, scaled
 

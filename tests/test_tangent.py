@@ -1,0 +1,90 @@
+"""The Jacobian carried along the march (solve/tangent.py) against plain forward
+differences of the whole residual function (newton.fd_jacobian): an independent
+calculation of the same derivatives."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from partload.plant.case import Conditions, load_case
+from partload.plant.model import build_model
+from partload.plant.synthetic import synthetic_model_data
+from partload.solve.equations import equations_for
+from partload.solve.newton import fd_jacobian
+from partload.solve.point import solve_point
+from partload.steam.if97 import get_backend
+
+CASES = sorted((Path(__file__).resolve().parent.parent / "cases").glob("*.toml"))
+# Both are forward differences with steps of 1e-7 relative: each errs by about the
+# step times the second derivative (1e-7 of a row's scale, measured up to 7e-8 here).
+TOL = 2e-6
+
+
+def _equations(model, cond):
+    return equations_for(model, cond, get_backend("seuif97"))
+
+
+def _assert_agree(eq, x):
+    F = eq.residuals(x)
+    F_own, J = eq.jacobian(eq.residuals, x, None)
+    assert np.array_equal(F_own, F)
+    F_same, J_again = eq.jacobian(eq.residuals, x, F)
+    assert F_same is F and np.array_equal(J_again, J)  # the same Jacobian, bit for bit
+    dense = fd_jacobian(eq.residuals, x, F)
+    scale = np.abs(dense).max(axis=1, keepdims=True)
+    worst = np.abs(J - dense) / np.where(scale > 0.0, scale, 1.0)
+    r, c = np.unravel_index(np.argmax(worst), worst.shape)
+    assert worst.max() < TOL, (eq.residual_names[r], eq.unknown_names[c], worst.max())
+
+
+def _off_design_knots(x):
+    # 0.2 % above the point in every unknown: away from the knots of the efficiency
+    # tables (a point exactly at design sits on one, where one-sided differences of
+    # the two methods may take different sides)
+    return np.asarray(x, float) + 2e-3
+
+
+@pytest.mark.parametrize("case_path", CASES, ids=[p.stem for p in CASES])
+def test_carried_jacobian_equals_forward_differences_on_every_case(case_path):
+    case = load_case(case_path)
+    eq = _equations(case.model, case.conditions)
+    _assert_agree(eq, _off_design_knots(eq.guess()))
+    r = solve_point(case.model, case.conditions)
+    eq = _equations(case.model, case.conditions)
+    _assert_agree(eq, _off_design_knots(r.unknowns))
+
+
+@pytest.mark.parametrize("groups", [10, 60])
+def test_carried_jacobian_equals_forward_differences_on_synthetic_models(groups):
+    model = build_model(synthetic_model_data(groups), file=f"synthetic-{groups}")
+    eq = _equations(model, Conditions(throttle_flow=0.7 * model.throttle.flow))
+    _assert_agree(eq, _off_design_knots(eq.guess()))
+
+
+def test_carried_jacobian_costs_a_few_evaluations_a_component(monkeypatch):
+    # the point of carrying derivatives: component evaluations grow with the network,
+    # not with its square (forward differences: one march a column, about n^2 / 2).
+    # Counts, not timings.
+    from partload.components.stage_group import StageGroup
+
+    count = [0]
+    evaluate = StageGroup.evaluate
+
+    def counted(self, *args):
+        count[0] += 1
+        return evaluate(self, *args)
+
+    per_group = []
+    for groups in (20, 80):
+        model = build_model(synthetic_model_data(groups), file=f"synthetic-{groups}")
+        eq = _equations(model, Conditions(throttle_flow=0.7 * model.throttle.flow))
+        x = eq.guess()
+        monkeypatch.setattr(StageGroup, "evaluate", counted)
+        count[0] = 0
+        eq.jacobian(eq.residuals, x, None)
+        monkeypatch.setattr(StageGroup, "evaluate", evaluate)
+        per_group.append(count[0] / groups)
+    # the base march, the step once more, and at most its three inputs moved
+    assert per_group[1] <= 5.0 and per_group[1] <= 1.05 * per_group[0]
