@@ -171,6 +171,39 @@ def _drain_diagrams():
            solve_point(case.model, design_conditions(case.model), case.backend))
 
 
+def _stream_boxes(svg: str) -> list[tuple[float, float, float, float, str]]:
+    """Boxes of the feedwater stream labels (centred), estimated as the drain
+    labels' are (:func:`_drain_boxes`)."""
+    out = []
+    for t in ET.fromstring(svg).iter(f"{SVG}text"):
+        if t.get("class") != "stream":
+            continue
+        text = "".join(t.itertext())
+        size = float(re.search(r"font-size:([\d.]+)px", t.get("style")).group(1))
+        x, y = float(t.get("x")), float(t.get("y"))
+        assert t.get("text-anchor") == "middle"
+        half = 0.3 * size * len(text)
+        out.append((x - half, y - size, x + half, y + 0.3 * size, text))
+    return out
+
+
+@pytest.mark.parametrize("units", ["metric", "us"])
+def test_no_drain_line_crosses_a_feedwater_label(units):
+    # a drain pumped forward rises into the feedwater beside the label of that stream
+    # (the demo reheat unit pumps LP2's drain forward: its model file)
+    forward = 0
+    for name, model, r, design in _drain_diagrams():
+        svg = diagram_svg(model, r, design=design, units=units)
+        labels = _stream_boxes(svg)
+        assert labels or not model.heaters, name
+        forward += sum(1 for h in model.heaters.values() if h.drain_to == "forward")
+        for x0, y0, x1, y1 in _drain_segments(svg):
+            line = (min(x0, x1) - 0.5, min(y0, y1) - 0.5, max(x0, x1) + 0.5, max(y0, y1) + 0.5)
+            for a in labels:
+                assert not _overlap(a, line), f"{name}: a drain line crosses {a[4]!r}"
+    assert forward >= 1
+
+
 @pytest.mark.parametrize("units", ["metric", "us"])
 def test_drain_labels_overlap_neither_each_other_nor_a_drain_line(units):
     n_labels = 0

@@ -492,6 +492,8 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
     prev_x = x_cond - 30
     drain_lane = y + 72
     drains: list = []
+    forward: list = []  # (drain number, train position, heater x, run y) of pumped drains
+    spans: dict = {}  # x extent of the label of the stream leaving each train position
     for k, name in enumerate(train):
         x = item_x[name]
         h = states.get(name)
@@ -500,8 +502,8 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
         svg.line([(prev_x, y), (right_edge, y)], "#2171b5", 2.0, arrow=True)
         # the stream entering this item: flow, p, T, h from the previous item
         if k > 0:
-            _stream_label(svg, fmt, result, design, train, k - 1, p_out, dp_out,
-                          (prev_x + right_edge) / 2, y)
+            spans[k - 1] = _stream_label(svg, fmt, result, design, train, k - 1, p_out,
+                                         dp_out, (prev_x + right_edge) / 2, y)
         grey = h is not None and not h.in_service
         colour = "#999999" if grey else "#000000"
         if name in model.pumps:
@@ -531,14 +533,16 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
                     t2 = model.heaters[target]
                     target = t2.drain_to_when_out or t2.drain_to
                 if target == "condenser":
-                    xt = x_cond
-                elif target == "forward":
-                    xt = x - ITEM / 2
+                    xa = x_cond + 10
+                elif target == "forward":  # into the stream leaving the heater: placed
+                    xa = None              # clear of its label once that is drawn
+                    forward.append((len(drains), k, x, drain_lane))
                 else:
-                    xt = item_x.get(target, x_cond)
-                svg.line([(x - 10, y + 18), (x - 10, drain_lane), (xt + 10, drain_lane),
-                          (xt + 10, y + 18)], "#2171b5", 1.0, "4,3", arrow=True, cls="drain")
-                drains.append((x - 10, xt + 10, drain_lane, [("drain ", None)]
+                    xa = item_x.get(target, x_cond) + 10
+                if xa is not None:
+                    svg.line([(x - 10, y + 18), (x - 10, drain_lane), (xa, drain_lane),
+                              (xa, y + 18)], "#2171b5", 1.0, "4,3", arrow=True, cls="drain")
+                drains.append((x - 10, xa, drain_lane, [("drain ", None)]
                                + fmt(fmt.disp(h.drain_flow, "kg/s"), 2,
                                      fmt.disp(dh.drain_flow, "kg/s") if dh else None)
                                + [(fmt.unit("kg/s") + ", ", None)]
@@ -549,8 +553,14 @@ def _train(svg, model, result, design, fmt, train, item_x, states, dstates, x_co
                 drain_lane += LANE_DRAIN
         prev_x = x - 30
     # final feedwater to the boiler
-    _stream_label(svg, fmt, result, design, train, len(train) - 1, p_out, dp_out,
-                  (prev_x + x_boiler + 40) / 2, y)
+    spans[len(train) - 1] = _stream_label(svg, fmt, result, design, train, len(train) - 1,
+                                          p_out, dp_out, (prev_x + x_boiler + 40) / 2, y)
+    for d, k, x, lane in forward:  # a pumped drain rises between its heater and the label
+        left, right = spans.get(k, (x - 40, x - 40))
+        xa = x - 36 if x - 36 >= right + 3 else left - 4
+        svg.line([(x - 10, y + 18), (x - 10, lane), (xa, lane), (xa, y + 1.5)], "#2171b5",
+                 1.0, "4,3", arrow=True, cls="drain")
+        drains[d] = (drains[d][0], xa) + drains[d][2:]
     for (x0, y0), pieces in zip(_place_drain_labels(drains, 10.0, x_cond + 140.0), drains):
         svg.text(x0, y0, pieces[3], DRAIN_FONT, "start", colour="#2171b5", cls="drain")
     return len(drains)
@@ -617,7 +627,8 @@ def _place_drain_labels(drains, x_min: float, x_max: float) -> list[tuple[float,
 def _stream_label(svg, fmt, result, design, train, k, p_out, dp_out, x, y):
     """Flow, pressure, temperature, enthalpy of the feedwater leaving item ``k`` of the
     train: a heater's outlet, or after a pump the inlet of the next heater (the final
-    feedwater when none follows)."""
+    feedwater when none follows), centred at ``x``; returns its extent ``(left,
+    right)`` [px] (:func:`text_width`)."""
     from ..steam.if97 import get_backend
 
     steam = get_backend(result.backend)
@@ -647,6 +658,8 @@ def _stream_label(svg, fmt, result, design, train, k, p_out, dp_out, x, y):
             fmt(fmt.disp(hh, "J/kg"), 1, fmt.disp(dhh, "J/kg")) + [(fmt.unit("J/kg"), None)]]
     for j, r in enumerate(rows):
         svg.text(x, y + 28 + 9 * j, r, 7, "middle", colour="#08519c", cls="stream")
+    half = max(text_width(r, 7) for r in rows) / 2
+    return x - half, x + half
 
 
 def _plant_lines(model, result, units: str = "metric") -> list:
