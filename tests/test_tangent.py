@@ -26,7 +26,7 @@ def _equations(model, cond):
     return equations_for(model, cond, get_backend("seuif97"))
 
 
-def _assert_agree(eq, x):
+def _assert_agree(eq, x, what=""):
     F = eq.residuals(x)
     F_own, J = eq.jacobian(eq.residuals, x, None)
     assert np.array_equal(F_own, F)
@@ -36,7 +36,7 @@ def _assert_agree(eq, x):
     scale = np.abs(dense).max(axis=1, keepdims=True)
     worst = np.abs(J - dense) / np.where(scale > 0.0, scale, 1.0)
     r, c = np.unravel_index(np.argmax(worst), worst.shape)
-    assert worst.max() < TOL, (eq.residual_names[r], eq.unknown_names[c], worst.max())
+    assert worst.max() < TOL, (what, eq.residual_names[r], eq.unknown_names[c], worst.max())
 
 
 def _off_design_knots(x):
@@ -157,3 +157,59 @@ def test_a_renewal_whose_law_fails_keeps_the_converged_point(monkeypatch):
     np.testing.assert_allclose(r.node_p, plain.node_p, rtol=1e-12)
     assert r.evaluations == plain.evaluations + 1
     np.testing.assert_array_equal(r.jacobian, plain.jacobian)  # Newton's, kept
+
+
+MODELS = sorted((Path(__file__).resolve().parent.parent / "models").glob("*.toml"))
+
+
+def _variants(model):
+    """Structures the cases do not all reach: fixed and sliding pressure, an output
+    demanded, a bleed in proportion to a throttle flow that is an unknown, each
+    heater out (those the cycle can lose), the control valves wide open, and the
+    wide-open mode at a held throttle pressure."""
+    from dataclasses import replace
+
+    from partload.plant.case import design_conditions
+
+    base = design_conditions(model)
+    m, rating = model.throttle.flow, model.generator.rating
+    out = [("sliding", replace(base, throttle_flow=0.83 * m), {}),
+           ("fixed", replace(base, throttle_flow=0.83 * m, pressure_mode="fixed"), {}),
+           ("demand", replace(base, throttle_flow=None, output=0.87 * rating), {}),
+           ("demand-fixed", replace(base, throttle_flow=None, output=0.87 * rating,
+                                    pressure_mode="fixed"), {}),
+           ("wide-open-mode", replace(base, pressure_mode="fixed"), {"mode": "wide_open"})]
+    for first in list(model.extractions)[:1]:  # a bleed in proportion to the unknown flow
+        out.append(("fraction-demand",
+                    replace(base, throttle_flow=None, output=0.87 * rating,
+                            extraction_control=((first, ("fraction", 0.03)),)), {}))
+    for h, heater in model.heaters.items():
+        if heater.heater_type != "deaerator":
+            out.append((f"{h}-out", replace(base, throttle_flow=0.83 * m,
+                                            heaters_out=frozenset([h])), {}))
+    if model.control_valves:
+        out.append(("control-valves-wide-open", replace(base, throttle_flow=0.83 * m),
+                    {"wide_open": frozenset(c.name for c in model.control_valves)}))
+    return out
+
+
+@pytest.mark.parametrize("model_path", MODELS, ids=[p.stem for p in MODELS])
+def test_carried_jacobian_equals_forward_differences_in_every_structure(model_path):
+    from partload.plant.model import load_model
+
+    model = load_model(model_path)
+    for name, cond, how in _variants(model):
+        eq = equations_for(model, cond, get_backend("seuif97"), **how)
+        _assert_agree(eq, _off_design_knots(eq.guess()), name)
+
+
+@pytest.mark.parametrize("mode", ["sliding", "fixed"])
+def test_carried_jacobian_equals_forward_differences_with_paired_bleeds(mode):
+    # a heater fed by bleeds of two parallel branches, each its share of the bleed
+    from test_paired_bleeds import PAIRED, _model
+
+    model = _model(PAIRED)
+    for cond in (Conditions(throttle_flow=0.7 * model.throttle.flow, pressure_mode=mode),
+                 Conditions(output=0.7 * model.generator.rating, pressure_mode=mode)):
+        eq = _equations(model, cond)
+        _assert_agree(eq, _off_design_knots(eq.guess()))
