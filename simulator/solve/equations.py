@@ -274,8 +274,8 @@ class PointEquations:
     def jacobian(self, fun, x: np.ndarray, F: np.ndarray | None):
         """Residuals and Jacobian at ``x`` [-]: ``(F, J)``, the derivatives carried
         along the march (:func:`~simulator.solve.tangent.tangent_jacobian`: a few
-        evaluations of each component instead of a march a column).  ``fun`` and
-        ``fun`` is the residual function Newton counts evaluations with (the base
+        evaluations of each component instead of a march a column).  ``fun`` is
+        the residual function Newton counts evaluations with (the base
         point is marched through it once); ``F = fun(x)`` when known, ``None``
         otherwise."""
         from .tangent import tangent_jacobian

@@ -34,6 +34,8 @@ import math
 
 import numpy as np
 
+from .equations import TrialPointError
+
 __all__ = ["tangent_jacobian", "STEP"]
 
 STEP = 1e-7  # relative step of every difference, as fd_jacobian's step in ln p [-]
@@ -46,7 +48,9 @@ def tangent_jacobian(eq, fun, x: np.ndarray, F: np.ndarray | None):
     ``eq`` is a :class:`~simulator.solve.equations.PointEquations`; ``fun`` the
     residual function Newton counts evaluations with (the base point is
     marched once through it, with its property calls remembered); ``F`` the
-    residuals at ``x`` when known (``None`` otherwise).
+    residuals at ``x`` when known (``None`` otherwise).  A law that cannot take
+    a moved input raises :class:`~simulator.solve.equations.TrialPointError`, as
+    a residual evaluation does.
     """
     memo = eq.memo_steam
     memo.clear()
@@ -54,7 +58,12 @@ def tangent_jacobian(eq, fun, x: np.ndarray, F: np.ndarray | None):
     try:
         base = fun(x)  # the march at x, kept in eq._last; its property calls remembered
         F = base if F is None else F
-        return F, _carry(eq, x.size)
+        try:
+            return F, _carry(eq, x.size)
+        except (ArithmeticError, ValueError) as exc:  # a moved input the laws cannot take,
+            # as PointEquations.residuals says of a trial point
+            raise TrialPointError(
+                f"the equations cannot be evaluated at a trial point ({exc})") from None
     finally:
         eq.steam = eq.raw_steam
         memo.clear()
