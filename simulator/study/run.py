@@ -115,21 +115,30 @@ def _boundary(cond: Conditions) -> tuple:
     return (cond.valve_mode, cond.pressure_mode, cond.output is None, cond.throttle_pressure,
             cond.throttle_temperature, cond.reheat_temperature, cond.exhaust_pressure,
             cond.extraction_control, cond.heaters_out, cond.held_pressures, cond.valves_open,
-            cond.minimum_throttle_pressure)
+            cond.minimum_throttle_pressure, cond.settings)
 
 
 def _family(cond: Conditions) -> tuple:
-    """Everything of ``cond`` but its numbers (load, pressures, temperatures):
-    points that share it have the same unknowns, so that their solutions can be
-    fitted as a function of those numbers (:class:`Continuation`)."""
+    """Everything of ``cond`` but its numbers (load, pressures, temperatures, the
+    values of numeric settings): points that share it have the same unknowns, so
+    that their solutions can be fitted as a function of those numbers
+    (:class:`Continuation`)."""
     return (cond.valve_mode, cond.pressure_mode, cond.output is None,
             cond.throttle_flow is None, cond.extraction_control, cond.heaters_out,
-            cond.held_pressures, cond.settings)
+            cond.held_pressures,
+            tuple(s[:3] if _is_number(s[3]) else s for s in cond.settings))
+
+
+def _is_number(value) -> bool:
+    """A setting's value that a family varies (a quantity), not a choice or flag."""
+    return isinstance(value, float | int) and not isinstance(value, bool)
 
 
 def _numbers(model: Model, cond: Conditions) -> np.ndarray:
-    """The numbers of ``cond`` that a family varies, each over its design value [-]
-    (a number the case leaves unset is its design value, 1)."""
+    """The numbers of ``cond`` that a family varies: load, pressures and
+    temperatures each over its design value [-] (a number the case leaves unset
+    is its design value, 1), then the components' numeric settings (a wet-bulb
+    temperature, say) as given [SI]."""
     th = model.throttle
     load = (cond.output / model.generator.rating if cond.output is not None
             else (cond.throttle_flow or 0.0) / th.flow)
@@ -140,6 +149,7 @@ def _numbers(model: Model, cond: Conditions) -> np.ndarray:
         1.0 if cond.throttle_pressure is None else cond.throttle_pressure / th.pressure,
         1.0 if cond.throttle_temperature is None else cond.throttle_temperature / th.temperature,
         1.0 if cond.reheat_temperature is None else cond.reheat_temperature / th.temperature,
+        *(float(s[3]) for s in cond.settings if _is_number(s[3])),
     ])
 
 
@@ -168,6 +178,7 @@ class SolutionFit:
         self._X = np.empty((0, 0))
         self._n = 0
         self._varying = np.zeros(0, dtype=bool)
+        self._scale = np.zeros(0)  # 1 / spread of each varying number over the kept points
 
     @property
     def numbers(self) -> np.ndarray:
@@ -200,6 +211,8 @@ class SolutionFit:
         # numbers that differ between the kept points (an exact test, as np.ptp > 0)
         T = self._T[:self._n]
         self._varying = np.any(T != T[0], axis=0)
+        V = T[:, self._varying]
+        self._scale = 1.0 / (V.max(axis=0) - V.min(axis=0))
 
     def predict(self, family: tuple, numbers: np.ndarray) -> np.ndarray | None:
         """Predicted unknowns of a point of ``family`` at ``numbers`` [-], or ``None``
@@ -209,21 +222,34 @@ class SolutionFit:
             return None
         X = self._X[:n]
         d = (self._T[:n] - numbers)[:, self._varying]
-        dist = np.einsum("ij,ij->i", d, d)
+        # nearest in units of each number's spread over the kept points: a load
+        # fraction and a wet-bulb temperature in kelvin weigh alike
+        dd = d * self._scale
+        dist = np.einsum("ij,ij->i", dd, dd)
+        order = np.argsort(dist, kind="stable")
         if n >= self.NEAR_QUADRATIC and d.shape[1] <= 2:
-            near = np.argsort(dist, kind="stable")[:self.NEAR_QUADRATIC]
-            t = d[near]
-            cols = [np.ones(len(near))] + [t[:, a] for a in range(t.shape[1])]
-            cols += [t[:, a] * t[:, b] for a in range(t.shape[1]) for b in range(a, t.shape[1])]
-            A = np.column_stack(cols)
-        else:
-            near = np.argsort(dist, kind="stable")[:self.NEAR + 1]
-            A = np.column_stack([np.ones(len(near)), d[near]])
-        C, _res, rank, _sv = np.linalg.lstsq(A, X[near], rcond=None)
-        if rank < A.shape[1]:
-            return None
-        x = C[0]
-        return x if np.all(np.isfinite(x)) else None
+            x = _least_squares(d, X, order[:self.NEAR_QUADRATIC], quadratic=True)
+            if x is not None:
+                return x
+            # the nearest points do not fix a quadratic (two values of a number
+            # among them, say): a plane through fewer
+        return _least_squares(d, X, order[:self.NEAR + 1], quadratic=False)
+
+
+def _least_squares(d: np.ndarray, X: np.ndarray, near: np.ndarray, quadratic: bool):
+    """The value at the origin of a plane (or a quadratic) fitted by least squares
+    through the points ``near`` at offsets ``d`` with unknowns ``X``; ``None``
+    when they do not fix it (rank) or it is not finite."""
+    t = d[near]
+    cols = [np.ones(len(near))] + [t[:, a] for a in range(t.shape[1])]
+    if quadratic:
+        cols += [t[:, a] * t[:, b] for a in range(t.shape[1]) for b in range(a, t.shape[1])]
+    A = np.column_stack(cols)
+    C, _res, rank, _sv = np.linalg.lstsq(A, X[near], rcond=None)
+    if rank < A.shape[1]:
+        return None
+    x = C[0]
+    return x if np.all(np.isfinite(x)) else None
 
 
 # [-] a point started from the fit that took this many residual evaluations hands
