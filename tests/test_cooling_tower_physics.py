@@ -59,3 +59,18 @@ def test_cold_water_continuous_in_the_wet_bulb():
     step = np.diff(tc)
     assert np.all(step > 0) and np.all(step < 0.1)  # 0.1 K wet-bulb steps
     assert np.max(np.abs(np.diff(step))) < 2e-3
+
+
+def test_cold_water_from_a_start_inverts_the_merkel_number():
+    # the secant from a start (as a condenser searches from its design approach) and the
+    # bracketed search find the same cold water, whose Merkel number is the tower's
+    # (identity), also in winter, where the air saturates at the design approach
+    import numpy as np
+    p, lg = 101325.0, 1.2
+    need = merkel_number(297.15, 297.15 + 8.0, 291.15, lg, p)
+    for T_wb in np.linspace(258.15, 303.15, 10):
+        for rng in (2.0, 5.0, 8.0, 12.0):
+            T_c = cold_water_temperature(T_wb, rng, need, lg, p, start=6.0)
+            assert T_c == pytest.approx(cold_water_temperature(T_wb, rng, need, lg, p),
+                                        abs=1e-9)
+            assert merkel_number(T_c, T_c + rng, T_wb, lg, p) == pytest.approx(need, rel=1e-9)

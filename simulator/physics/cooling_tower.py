@@ -84,24 +84,47 @@ def cold_water_temperature(T_wet_bulb: float, rng: float, merkel: float, l_over_
     pressure ``p`` [Pa]: where the Merkel number the duty needs equals the tower's
     (it falls as the approach grows).
 
-    ``start`` [K] is an approach to start from (a neighbour's): the secant method
-    from there, which needs three or four Merkel numbers near a neighbour; the
-    bracketed search when it does not settle within eight steps."""
+    ``start`` [K] is an approach to start from: the secant method from there on
+    the logarithms of the Merkel number and of the approach (the number falls
+    roughly as a power of the approach, so the two logarithms are nearly in a
+    straight line: four to six Merkel numbers from the design approach), a start
+    or a step at which the air would saturate on the way moved to a larger
+    approach or halved back; the bracketed
+    search when it does not settle within twelve steps."""
     def needed_minus(approach):
         return -merkel_number(T_wet_bulb + approach, T_wet_bulb + approach + rng, T_wet_bulb,
                               l_over_g, p)
     if start is not None and start > 0.0:
-        a0, a1 = start, start * (1.0 + 1e-4)
-        f0, f1 = needed_minus(a0) + merkel, needed_minus(a1) + merkel
-        for _ in range(8):
+        log_merkel = math.log(merkel)
+
+        def g(u):  # log of the number needed at approach e^u, less the tower's
+            n = -needed_minus(math.exp(u))
+            if not 0.0 < n < math.inf:  # saturated on the way (or no range): no log
+                return math.inf if n > 0.0 else -math.inf
+            return math.log(n) - log_merkel
+
+        u0 = math.log(start)
+        f0 = g(u0)
+        for _ in range(8):  # the air would saturate on the way: a larger approach
+            if f0 != math.inf:
+                break
+            u0 += 0.4
+            f0 = g(u0)
+        u1 = u0 + 1e-4
+        f1 = g(u1)
+        for _ in range(12):
             if not (math.isfinite(f0) and math.isfinite(f1)) or f1 == f0:
                 break
-            a2 = a1 - f1 * (a1 - a0) / (f1 - f0)
-            if not a2 > 0.0:
-                break
-            if abs(a2 - a1) <= 1e-12 * (T_wet_bulb + a2):
-                return T_wet_bulb + a2
-            a0, f0, a1, f1 = a1, f1, a2, needed_minus(a2) + merkel
+            u2 = u1 - f1 * (u1 - u0) / (f1 - f0)
+            if abs(math.exp(u2) - math.exp(u1)) <= 1e-12 * (T_wet_bulb + math.exp(u2)):
+                return T_wet_bulb + math.exp(u2)
+            f2 = g(u2)
+            for _ in range(30):  # beyond saturation: back toward the last finite point
+                if math.isfinite(f2):
+                    break
+                u2 = 0.5 * (u1 + u2)
+                f2 = g(u2)
+            u0, f0, u1, f1 = u1, f1, u2, f2
     hi = 5.0
     while needed_minus(hi) < -merkel and hi < 80.0:
         hi *= 2.0
