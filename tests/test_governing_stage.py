@@ -325,3 +325,23 @@ def test_mode_axes_in_any_order(tmp_path):
     key = sorted((c.pressure_mode, c.valves_open, c.throttle_flow) for c in plans[0].conditions)
     assert key == sorted((c.pressure_mode, c.valves_open, c.throttle_flow)
                          for c in plans[1].conditions)
+
+
+def test_a_held_program_point_counts_its_sliding_attempt(no_overlap):
+    # at 30 % flow the sliding answer lies below the program's lowest pressure, so the
+    # point is solved again at that pressure: its evaluations are both solves' (hand
+    # count of the two solves made separately from the same start)
+    from partload.plant.case import override
+
+    m = no_overlap
+    cond = read_conditions({"operation": {"pressure_mode": "program",
+                                          "throttle_pressure": "160 bar",
+                                          "minimum_throttle_pressure": "90 bar"}}, m)
+    cond = override(cond, throttle_flow=0.3 * m.throttle.flow)
+    r = solve_point(m, cond)
+    assert r.program_held
+    sliding = solve_point(m, override(cond, pressure_mode="sliding", throttle_pressure=None,
+                                      minimum_throttle_pressure=None), check_limits=False)
+    held = solve_point(m, override(cond, pressure_mode="fixed", throttle_pressure=90e5,
+                                   valves_open=None, minimum_throttle_pressure=None))
+    assert r.evaluations == sliding.evaluations + held.evaluations

@@ -255,6 +255,7 @@ def _solve_program(model, cond, steam, broyden, check_limits, neighbour,
                        minimum_throttle_pressure=None)
     near = neighbour if neighbour is not None and neighbour.pressure_mode == "program" else None
     tries: list[float] = []
+    spent = 0  # evaluations of a sliding answer outside the program's range
     try:
         result = solve_point(model, sliding, steam, broyden=broyden, check_limits=False,
                              neighbour=near if near is not None and not near.program_held
@@ -264,6 +265,8 @@ def _solve_program(model, cond, steam, broyden, check_limits, neighbour,
             tries = [upper]
         elif lower is not None and p_T < lower:
             tries = [lower]
+        if tries:
+            spent = result.evaluations
     except SolveError:  # no sliding answer: one of the held pressures may have one
         tries = [lower, upper] if lower is not None else [upper]
     for k, held in enumerate(tries):
@@ -280,6 +283,7 @@ def _solve_program(model, cond, steam, broyden, check_limits, neighbour,
                 raise
     result.pressure_mode = "program"
     result.program_held = bool(tries)
+    result.evaluations += spent  # (those of an attempt that failed are not known)
     return result
 
 
