@@ -338,6 +338,8 @@ class StudyFile:
         self.layout = layout
         self._ds = {fl.path: f[fl.path] for fl in layout.fields()}
         self._done = f["points/done"]
+        # per dataset, what a write of rows needs, found once (see _write_rows)
+        self._rows: dict[str, tuple] = {}
 
     # ---------------------------------------------------------------- create
     @classmethod
@@ -479,16 +481,39 @@ class StudyFile:
         a, b = res.start, res.stop
         try:
             for name, arr in res.arrays.items():
-                ds = self._ds[name]
-                if ds.dtype.kind == "S":
-                    arr = arr.astype(ds.dtype)  # numpy bytes to HDF5 UTF-8 text
-                ds[a:b] = arr
+                self._write_rows(name, a, b, arr)
             self.f.flush()
-            self._done[a:b] = 1
+            self._write_rows("points/done", a, b, np.ones(b - a, dtype=np.uint8))
             self.f.flush()
         except H5_ERRORS as exc:
             raise ResultFileError(f"cannot write to {self.path} ({exc}); the points marked "
                                   f"done so far are safe, continue with --resume") from None
+
+    def _write_rows(self, name: str, a: int, b: int, arr: np.ndarray) -> None:
+        """Write ``arr`` into rows ``a <= i < b`` of the dataset ``name`` [-].
+
+        Through h5py's low-level interface (``DatasetID.write`` with a hyperslab of
+        the file space): the same bytes as ``ds[a:b] = arr``, without the
+        high-level selection machinery, which took three quarters of the study
+        process's time for a chunk's 78 datasets.  Text is written as the
+        dataset's fixed-length UTF-8 type, cut or padded to its length as
+        ``astype`` does.
+        """
+        entry = self._rows.get(name)
+        if entry is None:
+            ds = self._ds[name] if name in self._ds else self.f[name]
+            dsid = ds.id
+            entry = self._rows[name] = (dsid, dsid.get_space(), h5py.h5t.py_create(ds.dtype),
+                                        ds.shape[1:], ds.dtype)
+        dsid, space, mtype, width, dtype = entry
+        count = (b - a, *width)
+        if arr.dtype != dtype or not arr.flags.c_contiguous:
+            arr = np.ascontiguousarray(arr, dtype=dtype)
+        if arr.shape != count:
+            raise ValueError(f"{name}: {arr.shape[0]} rows of shape {arr.shape[1:]} given for "
+                             f"rows {a} to {b} of shape {width}")
+        space.select_hyperslab((a, *(0 for _ in width)), count)
+        dsid.write(h5py.h5s.create_simple(count), space, arr, mtype)
 
     def close(self) -> None:
         if self.f.id.valid:

@@ -201,25 +201,57 @@ def _switch_conditions(case: Case, heaters: tuple, closed: tuple, cache: dict,
     return cond
 
 
+def _field_changes(key: str, value: float, model: Model) -> dict | None:
+    """The :class:`Conditions` fields one scalar input (SI) sets, or ``None`` for an
+    input that is applied to the conditions as a whole (an extraction flow, a
+    component setting; see :func:`_apply`)."""
+    if key == "throttle_flow":
+        return {"throttle_flow": value, "output": None}
+    if key == "throttle_flow_fraction":
+        return {"throttle_flow": value * model.throttle.flow, "output": None}
+    if key == "output":
+        return {"output": value, "throttle_flow": None}
+    if key == "output_fraction":
+        return {"output": value * model.generator.rating, "throttle_flow": None}
+    if "." in key:  # extraction_flow.NAME, or a component setting TABLE.NAME.SETTING
+        return None
+    return {key: value}
+
+
 def _apply(cond: Conditions, key: str, value: float, model: Model) -> Conditions:
     """Set one scalar input (SI) on a copy of ``cond``."""
-    if key == "throttle_flow":
-        return dataclasses.replace(cond, throttle_flow=value, output=None)
-    if key == "throttle_flow_fraction":
-        return dataclasses.replace(cond, throttle_flow=value * model.throttle.flow, output=None)
-    if key == "output":
-        return dataclasses.replace(cond, output=value, throttle_flow=None)
-    if key == "output_fraction":
-        return dataclasses.replace(cond, output=value * model.generator.rating,
-                                   throttle_flow=None)
+    changes = _field_changes(key, value, model)
+    if changes is not None:
+        return dataclasses.replace(cond, **changes)
     if key.startswith("extraction_flow."):
         name = key.split(".", 1)[1]
         controls = dict(cond.extraction_control)
         controls[name] = ("flow", float(value))
         return dataclasses.replace(cond, extraction_control=tuple(sorted(controls.items())))
-    if "." in key:  # a component setting TABLE.NAME.SETTING (see axes.setting_axis)
-        return apply_setting(cond, model, key, value)
-    return dataclasses.replace(cond, **{key: value})
+    return apply_setting(cond, model, key, value)  # see axes.setting_axis
+
+
+def _point(cond: Conditions, items, model: Model, label: str) -> Conditions:
+    """The conditions of one point: ``cond`` with the scalar inputs ``items``
+    (``(key, SI value)`` pairs, applied in turn) set, without the values its modes
+    have no use for (:func:`~simulator.plant.case.without_unused`) and labelled.
+
+    The same conditions as applying each input with :func:`_apply`, but the
+    inputs that set fields of their own (the load, pressures, temperatures) are
+    gathered and set in one copy: a profile of 8,760 rows made three copies a
+    row before.  Extraction flows and component settings set fields no other
+    input sets (the extraction controls, the settings), so applying them first
+    changes nothing.
+    """
+    changes = {}
+    for key, value in items:
+        fields = _field_changes(key, value, model)
+        if fields is None:
+            cond = _apply(cond, key, value, model)
+        else:
+            changes.update(fields)
+    changes["label"] = label
+    return without_unused(dataclasses.replace(cond, **changes))
 
 
 def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
@@ -412,12 +444,12 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
         start = len(conds)
         if profile is None:
             for item in run_values:
-                c = cond_s
                 label = series_label
+                items = ()
                 if item is not None:
-                    c = _apply(cond_s, cont.key, item[0], model)
+                    items = ((cont.key, item[0]),)
                     label = f"{cont.key}={item[1]}" + (f", {series_label}" if series_label else "")
-                conds.append(dataclasses.replace(without_unused(c), label=label))
+                conds.append(_point(cond_s, items, model, label))
                 labels.append(label)
                 for a, k in zip(series_axes, combo):
                     axis_cols[a.key].append(a.values[k])
@@ -440,10 +472,8 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
                         for a, k in zip(series_axes, combo):
                             if a.kind.role != "switch":
                                 c = _apply(c, a.key, a.values[k], model)
-                for a in p_scalar:
-                    c = _apply(c, a.key, a.values[r], model)
                 label = profile.labels[r] + (f", {series_label}" if series_label else "")
-                conds.append(dataclasses.replace(without_unused(c), label=label))
+                conds.append(_point(c, [(a.key, a.values[r]) for a in p_scalar], model, label))
                 labels.append(label)
                 for a, k in zip(series_axes, combo):
                     axis_cols[a.key].append(a.values[k])
