@@ -52,6 +52,7 @@ from .format import (
     in_use,
     is_hdf5,
     looks_ours,
+    open_for_rows,
     open_hdf5,
 )
 
@@ -397,7 +398,7 @@ class StudyFile:
             f.close()  # closed once, so that its structure is final on disk
             # reopened for writing (HDF5 locks it) before it appears at path: a second
             # study finds it in use from its first moment there
-            f = h5py.File(tmp, "r+")
+            f = open_for_rows(tmp)
             between_steps("built")
             _put_in_place(tmp, path, replace)
         except ResultFileError:
