@@ -189,6 +189,7 @@ __all__ = [
     "is_hdf5",
     "open_hdf5",
     "open_for_rows",
+    "small_metadata_cache",
     "in_use",
     "format_name",
     "check_format",
@@ -266,6 +267,31 @@ def is_hdf5(path: Path) -> bool:
     return head == HDF5_SIGNATURE
 
 
+METADATA_CACHE = 512 * 1024  # [B] largest metadata cache of a study file being written
+
+
+def small_metadata_cache(target) -> None:
+    """Keep HDF5's metadata cache of a file being written at most
+    :data:`METADATA_CACHE` bytes (HDF5's default grows it to 32 MiB).
+
+    Parameters
+    ----------
+    target : an open file's ``FileID`` or a file access property list [-]
+
+    Writing a study file's structure put every text of the per-point label and
+    input lists (8,760 of each for a year) into cached heap blocks: 3 MB more at
+    the study process's peak, which the forked workers inherited.  A file
+    written once, start to end, gains nothing from a larger cache; the bytes
+    written are the same data, and the time the same (measured).
+    """
+    config = target.get_mdc_config()
+    config.set_initial_size = True
+    config.initial_size = METADATA_CACHE // 2
+    config.min_size = METADATA_CACHE // 4
+    config.max_size = METADATA_CACHE
+    target.set_mdc_config(config)
+
+
 def open_for_rows(path: Path) -> h5py.File:
     """``path`` [-] opened for writing, as ``h5py.File(path, "r+")`` (HDF5's lock
     taken), for a writer that only puts rows into datasets allocated at creation.
@@ -279,6 +305,7 @@ def open_for_rows(path: Path) -> h5py.File:
     fapl = h5py.h5p.create(h5py.h5p.FILE_ACCESS)
     fapl.set_libver_bounds(h5py.h5f.LIBVER_EARLIEST, h5py.h5f.LIBVER_LATEST)  # as h5py
     fapl.set_sieve_buf_size(0)
+    small_metadata_cache(fapl)
     return h5py.File(h5py.h5f.open(os.fsencode(path), h5py.h5f.ACC_RDWR, fapl=fapl))
 
 

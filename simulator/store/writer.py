@@ -54,6 +54,7 @@ from .format import (
     looks_ours,
     open_for_rows,
     open_hdf5,
+    small_metadata_cache,
 )
 
 # The plan (``partload.study.StudyPlan``), the finished chunks
@@ -393,6 +394,7 @@ class StudyFile:
         f = None
         try:
             f = h5py.File(tmp, "w", track_order=True)
+            small_metadata_cache(f.id)
             _write_structure(f, plan, layout)
             f.attrs["check_limits"] = int(check_limits)
             f.close()  # closed once, so that its structure is final on disk
