@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import contextlib
 import ipaddress
+import itertools
 import logging
 import multiprocessing
 import os
@@ -133,13 +134,24 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
     # freed once written (keeping them held the whole study in memory)
     handled: set[int] = set()
     chunk_of = {}
-    try:
-        for c in todo:
+    # chunks are handed to the pool two per worker at a time (one solving, one
+    # waiting), the next as one finishes: the conditions of the others are not made
+    # before they are due (the plan keeps them as numbers) and the workers never wait
+    queue = iter(todo)
+
+    def submit(k: int) -> None:
+        for c in itertools.islice(queue, k):
             fut = ex.submit(solve_chunk_task, spec, c, plan.conditions[c.start:c.stop])
             chunk_of[fut] = c.index
             pending.add(fut)
+
+    try:
+        submit(2 * n)
         while pending:
-            done, pending = wait(pending, return_when=FIRST_COMPLETED)
+            done, waiting = wait(pending, return_when=FIRST_COMPLETED)
+            pending.clear()
+            pending.update(waiting)
+            submit(len(done))
             for fut in done:
                 handled.add(chunk_of.pop(fut))
                 handle(_chunk_of(fut))
