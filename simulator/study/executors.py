@@ -21,7 +21,7 @@ import numpy as np
 
 from ..errors import ClusterError, InputError, SolveError
 from ..store.layout import ResultLayout, result_layout
-from .plan import Chunk, StudyPlan
+from .plan import Chunk, PointConditions, StudyPlan
 from .progress import Progress, StudySummary
 from .run import ChunkResult, SolveSpec, init_worker, keep_model, solve_chunk, solve_chunk_task
 
@@ -112,6 +112,14 @@ def run_study(plan: StudyPlan, on_result: Callable[[ChunkResult], None], *,
     return summary
 
 
+def _points_of(plan: StudyPlan, c: Chunk):
+    """The conditions of chunk ``c`` as the worker gets them: a plan's points as
+    numbers (:meth:`~.plan.PointConditions.part`; the worker makes them), else a list."""
+    if isinstance(plan.conditions, PointConditions):
+        return plan.conditions.part(c.start, c.stop)
+    return plan.conditions[c.start:c.stop]
+
+
 def _chunk_of(fut) -> ChunkResult:
     """The result of a chunk's future; a worker that died becomes a clear error."""
     try:
@@ -141,7 +149,7 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
 
     def submit(k: int) -> None:
         for c in itertools.islice(queue, k):
-            fut = ex.submit(solve_chunk_task, spec, c, plan.conditions[c.start:c.stop])
+            fut = ex.submit(solve_chunk_task, spec, c, _points_of(plan, c))
             chunk_of[fut] = c.index
             pending.add(fut)
 

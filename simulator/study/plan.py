@@ -308,10 +308,26 @@ class PointConditions(Sequence):
 
     def head(self, n: int) -> PointConditions:
         """The first ``n`` points [-]."""
-        return PointConditions(self._model, self._blocks, self._block[:n], self._values[:n],
-                               self._labels[:n])
+        return self.part(0, n)
+
+    def part(self, start: int, stop: int) -> PointConditions:
+        """Points ``start <= i < stop`` [-], still as numbers: what a chunk sends to a
+        worker, which makes their conditions with its own model (see
+        :meth:`with_model`; pickled, the model is left out)."""
+        return PointConditions(self._model, self._blocks, self._block[start:stop],
+                               self._values[start:stop], self._labels[start:stop])
+
+    def with_model(self, model: Model) -> PointConditions:
+        """The same points, made with ``model`` (a worker's copy of the plan's) [-]."""
+        return PointConditions(model, self._blocks, self._block, self._values, self._labels)
+
+    def __getstate__(self) -> dict:
+        return {**self.__dict__, "_model": None}
 
     def _make(self, k: int) -> Conditions:
+        if self._model is None:
+            raise TypeError("these points came without their model: make them with "
+                            "with_model(model) first")
         base, keys = self._blocks[self._block[k]]
         values = self._values[k, :len(keys)].tolist()
         return _point(base, zip(keys, values), self._model, self._labels[k])

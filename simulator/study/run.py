@@ -24,7 +24,7 @@ from ..plant.model import Model, build_model
 from ..solve.point import PointResult, one_blas_thread, solve_point
 from ..steam.if97 import get_backend
 from ..store.layout import CAUTION_BYTES, CODES_BYTES, ResultLayout, cut_text
-from .plan import Chunk
+from .plan import Chunk, PointConditions
 
 __all__ = [
     "ChunkResult",
@@ -345,6 +345,8 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
     """
     t0 = time.perf_counter()
     model = worker_model(spec)
+    if isinstance(conditions, PointConditions):  # a plan's points as numbers
+        conditions = list(conditions.with_model(model))
     steam = get_backend(spec.backend)
     layout = spec.layout
     arrays = layout.empty(len(conditions))
