@@ -4,7 +4,7 @@ the words of its messages, and the last stages' states (:mod:`simulator.cautions
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from ..plant.case import Conditions
 from ..plant.limits import Limits
@@ -67,6 +67,8 @@ class Point:
     result: PointResult
     steam: SteamTables
     limits: Limits
+    # what more than one check works out, found once per point (the pressure rises)
+    memo: dict = field(default_factory=dict, repr=False, compare=False)
 
     def node_index(self, name: str) -> int:
         return self.result.node_names.index(name)

@@ -168,6 +168,7 @@ class SolutionFit:
         self._X = np.empty((0, 0))
         self._n = 0
         self._varying = np.zeros(0, dtype=bool)
+        self._cols = np.zeros(0, dtype=np.intp)  # [-] indices of the varying numbers
 
     @property
     def numbers(self) -> np.ndarray:
@@ -200,6 +201,7 @@ class SolutionFit:
         # numbers that differ between the kept points (an exact test, as np.ptp > 0)
         T = self._T[:self._n]
         self._varying = np.any(T != T[0], axis=0)
+        self._cols = np.flatnonzero(self._varying)
 
     def predict(self, family: tuple, numbers: np.ndarray) -> np.ndarray | None:
         """Predicted unknowns of a point of ``family`` at ``numbers`` [-], or ``None``
@@ -208,17 +210,25 @@ class SolutionFit:
         if family != self.family or n <= self.NEAR:
             return None
         X = self._X[:n]
-        d = (self._T[:n] - numbers)[:, self._varying]
+        cols = self._cols
+        d = self._T[:n, cols] - numbers[cols]
         dist = np.einsum("ij,ij->i", d, d)
-        if n >= self.NEAR_QUADRATIC and d.shape[1] <= 2:
-            near = np.argsort(dist, kind="stable")[:self.NEAR_QUADRATIC]
-            t = d[near]
-            cols = [np.ones(len(near))] + [t[:, a] for a in range(t.shape[1])]
-            cols += [t[:, a] * t[:, b] for a in range(t.shape[1]) for b in range(a, t.shape[1])]
-            A = np.column_stack(cols)
-        else:
-            near = np.argsort(dist, kind="stable")[:self.NEAR + 1]
-            A = np.column_stack([np.ones(len(near)), d[near]])
+        k = d.shape[1]
+        # the columns of A written in place: 1, the differences, and for the quadratic
+        # their products (a <= b), as column_stack of the same numbers gave them
+        quadratic = n >= self.NEAR_QUADRATIC and k <= 2
+        near = np.argsort(dist, kind="stable")[:self.NEAR_QUADRATIC if quadratic
+                                               else self.NEAR + 1]
+        t = d[near]
+        A = np.empty((len(near), 1 + k + (k * (k + 1) // 2 if quadratic else 0)))
+        A[:, 0] = 1.0
+        A[:, 1:1 + k] = t
+        if quadratic:
+            j = 1 + k
+            for a in range(k):
+                for b in range(a, k):
+                    np.multiply(t[:, a], t[:, b], out=A[:, j])
+                    j += 1
         C, _res, rank, _sv = np.linalg.lstsq(A, X[near], rcond=None)
         if rank < A.shape[1]:
             return None
