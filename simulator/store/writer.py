@@ -161,8 +161,8 @@ def study_file_size(plan, layout) -> int:
     """
     n = plan.n_points
 
-    def text(values) -> int:
-        return sum(len(str(v).encode()) + 32 for v in values)
+    def text(values) -> int:  # UTF-8 bytes of the texts, and 32 B each
+        return len("".join(map(str, values)).encode()) + 32 * len(values)
 
     size = 256 * 1024
     for fl in layout.fields():
@@ -577,15 +577,18 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
     pts = f.create_group("points", track_order=True)
     d = _preallocated(pts, "done", (n,), "u1", 0)
     d.attrs["description"] = "1 once the point is finished (solved or failed)"
+    d.attrs["unit"] = "-"
     _text_array(pts, "label", plan.labels).attrs["description"] = "the point's inputs in words"
     ds = pts.create_dataset("series", data=plan.series.astype(np.int32), track_times=False)
     ds.attrs["description"] = "series of the point (index into series_labels)"
+    ds.attrs["unit"] = "-"
     _text_array(pts, "series_labels", plan.series_labels).attrs["description"] = (
         "values of the fixed axes of each series")
     ds = pts.create_dataset("chunk", data=plan.chunk_of_point, track_times=False)
     ds.attrs["description"] = ("chunk the point was solved in; a chunk's points are solved by "
                                "increasing load, the first from the design-scaled guess, every "
                                "other from the point solved before it")
+    ds.attrs["unit"] = "-"
     inp = f.create_group("inputs", track_order=True)
     inp.attrs["axes"] = a["axes"]
     inp.attrs["continuation_axis"] = plan.continuation
@@ -612,17 +615,11 @@ def _write_structure(f: h5py.File, plan, layout) -> None:
         g = f[gname] if gname in f else f.create_group(gname, track_order=True)
         shape = (n, fl.width) if fl.width else (n,)
         ds = _preallocated(g, dname, shape, fl.dtype, fl.fill)
-        if fl.unit:
-            ds.attrs["unit"] = fl.unit
+        if fl.unit or ds.dtype.kind in "iuf":  # every numeric dataset states a unit
+            ds.attrs["unit"] = fl.unit or "-"
         ds.attrs["description"] = fl.description
         if fl.display:
             ds.attrs["display"] = fl.display
-
-    def dimensionless(name, obj):  # every numeric dataset states a unit
-        if isinstance(obj, h5py.Dataset) and obj.dtype.kind in "iuf" and "unit" not in obj.attrs:
-            obj.attrs["unit"] = "-"
-
-    f.visititems(dimensionless)
     add_dimensions(f, n)
 
 
