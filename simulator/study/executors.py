@@ -154,7 +154,8 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
             pending.add(fut)
 
     try:
-        submit(2 * n)
+        submit(2 * n)  # the first submission forks the workers
+        _return_large_blocks()
         while pending:
             done, waiting = wait(pending, return_when=FIRST_COMPLETED)
             pending.clear()
@@ -174,6 +175,28 @@ def _run_pool(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], n: int, handl
         raise
     finally:
         ex.shutdown(wait=True, cancel_futures=True)
+
+
+M_MMAP_THRESHOLD = -3  # glibc's mallopt parameter (malloc.h)
+
+
+def _return_large_blocks() -> None:
+    """Have the C heap of this process give every block of 128 KiB or more back to
+    the system when it is freed (glibc's ``mallopt(M_MMAP_THRESHOLD)``; nothing
+    where the C library has none).
+
+    glibc raises that threshold to the largest block freed so far: after the
+    first chunk's pickled result (0.5 MB, read into a buffer and copied) every
+    later one came from the heap, which kept their room.  Measured on the demo
+    year with two workers: 1 MB less at the study process's peak; the workers,
+    forked before, keep glibc's default.
+    """
+    try:
+        import ctypes
+
+        ctypes.CDLL("libc.so.6").mallopt(M_MMAP_THRESHOLD, 128 * 1024)
+    except (OSError, AttributeError):  # not glibc
+        pass
 
 
 def _software_version() -> str:
