@@ -224,6 +224,36 @@ def test_profile_times_a_sweep_axis(tmp_path):
     assert plan.labels[4] == "h1, heater_out=LP3"
 
 
+def test_plan_points_are_the_conditions_of_their_rows(tmp_path):
+    # the plan keeps its points as numbers; each point made from them is the case's
+    # conditions with the row's output and exhaust pressure and its label (hand-made here
+    # from PROFILE_CSV), for the heaters of its series; pickled (as a chunk goes to a
+    # worker) the points leave the model out and are made again with the worker's
+    import dataclasses
+    import pickle
+
+    (tmp_path / "p.csv").write_text(PROFILE_CSV, encoding="utf-8")
+    case = load_case(write_case(tmp_path, '[operation]\npressure_mode = "sliding"\n'
+                                          '[profile]\nfile = "p.csv"\n'
+                                          '[sweep]\nheater_out = ["none", "LP3"]\n'))
+    plan = plan_study(case)
+    rows = [(200e6, 6.5e3, "h0"), (240.5e6, 7.0e3, "h1"), (180e6, 8.25e3, "h2")]
+    got = list(plan.conditions)
+    assert len(got) == 6 and plan.conditions[-1] == got[5] and plan.conditions[1:3] == got[1:3]
+    for k, (output, p_x, label) in enumerate(rows):
+        want = dataclasses.replace(case.conditions, output=output, throttle_flow=None,
+                                   exhaust_pressure=p_x, label=label + ", heater_out=none")
+        assert got[k] == want
+        lp3 = got[3 + k]
+        assert (lp3.output, lp3.exhaust_pressure, lp3.label, lp3.heaters_out) == (
+            output, p_x, label + ", heater_out=LP3", frozenset({"LP3"}))
+    part = pickle.loads(pickle.dumps(plan.conditions.part(2, 5)))
+    with pytest.raises(TypeError, match="without their model"):
+        part[0]
+    assert list(part.with_model(case.model)) == got[2:5]
+    assert plan.profile.axes == []  # the rows' values are kept once, in the inputs
+
+
 @pytest.mark.parametrize("csv_text, table, key, text", [
     ("time,output,exhaust_pressure [kPa]\nh0,200,6\n", "line 1", "output",
      "needs its unit"),

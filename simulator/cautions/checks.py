@@ -133,7 +133,7 @@ def _exhaust_moisture(pt: _Point) -> Caution | None:
     name = "max_exhaust_moisture"
     lim = pt.limits[name]
     over = sorted(((float(r.group_moisture_out[k]), model.groups[k].name)
-                   for k in last_groups(model)
+                   for k in pt.last_groups()
                    if float(r.group_moisture_out[k]) > lim), reverse=True)
     if not over:
         return None
@@ -152,8 +152,8 @@ def _last_stage_volume_flow(pt: _Point) -> Caution | None:
     name = "min_last_stage_volume_flow"
     lim = pt.limits[name]
     low = []
-    for k in last_groups(model):
-        _m, q, _h = last_stage_state(model, pt.result, k, pt.steam)
+    for k in pt.last_groups():
+        _m, q, _h = pt.last_stage(k)
         q_d = design_last_stage_volume_flow(model, k, pt.steam)
         ratio = q / q_d
         if ratio < lim:
@@ -178,11 +178,11 @@ def _exhaust_temperature(pt: _Point) -> Caution | None:
     name = "max_exhaust_temperature"
     lim = pt.limits[name]
     hot = []
-    for k in last_groups(model):
+    for k in pt.last_groups():
         c = model.groups[k]
         if c.exhaust is None:  # a back-pressure exhaust is hot by design
             continue
-        _m, _q, h_used = last_stage_state(model, r, k, pt.steam)
+        _m, _q, h_used = pt.last_stage(k)
         try:
             T = pt.steam.T_ph(float(r.node_p[pt.node_index(c.outlet)]), h_used)
         except PartloadError:
@@ -389,7 +389,7 @@ def _condenser_duty(pt: _Point) -> Caution | None:
 def _exhaust_loss_curve(pt: _Point) -> Caution | None:
     r, model = pt.result, pt.model
     off = []
-    for k in last_groups(model):
+    for k in pt.last_groups():
         ex = model.groups[k].exhaust
         if ex is None:
             continue

@@ -4,7 +4,7 @@ the words of its messages, and the last stages' states (:mod:`simulator.cautions
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from ..plant.case import Conditions
 from ..plant.limits import Limits
@@ -67,9 +67,25 @@ class Point:
     result: PointResult
     steam: SteamTables
     limits: Limits
+    # what more than one check works out, found once per point (the pressure rises,
+    # the last stage groups and their states)
+    memo: dict = field(default_factory=dict, repr=False, compare=False)
 
     def node_index(self, name: str) -> int:
         return self.result.node_names.index(name)
+
+    def last_groups(self) -> list[int]:
+        """:func:`last_groups` of the model, found once for the point's checks [-]."""
+        if "last_groups" not in self.memo:
+            self.memo["last_groups"] = last_groups(self.model)
+        return self.memo["last_groups"]
+
+    def last_stage(self, k: int) -> tuple[float, float, float]:
+        """:func:`last_stage_state` of stage group ``k`` at the point, found once [-]."""
+        key = ("last_stage", k)
+        if key not in self.memo:
+            self.memo[key] = last_stage_state(self.model, self.result, k, self.steam)
+        return self.memo[key]
 
     def limit_text(self, name: str, shown: str) -> str:
         return f"limit {shown}, {self.limits.source(name)}"

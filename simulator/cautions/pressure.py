@@ -23,6 +23,8 @@ def rises(pt: _Point) -> list[tuple[float, str, float, str]]:
     """Nodes above ``max_pressure_rise`` with the cause of each:
     ``(rise [-], node, pressure [Pa], cause)``, cause ``"overload"``,
     ``"back_pressure"`` or ``"other"`` (see :func:`rise_kind`); worst first."""
+    if "rises" in pt.memo:  # both pressure checks ask
+        return pt.memo["rises"]
     r, model = pt.result, pt.model
     lim = pt.limits["max_pressure_rise"]
     skip = set(model.exhaust_nodes) | {model.source}
@@ -34,6 +36,7 @@ def rises(pt: _Point) -> list[tuple[float, str, float, str]]:
         if rise > lim:
             over.append((rise, n, float(r.node_p[i]), rise_kind(pt, n, lim)))
     over.sort(reverse=True)
+    pt.memo["rises"] = over
     return over
 
 

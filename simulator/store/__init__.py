@@ -17,12 +17,25 @@ One module per job:
 
 Importing the store loads h5py and numpy, not the solver: the plan and
 layout a study hands to :class:`StudyFile` are only used, never imported.
+The reader and the export are imported when first asked for: a study
+process writes and never reads.
 """
 
-from .export import export_csv, to_display, write_whole
 from .format import FORMAT, FORMAT_VERSION
-from .reader import StudyData, open_result, read_study
 from .writer import StudyFile, check_target
+
+
+def __getattr__(name: str):
+    """The reader's and the export's names, imported when first used."""
+    if name in ("StudyData", "open_result", "read_study"):
+        from . import reader
+
+        return getattr(reader, name)
+    if name in ("export_csv", "to_display", "write_whole"):
+        from . import export
+
+        return getattr(export, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 __all__ = [
     "FORMAT",

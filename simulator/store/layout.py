@@ -174,21 +174,36 @@ class ResultLayout:
         arrays["solver/evaluations"][i] = r.evaluations
         arrays["solver/residual"][i] = r.residual
         arrays["solver/message"][i] = cut_text(r.message, MESSAGE_BYTES)
-        for g in self.groups:
-            table = r.tables.get(g.name)
+        groups, totals = self._fill_paths()
+        for gname, names, columns in groups:
+            table = r.tables.get(gname)
             if table is None:
                 continue
-            at = (slice(None) if table.names == g.names
-                  else [g.names.index(n) for n in table.names])
-            for col in g.columns:
-                values = table.columns[col.name]
-                if col.dtype == "text":
+            at = (slice(None) if table.names == names
+                  else [names.index(n) for n in table.names])
+            found = table.columns
+            for name, path, text in columns:
+                values = found[name]
+                if text:
                     values = [str(v).encode()[:TEXT_BYTES] for v in values]
-                arrays[f"{g.name}/{col.name}"][i, at] = values
-        for col in self.totals:
-            v = r.totals.get(col.name)
+                arrays[path][i, at] = values
+        found = r.totals
+        for name, path in totals:
+            v = found.get(name)
             if v is not None:
-                arrays[f"totals/{col.name}"][i] = v
+                arrays[path][i] = v
+
+    def _fill_paths(self) -> tuple[list, list]:
+        """The dataset path of every column :meth:`fill` copies, worked out once per
+        layout (a point used to build them all anew): ``([(group, item names,
+        [(column, path, is text)])], [(total, path)])``."""
+        paths = self.__dict__.get("_paths")
+        if paths is None:
+            paths = ([(g.name, g.names, [(c.name, f"{g.name}/{c.name}", c.dtype == "text")
+                                         for c in g.columns]) for g in self.groups],
+                     [(c.name, f"totals/{c.name}") for c in self.totals])
+            self.__dict__["_paths"] = paths
+        return paths
 
     def fail(self, arrays: dict[str, np.ndarray], i: int, exc: BaseException,
              internal: bool = False) -> None:

@@ -8,6 +8,7 @@ import copy
 import dataclasses
 import itertools
 import math
+import operator
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -25,6 +26,7 @@ __all__ = [
     "CHUNK_MIN",
     "Chunk",
     "InputColumn",
+    "PointConditions",
     "StudyPlan",
     "check_size",
     "check_study_tables",
@@ -70,7 +72,7 @@ class StudyPlan:
     case : the case file read
     kind : ``"sweep"``, ``"profile"`` or ``"profile+sweep"``
     backend : steam property backend name
-    conditions : one per point
+    conditions : one per point (a :class:`PointConditions`, used as a list)
     labels : a short text per point
     series : series number of each point [-]
     series_labels : text of each series (the values of its fixed axes)
@@ -79,14 +81,15 @@ class StudyPlan:
         profile's rows)
     inputs : per-point inputs for ``/inputs`` (name -> column)
     chunks : the units of work
-    profile : the profile file, if any
+    profile : the profile file, if any (its path, text and hash; its columns are
+        in ``inputs``, so its ``axes`` are left empty)
     limit : set by :meth:`head` when only the first points are planned
     """
 
     case: Case
     kind: str
     backend: str
-    conditions: list[Conditions]
+    conditions: Sequence[Conditions]
     labels: list[str]
     series: np.ndarray
     series_labels: list[str]
@@ -119,7 +122,10 @@ class StudyPlan:
                   for k, c in self.inputs.items()}
         series = self.series[:n].copy()
         return dataclasses.replace(
-            self, conditions=self.conditions[:n], labels=self.labels[:n], series=series,
+            self, conditions=(self.conditions.head(n) if isinstance(self.conditions,
+                                                                    PointConditions)
+                              else self.conditions[:n]),
+            labels=self.labels[:n], series=series,
             series_labels=self.series_labels[:int(series.max()) + 1], inputs=inputs,
             chunks=_chunks(series, chunk_size(n)), limit=n)
 
@@ -201,25 +207,161 @@ def _switch_conditions(case: Case, heaters: tuple, closed: tuple, cache: dict,
     return cond
 
 
+def _field_changes(key: str, value: float, model: Model) -> dict | None:
+    """The :class:`Conditions` fields one scalar input (SI) sets, or ``None`` for an
+    input that is applied to the conditions as a whole (an extraction flow, a
+    component setting; see :func:`_apply`)."""
+    if key == "throttle_flow":
+        return {"throttle_flow": value, "output": None}
+    if key == "throttle_flow_fraction":
+        return {"throttle_flow": value * model.throttle.flow, "output": None}
+    if key == "output":
+        return {"output": value, "throttle_flow": None}
+    if key == "output_fraction":
+        return {"output": value * model.generator.rating, "throttle_flow": None}
+    if "." in key:  # extraction_flow.NAME, or a component setting TABLE.NAME.SETTING
+        return None
+    return {key: value}
+
+
 def _apply(cond: Conditions, key: str, value: float, model: Model) -> Conditions:
     """Set one scalar input (SI) on a copy of ``cond``."""
-    if key == "throttle_flow":
-        return dataclasses.replace(cond, throttle_flow=value, output=None)
-    if key == "throttle_flow_fraction":
-        return dataclasses.replace(cond, throttle_flow=value * model.throttle.flow, output=None)
-    if key == "output":
-        return dataclasses.replace(cond, output=value, throttle_flow=None)
-    if key == "output_fraction":
-        return dataclasses.replace(cond, output=value * model.generator.rating,
-                                   throttle_flow=None)
+    changes = _field_changes(key, value, model)
+    if changes is not None:
+        return dataclasses.replace(cond, **changes)
     if key.startswith("extraction_flow."):
         name = key.split(".", 1)[1]
         controls = dict(cond.extraction_control)
         controls[name] = ("flow", float(value))
         return dataclasses.replace(cond, extraction_control=tuple(sorted(controls.items())))
-    if "." in key:  # a component setting TABLE.NAME.SETTING (see axes.setting_axis)
-        return apply_setting(cond, model, key, value)
-    return dataclasses.replace(cond, **{key: value})
+    return apply_setting(cond, model, key, value)  # see axes.setting_axis
+
+
+def _point(cond: Conditions, items, model: Model, label: str) -> Conditions:
+    """The conditions of one point: ``cond`` with the scalar inputs ``items``
+    (``(key, SI value)`` pairs, applied in turn) set, without the values its modes
+    have no use for (:func:`~simulator.plant.case.without_unused`) and labelled.
+
+    The same conditions as applying each input with :func:`_apply`, but the
+    inputs that set fields of their own (the load, pressures, temperatures) are
+    gathered and set in one copy: a profile of 8,760 rows made three copies a
+    row before.  Extraction flows and component settings set fields no other
+    input sets (the extraction controls, the settings), so applying them first
+    changes nothing.
+    """
+    changes = {}
+    for key, value in items:
+        fields = _field_changes(key, value, model)
+        if fields is None:
+            cond = _apply(cond, key, value, model)
+        else:
+            changes.update(fields)
+    changes["label"] = label
+    return without_unused(dataclasses.replace(cond, **changes))
+
+
+class PointConditions(Sequence):
+    """The conditions of a plan's points, each made when it is asked for.
+
+    Point ``i`` is the base conditions of its block (a series, or the rows of a
+    profile with the same heaters out) with the block's scalar inputs set to the
+    point's values, and its label (:func:`_point`): the same
+    :class:`~simulator.plant.case.Conditions` the plan made while planning.
+    Kept as numbers, the 8,760 points of a year take 0.2 MB instead of the
+    2 MB of their objects, in the study process and in each worker forked from
+    it; a point costs about 4 us to make.  Indexing, slicing (a list) and
+    iteration work as on a list.
+    """
+
+    def __init__(self, model: Model, blocks: list, block: np.ndarray, values: np.ndarray,
+                 labels: list[str]):
+        self._model = model
+        self._blocks = blocks  # (base Conditions, keys of its scalar inputs) per block
+        self._block = block  # [-] block of each point
+        self._values = values  # (points, inputs): the inputs' values, SI
+        self._labels = labels
+
+    def __len__(self) -> int:
+        return len(self._block)
+
+    def __getitem__(self, i):
+        n = len(self._block)
+        if isinstance(i, slice):
+            return [self._make(k) for k in range(*i.indices(n))]
+        k = operator.index(i)
+        if k < 0:
+            k += n
+        if not 0 <= k < n:
+            raise IndexError(f"point {i} of a plan of {n} points")
+        return self._make(k)
+
+    def __eq__(self, other) -> bool:
+        if not isinstance(other, Sequence) or len(other) != len(self):
+            return NotImplemented if not isinstance(other, Sequence) else False
+        return all(a == b for a, b in zip(self, other))
+
+    __hash__ = None
+
+    def __iter__(self):
+        for k in range(len(self._block)):
+            yield self._make(k)
+
+    def head(self, n: int) -> PointConditions:
+        """The first ``n`` points [-]."""
+        return self.part(0, n)
+
+    def part(self, start: int, stop: int) -> PointConditions:
+        """Points ``start <= i < stop`` [-], still as numbers: what a chunk sends to a
+        worker, which makes their conditions with its own model (see
+        :meth:`with_model`; pickled, the model is left out)."""
+        return PointConditions(self._model, self._blocks, self._block[start:stop],
+                               self._values[start:stop], self._labels[start:stop])
+
+    def with_model(self, model: Model) -> PointConditions:
+        """The same points, made with ``model`` (a worker's copy of the plan's) [-]."""
+        return PointConditions(model, self._blocks, self._block, self._values, self._labels)
+
+    def __getstate__(self) -> dict:
+        return {**self.__dict__, "_model": None}
+
+    def _make(self, k: int) -> Conditions:
+        if self._model is None:
+            raise TypeError("these points came without their model: make them with "
+                            "with_model(model) first")
+        base, keys = self._blocks[self._block[k]]
+        values = self._values[k, :len(keys)].tolist()
+        return _point(base, zip(keys, values), self._model, self._labels[k])
+
+
+class _Points:
+    """Collects the points of a plan as :class:`PointConditions` while the plan
+    is made: :meth:`add` keeps a point's base conditions and the values of its
+    scalar inputs."""
+
+    def __init__(self, model: Model, n: int, width: int):
+        self.model = model
+        self.blocks: list = []
+        self._block_of: dict = {}
+        self.block = np.empty(n, dtype=np.int32)
+        self.values = np.empty((n, width), dtype=np.float64)
+        self.n = 0
+
+    def add(self, base: Conditions, items: list) -> None:
+        keys = tuple(k for k, _ in items)
+        b = self._block_of.get((id(base), keys))
+        if b is None:
+            b = self._block_of[(id(base), keys)] = len(self.blocks)
+            self.blocks.append((base, keys))
+        values = [v for _, v in items]
+        if any(type(v) is not float for v in values) and self.values.dtype != object:
+            self.values = self.values.astype(object)  # kept as given (not made floats)
+        self.block[self.n] = b
+        self.values[self.n, :len(values)] = values
+        self.n += 1
+
+    def conditions(self, labels: list[str]) -> PointConditions:
+        return PointConditions(self.model, self.blocks, self.block[:self.n],
+                               self.values[:self.n], labels)
 
 
 def _check_axes(case: Case, axes: list[Axis], where: Where) -> None:
@@ -256,7 +398,10 @@ def check_study_tables(case: Case) -> int:
 
 
 def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, InputColumn]:
-    """Resolved per-point inputs (design values where the case leaves them unset)."""
+    """Resolved per-point inputs (design values where the case leaves them unset).
+
+    One pass over ``conds``: a :class:`PointConditions` makes each point once, and
+    the point is gone before the next is made."""
     n = len(conds)
     reheat = [p.outlet_temperature for p in model.reheaters]
     T_rh_design = reheat[0] if reheat and all(t == reheat[0] for t in reheat) else math.nan
@@ -264,9 +409,6 @@ def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, In
     p_x_design = exh[0] if all(p == exh[0] for p in exh) else math.nan
     finds_pressure = any(c.frees_node for c in model.components)
     nan = math.nan
-
-    def col(get):
-        return np.fromiter((get(c) for c in conds), dtype=np.float64, count=n)
 
     def fmt_controls(c):
         parts = []
@@ -277,54 +419,57 @@ def _effective_inputs(model: Model, conds: Sequence[Conditions]) -> dict[str, In
                 parts.append(f"{name}: fraction {v:.6g}")
         return "; ".join(parts)
 
-    return {
-        "throttle_flow": InputColumn(
-            col(lambda c: c.throttle_flow if c.throttle_flow is not None else nan), "kg/s",
-            "throttle flow asked for (NaN when an output is demanded)"),
-        "output": InputColumn(
-            col(lambda c: c.output if c.output is not None else nan), "W",
-            "generator output demanded (NaN when the throttle flow is given)"),
-        "valve_mode": InputColumn([c.valve_mode for c in conds], "",
-                                  "how the valves pass the steam: 'throttle' (together) or "
-                                  "'nozzle_groups' (a governing stage's valves in sequence)"),
-        "pressure_mode": InputColumn([c.pressure_mode for c in conds], "",
-                                     "throttle pressure 'sliding' (a result), 'fixed' (held) "
-                                     "or 'program' (sliding between two held pressures)"),
-        "valves_open": InputColumn(
-            col(lambda c: c.valves_open if c.valves_open is not None else nan), "-",
-            "governing-stage valves wide open at sliding pressure (NaN: the design number, "
-            "or not used)"),
-        "minimum_throttle_pressure": InputColumn(
-            col(lambda c: c.minimum_throttle_pressure
-                if c.minimum_throttle_pressure is not None else nan), "Pa",
-            "lowest throttle pressure of a pressure program (NaN: no program)"),
-        "throttle_pressure": InputColumn(
-            col(lambda c: c.throttle_pressure if c.throttle_pressure is not None else nan), "Pa",
-            "held throttle pressure (pressure mode 'fixed'; NaN: sliding pressure, see "
-            "/totals/throttle_pressure)"),
-        "throttle_temperature": InputColumn(
-            col(lambda c: c.throttle_temperature if c.throttle_temperature is not None
-                else model.throttle.temperature), "K", "throttle steam temperature"),
-        "reheat_temperature": InputColumn(
-            col(lambda c: c.reheat_temperature if c.reheat_temperature is not None
-                else T_rh_design), "K",
-            "hot reheat temperature (NaN: no reheater, or each reheater at its design)"),
-        "exhaust_pressure": InputColumn(
-            col(lambda c: c.exhaust_pressure if c.exhaust_pressure is not None
-                else nan if finds_pressure else p_x_design), "Pa",
-            "exhaust (condenser or back) pressure given (NaN: found by the condensers, see "
-            "/condensers/pressure)" if finds_pressure else "exhaust (condenser or back) "
-            "pressure"),
-        "heaters_out_of_service": InputColumn(
-            [" ".join(sorted(c.heaters_out)) for c in conds], "",
-            "heaters out of service, separated by spaces"),
-        "extractions_closed": InputColumn(
-            [" ".join(name for name, (ctl, _) in c.extraction_control if ctl == "closed")
-             for c in conds], "", "extractions closed, separated by spaces"),
-        "extraction_setpoints": InputColumn(
-            [fmt_controls(c) for c in conds], "",
-            "extractions held at a set flow or fraction of throttle flow"),
-    }
+    # (name, number or text, value of a point, unit, description), in the file's order
+    columns = [
+        ("throttle_flow", True,
+         lambda c: c.throttle_flow if c.throttle_flow is not None else nan, "kg/s",
+         "throttle flow asked for (NaN when an output is demanded)"),
+        ("output", True, lambda c: c.output if c.output is not None else nan, "W",
+         "generator output demanded (NaN when the throttle flow is given)"),
+        ("valve_mode", False, lambda c: c.valve_mode, "",
+         "how the valves pass the steam: 'throttle' (together) or "
+         "'nozzle_groups' (a governing stage's valves in sequence)"),
+        ("pressure_mode", False, lambda c: c.pressure_mode, "",
+         "throttle pressure 'sliding' (a result), 'fixed' (held) "
+         "or 'program' (sliding between two held pressures)"),
+        ("valves_open", True, lambda c: c.valves_open if c.valves_open is not None else nan,
+         "-", "governing-stage valves wide open at sliding pressure (NaN: the design number, "
+         "or not used)"),
+        ("minimum_throttle_pressure", True,
+         lambda c: c.minimum_throttle_pressure if c.minimum_throttle_pressure is not None
+         else nan, "Pa", "lowest throttle pressure of a pressure program (NaN: no program)"),
+        ("throttle_pressure", True,
+         lambda c: c.throttle_pressure if c.throttle_pressure is not None else nan, "Pa",
+         "held throttle pressure (pressure mode 'fixed'; NaN: sliding pressure, see "
+         "/totals/throttle_pressure)"),
+        ("throttle_temperature", True,
+         lambda c: c.throttle_temperature if c.throttle_temperature is not None
+         else model.throttle.temperature, "K", "throttle steam temperature"),
+        ("reheat_temperature", True,
+         lambda c: c.reheat_temperature if c.reheat_temperature is not None else T_rh_design,
+         "K", "hot reheat temperature (NaN: no reheater, or each reheater at its design)"),
+        ("exhaust_pressure", True,
+         lambda c: c.exhaust_pressure if c.exhaust_pressure is not None
+         else nan if finds_pressure else p_x_design, "Pa",
+         "exhaust (condenser or back) pressure given (NaN: found by the condensers, see "
+         "/condensers/pressure)" if finds_pressure else "exhaust (condenser or back) "
+         "pressure"),
+        ("heaters_out_of_service", False, lambda c: " ".join(sorted(c.heaters_out)), "",
+         "heaters out of service, separated by spaces"),
+        ("extractions_closed", False,
+         lambda c: " ".join(name for name, (ctl, _) in c.extraction_control if ctl == "closed"),
+         "", "extractions closed, separated by spaces"),
+        ("extraction_setpoints", False, fmt_controls, "",
+         "extractions held at a set flow or fraction of throttle flow"),
+    ]
+    values = [np.empty(n, dtype=np.float64) if number else [""] * n
+              for _, number, _, _, _ in columns]
+    gets = [get for _, _, get, _, _ in columns]
+    for i, c in enumerate(conds):
+        for get, column in zip(gets, values):
+            column[i] = get(c)
+    return {name: InputColumn(column, unit, description)
+            for (name, _, _, unit, description), column in zip(columns, values)}
 
 
 def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
@@ -383,7 +528,9 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
     # the series one at a time: nothing of the product is built before it is planned
     combos = itertools.product(*[range(len(a.values)) for a in series_axes])
     cache: dict = {}
-    conds: list[Conditions] = []
+    # the points kept as numbers (PointConditions); their conditions are made when used
+    points = _Points(model, n_total, 1 if profile is None else
+                     sum(a.kind.role != "switch" for a in profile.axes))
     labels: list[str] = []
     series = np.empty(n_total, dtype=np.int32)
     series_labels: list[str] = []
@@ -409,15 +556,15 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
                 cond_s = _apply(cond_s, a.key, a.values[k], model)
         series_label = ", ".join(parts)
         series_labels.append(series_label)
-        start = len(conds)
+        start = points.n
         if profile is None:
             for item in run_values:
-                c = cond_s
                 label = series_label
+                items = ()
                 if item is not None:
-                    c = _apply(cond_s, cont.key, item[0], model)
+                    items = ((cont.key, item[0]),)
                     label = f"{cont.key}={item[1]}" + (f", {series_label}" if series_label else "")
-                conds.append(dataclasses.replace(without_unused(c), label=label))
+                points.add(cond_s, items)
                 labels.append(label)
                 for a, k in zip(series_axes, combo):
                     axis_cols[a.key].append(a.values[k])
@@ -440,17 +587,16 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
                         for a, k in zip(series_axes, combo):
                             if a.kind.role != "switch":
                                 c = _apply(c, a.key, a.values[k], model)
-                for a in p_scalar:
-                    c = _apply(c, a.key, a.values[r], model)
                 label = profile.labels[r] + (f", {series_label}" if series_label else "")
-                conds.append(dataclasses.replace(without_unused(c), label=label))
+                points.add(c, [(a.key, a.values[r]) for a in p_scalar])
                 labels.append(label)
                 for a, k in zip(series_axes, combo):
                     axis_cols[a.key].append(a.values[k])
                 for a in profile.axes:
                     axis_cols[a.key].append(a.values[r])
-        series[start:len(conds)] = s
+        series[start:points.n] = s
     chunks = _chunks(series, chunk_size(n_total))
+    conds = points.conditions(labels)
     inputs = _effective_inputs(model, conds)
     for a in all_axes:
         if a.key in inputs:
@@ -469,6 +615,8 @@ def plan_study(case: Case, backend: str | None = None) -> StudyPlan:
         inputs["time"] = InputColumn(list(profile.labels) * n_series, "",
                                      "label of the profile row (its time column)")
     kind = "sweep" if profile is None else ("profile+sweep" if sweep else "profile")
+    if profile is not None:  # its columns are in the inputs now: not kept twice
+        profile = dataclasses.replace(profile, axes=[])
     return StudyPlan(case=case, kind=kind, backend=backend or case.backend, conditions=conds,
                      labels=labels, series=series, series_labels=series_labels,
                      axes=[a.key for a in all_axes], continuation=cont_key, inputs=inputs,

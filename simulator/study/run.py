@@ -24,7 +24,7 @@ from ..plant.model import Model, build_model
 from ..solve.point import PointResult, one_blas_thread, solve_point
 from ..steam.if97 import get_backend
 from ..store.layout import CAUTION_BYTES, CODES_BYTES, ResultLayout, cut_text
-from .plan import Chunk
+from .plan import Chunk, PointConditions
 
 __all__ = [
     "ChunkResult",
@@ -178,6 +178,7 @@ class SolutionFit:
         self._X = np.empty((0, 0))
         self._n = 0
         self._varying = np.zeros(0, dtype=bool)
+        self._cols = np.zeros(0, dtype=np.intp)  # [-] indices of the varying numbers
         self._scale = np.zeros(0)  # 1 / spread of each varying number over the kept points
 
     @property
@@ -211,7 +212,8 @@ class SolutionFit:
         # numbers that differ between the kept points (an exact test, as np.ptp > 0)
         T = self._T[:self._n]
         self._varying = np.any(T != T[0], axis=0)
-        V = T[:, self._varying]
+        self._cols = np.flatnonzero(self._varying)
+        V = T[:, self._cols]
         self._scale = 1.0 / (V.max(axis=0) - V.min(axis=0))
 
     def predict(self, family: tuple, numbers: np.ndarray) -> np.ndarray | None:
@@ -221,7 +223,8 @@ class SolutionFit:
         if family != self.family or n <= self.NEAR:
             return None
         X = self._X[:n]
-        d = (self._T[:n] - numbers)[:, self._varying]
+        cols = self._cols
+        d = self._T[:n, cols] - numbers[cols]
         # nearest in units of each number's spread over the kept points: a load
         # fraction and a wet-bulb temperature in kelvin weigh alike
         dd = d * self._scale
@@ -241,10 +244,18 @@ def _least_squares(d: np.ndarray, X: np.ndarray, near: np.ndarray, quadratic: bo
     through the points ``near`` at offsets ``d`` with unknowns ``X``; ``None``
     when they do not fix it (rank) or it is not finite."""
     t = d[near]
-    cols = [np.ones(len(near))] + [t[:, a] for a in range(t.shape[1])]
+    k = t.shape[1]
+    # the columns of A written in place: 1, the differences, and for the quadratic
+    # their products (a <= b), as column_stack of the same numbers gave them
+    A = np.empty((len(near), 1 + k + (k * (k + 1) // 2 if quadratic else 0)))
+    A[:, 0] = 1.0
+    A[:, 1:1 + k] = t
     if quadratic:
-        cols += [t[:, a] * t[:, b] for a in range(t.shape[1]) for b in range(a, t.shape[1])]
-    A = np.column_stack(cols)
+        j = 1 + k
+        for a in range(k):
+            for b in range(a, k):
+                np.multiply(t[:, a], t[:, b], out=A[:, j])
+                j += 1
     C, _res, rank, _sv = np.linalg.lstsq(A, X[near], rcond=None)
     if rank < A.shape[1]:
         return None
@@ -371,6 +382,8 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
     """
     t0 = time.perf_counter()
     model = worker_model(spec)
+    if isinstance(conditions, PointConditions):  # a plan's points as numbers
+        conditions = list(conditions.with_model(model))
     steam = get_backend(spec.backend)
     layout = spec.layout
     arrays = layout.empty(len(conditions))
@@ -397,8 +410,24 @@ def solve_chunk(spec: SolveSpec, chunk: Chunk, conditions: Sequence[Conditions])
                 _record_cautions(arrays, i, check, model, cond, r, layout.caution_codes)
     if CHUNK_PAUSE > 0.0:
         time.sleep(CHUNK_PAUSE)
-    return ChunkResult(chunk.index, chunk.start, chunk.stop, arrays,
+    return ChunkResult(chunk.index, chunk.start, chunk.stop, _narrow_texts(arrays),
                        time.perf_counter() - t0)
+
+
+def _narrow_texts(arrays: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """``arrays`` with each fixed-length text array cut to its longest value [-].
+
+    The values are the same (numpy drops trailing zero bytes, and the result
+    file pads them back to its own length); a chunk's result, pickled to the
+    study process, is a third smaller: most points leave the 1,024 bytes of
+    their caution messages and the 256 of their solver message mostly empty.
+    """
+    for name, arr in arrays.items():
+        if arr.dtype.kind == "S" and arr.size:
+            width = max(1, int(np.strings.str_len(arr).max()))
+            if width < arr.dtype.itemsize:
+                arrays[name] = arr.astype(f"S{width}")
+    return arrays
 
 
 def _record_cautions(arrays, i, check, model, cond, r, codes_known=()) -> None:
