@@ -415,29 +415,40 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
     run = StudyRun(case, plan, path, action)
     main_thread = threading.current_thread() is threading.main_thread()
     old_handler = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None
+    check = not beyond_limits
+    files: list = []  # the result file, once open
+
+    def result_file():
+        if not files:
+            files.append(store.StudyFile.create(path, plan, layout, check_limits=check,
+                                                replace=action == "replace"))
+        return files[0]
+
+    def write(res) -> None:
+        result_file().write(res)
+
     try:
-        check = not beyond_limits
         if action == "resume":
-            sf = store.StudyFile.resume(path, plan, layout, check_limits=check)
-        else:
-            sf = store.StudyFile.create(path, plan, layout, check_limits=check,
-                                        replace=action == "replace")
+            files.append(store.StudyFile.resume(path, plan, layout, check_limits=check))
+        # a new file is made when the first chunk comes back: the workers start
+        # solving while it is made (about 0.1 s on the demo year)
         try:
-            skip = sf.done_chunks(plan) if action == "resume" else set()
+            skip = files[0].done_chunks(plan) if action == "resume" else set()
             run.n_done_before = sum(c.size for c in plan.chunks if c.index in skip)
             if on_start is not None:
                 on_start(run)
             n_workers = workers if workers is not None else default_workers()
             bar = study.Progress(plan.n_points, initial=run.n_done_before, enabled=progress)
             try:
-                run.summary = study.run_study(plan, sf.write, workers=n_workers,
+                run.summary = study.run_study(plan, write, workers=n_workers,
                                               scheduler=scheduler, skip=skip, layout=layout,
                                               progress=bar, check_limits=check)
             finally:
                 bar.close()
-            run.n_done = int(sf.done.sum())
+            run.n_done = int(result_file().done.sum())
         finally:
-            sf.close()
+            if files:
+                files[0].close()
     finally:
         if main_thread:
             signal.signal(signal.SIGTERM, old_handler)
