@@ -279,3 +279,53 @@ def test_high_back_pressure_caution(reheat_model):
     assert c.value == pytest.approx(20.0 / 6.8) and c.where == "condenser"
     _, found = solved(reheat_model, Conditions(throttle_flow=200.0, exhaust_pressure=15e3))
     assert "back_pressure" not in codes(found)
+
+
+# NIST SP 811 (2008), appendix B: psi = 6894.757293168 Pa, lb = 0.45359237 kg,
+# Btu (IT) = 1055.05585262 J, inHg (conventional) = 3386.389 Pa, ft = 0.3048 m,
+# degF = degC * 1.8 + 32; a difference of 1 K is 1.8 degF
+_US = {"bar": ("psia", 1e5 / 6894.757293168, 0.0), "degC": ("degF", 1.8, 32.0),
+       "K": ("degF", 1.8, 0.0), "kg/s": ("klb/h", 3.6 / 0.45359237, 0.0),
+       "kPa": ("inHg", 1e3 / 3386.389, 0.0), "m/s": ("ft/s", 1 / 0.3048, 0.0),
+       "m^3/s": ("ft^3/s", 1 / 0.3048**3, 0.0),
+       "kJ/kg": ("Btu/lb", 1e3 * 0.45359237 / 1055.05585262, 0.0)}
+_QUANTITY = r"(-?\d+(?:\.\d+)?(?:e[-+]?\d+)?) (bar|degC|K|kg/s|kPa|m/s|m\^3/s|kJ/kg|psia|degF|" \
+            r"klb/h|inHg|ft/s|ft\^3/s|Btu/lb)\b"
+
+
+def _half_digit(text: str) -> float:
+    """Half a unit of the last digit printed in ``text`` [-]."""
+    mantissa = text.split("e")[0]
+    places = len(mantissa.split(".")[1]) if "." in mantissa else 0
+    scale = 10.0 ** int(text.split("e")[1]) if "e" in text else 1.0
+    return 0.5 * 10.0 ** -places * scale
+
+
+def test_caution_messages_in_us_units():
+    # every number with a unit in a metric message reappears in the US message, in the
+    # same order, converted by the factors above to the digits printed
+    import re
+    pairs = 0
+    for name, flow in [("industrial_part_load", 1.08), ("industrial_nozzle_part_load", 1.08),
+                       ("reheat_load_sweep_warm_condenser", None),
+                       ("plant_condenser_half_out", None), ("reheat_top_heater_out", None),
+                       ("reheat_load_sweep_warm_condenser", 0.25)]:
+        case = load_case(ROOT / "cases" / f"{name}.toml")
+        cond = case.conditions if flow is None else override(
+            case.conditions, throttle_flow=flow * case.model.throttle.flow, output=None)
+        r = solve_point(case.model, cond, check_limits=False)
+        metric = check_point(case.model, cond, r)
+        us = check_point(case.model, cond, r, units="us")
+        assert [c.code for c in us] == [c.code for c in metric] and metric, name
+        for a, b in zip(metric, us):
+            assert (a.value, a.limit, a.unit) == (b.value, b.limit, b.unit)  # SI either way
+            qa, qb = re.findall(_QUANTITY, a.message), re.findall(_QUANTITY, b.message)
+            assert len(qa) == len(qb), (a.message, b.message)
+            for (va, ua), (vb, ub) in zip(qa, qb):
+                unit, factor, offset = _US[ua]
+                assert ub == unit, (a.message, b.message)
+                expected = float(va) * factor + offset
+                assert abs(float(vb) - expected) <= (_half_digit(vb)
+                                                     + factor * _half_digit(va)), (va, vb)
+                pairs += 1
+    assert pairs >= 20

@@ -73,6 +73,7 @@ from ..plant.model import Model
 from ..solve.point import PointResult, wide_open_capacity
 from ..steam.if97 import SteamTables, get_backend
 from .common import (
+    BACK,
     DEFERENCE,
     Caution,
     design_last_stage_volume_flow,
@@ -80,7 +81,6 @@ from .common import (
     last_stage_state,
 )
 from .common import Point as _Point
-from .common import degc as _degc
 from .common import others as _others
 from .common import pct as _pct
 from .pressure import back_pressure_rise as _back_pressure_rise
@@ -101,18 +101,18 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         if not r.over_capacity:
             return None
         p_at = p_T
-        at = f"the held throttle pressure {p_T / 1e5:.2f} bar"
+        at = f"the held throttle pressure {pt.q(p_T, 'Pa', '.2f')}"
         why = "the flow needs more than the valves pass wide open"
     else:
         p_max = model.throttle.max_pressure
         if p_T <= p_max * (1.0 + 1e-9):
             return None
         p_at = p_max
-        at = f"the highest allowed throttle pressure {p_max / 1e5:.2f} bar"
-        why = f"this answer needs a throttle pressure of {p_T / 1e5:.2f} bar"
+        at = f"the highest allowed throttle pressure {pt.q(p_max, 'Pa', '.2f')}"
+        why = f"this answer needs a throttle pressure of {pt.q(p_T, 'Pa', '.2f')}"
     try:
         m_max = wide_open_capacity(model, pt.cond, pt.steam, p_at)[0]
-        cap = f" ({m_max:.2f} kg/s)"
+        cap = f" ({pt.q(m_max, 'kg/s', '.2f')})"
     except SolveError:
         m_max, cap = math.nan, ""
     if held and m_T <= m_max * (1.0 + 1e-6):
@@ -122,9 +122,9 @@ def _valves_wide_open(pt: _Point) -> Caution | None:
         return None
     return Caution(
         "valves_wide_open",
-        f"Throttle flow {m_T:.2f} kg/s is more than the valves wide open can pass at {at}"
-        f"{cap}: {why}. The machine cannot take this flow; the point was solved with the "
-        f"limit checks off and shows a what-if. {DEFERENCE}",
+        f"Throttle flow {pt.q(m_T, 'kg/s', '.2f')} is more than the valves wide open can "
+        f"pass at {at}{cap}: {why}. The machine cannot take this flow; the point was solved "
+        f"with the limit checks off and shows a what-if. {DEFERENCE}",
         m_T, m_max, model.admission.name, "kg/s")
 
 
@@ -164,8 +164,9 @@ def _last_stage_volume_flow(pt: _Point) -> Caution | None:
     ratio, g, q, q_d = low[0]
     return Caution(
         "last_stage_volume_flow",
-        f"Volume flow leaving the last stage of group {g!r} is {q:.4g} m^3/s, {_pct(ratio)} "
-        f"of its design {q_d:.4g} m^3/s ({pt.limit_text(name, _pct(lim))})"
+        f"Volume flow leaving the last stage of group {g!r} is {pt.q(q, 'm^3/s', '.4g')}, "
+        f"{_pct(ratio)} of its design {pt.q(q_d, 'm^3/s', '.4g')} "
+        f"({pt.limit_text(name, _pct(lim))})"
         f"{_others([(o[1], _pct(o[0])) for o in low[1:]])}: at such low volume flow the last "
         f"stages stop expanding the steam and churn it instead (ventilation), heating the "
         f"blades and the exhaust, and the unsteady flow can make long last-stage blades "
@@ -195,8 +196,9 @@ def _exhaust_temperature(pt: _Point) -> Caution | None:
     T, g = hot[0]
     return Caution(
         "exhaust_temperature",
-        f"Steam leaves the last stage of group {g!r} at {_degc(T)} "
-        f"({pt.limit_text(name, _degc(lim))}){_others([(o[1], _degc(o[0])) for o in hot[1:]])}"
+        f"Steam leaves the last stage of group {g!r} at {pt.temperature(T)} "
+        f"({pt.limit_text(name, pt.temperature(lim))})"
+        f"{_others([(o[1], pt.temperature(o[0])) for o in hot[1:]])}"
         f": the last stages heat the steam they churn at low volume flow or high back "
         f"pressure; the exhaust hood and last-stage blades expand, which threatens "
         f"clearances and alignment. Exhaust-hood sprays are normally needed here. "
@@ -223,9 +225,9 @@ def _steam_temperature(pt: _Point) -> Caution | None:
     dT, where, T = hot[0]
     return Caution(
         "steam_temperature",
-        f"Steam at the {where} is {_degc(T)}, {dT:.1f} K above its design temperature "
-        f"({pt.limit_text(name, f'{lim:.1f} K')})"
-        f"{_others([(o[1], f'+{o[0]:.1f} K') for o in hot[1:]])}: hotter steam spends the "
+        f"Steam at the {where} is {pt.temperature(T)}, {pt.dt(dT, '.1f')} above its design "
+        f"temperature ({pt.limit_text(name, pt.dt(lim, '.1f'))})"
+        f"{_others([(o[1], '+' + pt.dt(o[0], '.1f')) for o in hot[1:]])}: hotter steam spends the "
         f"creep life of steam chests, valves, inlet blading and boiler outlet headers faster "
         f"than designed; only short excursions are normally allowed. {DEFERENCE}",
         dT, lim, where, "K")
@@ -263,8 +265,9 @@ def _back_pressure(pt: _Point) -> Caution | None:
     p = float(r.node_p[pt.node_index(n)])
     return Caution(
         "back_pressure",
-        f"Exhaust pressure at {n!r} is {p / 1e3:.3g} kPa, {_pct(ratio)} of its design "
-        f"{model.design_pressure[n] / 1e3:.3g} kPa ({pt.limit_text(name, _pct(lim))})"
+        f"Exhaust pressure at {n!r} is {pt.q(p, 'Pa', '.3g', BACK)}, {_pct(ratio)} of its "
+        f"design {pt.q(model.design_pressure[n], 'Pa', '.3g', BACK)} "
+        f"({pt.limit_text(name, _pct(lim))})"
         f"{_others([(o[1], _pct(o[0])) for o in high[1:]])}: a high back pressure loads the "
         f"last-stage blades harder, heats the exhaust and, at low flow, can excite blade "
         f"flutter. {DEFERENCE}",
@@ -284,9 +287,9 @@ def _first_stage_overload(pt: _Point) -> Caution | None:
         return None
     return Caution(
         "first_stage_overload",
-        f"First-stage pressure is {p1 / 1e5:.4g} bar, {_pct(ratio)} of its design "
-        f"{p1_d / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))}): the governing and HP stages "
-        f"carry more than their rated loading and thrust (overload). {DEFERENCE}",
+        f"First-stage pressure is {pt.q(p1, 'Pa', '.4g')}, {_pct(ratio)} of its design "
+        f"{pt.q(p1_d, 'Pa', '.4g')} ({pt.limit_text(name, _pct(lim))}): the governing and "
+        f"HP stages carry more than their rated loading and thrust (overload). {DEFERENCE}",
         ratio, lim, gov.outlet, "-")
 
 
@@ -365,8 +368,9 @@ def _cooling_water_rise(pt: _Point) -> Caution | None:
     rise, where, T_out = max(over)
     return Caution(
         "cooling_water_rise",
-        f"Cooling water leaves condenser {where!r} at {_degc(T_out)}, {rise:.2f} K warmer than "
-        f"it came ({pt.limit_text(name, f'{lim:.3g} K')}): above what discharge permits "
+        f"Cooling water leaves condenser {where!r} at {pt.temperature(T_out)}, "
+        f"{pt.dt(rise, '.2f')} warmer than it came "
+        f"({pt.limit_text(name, pt.dt(lim, '.3g'))}): above what discharge permits "
         f"commonly allow; the site's permit governs. {DEFERENCE}",
         rise, lim, where, "K")
 
@@ -407,11 +411,12 @@ def _exhaust_loss_curve(pt: _Point) -> Caution | None:
     _d, g, curve, vel, end, side, loss = off[0]
     return Caution(
         "exhaust_loss_curve",
-        f"Annulus velocity of group {g!r} is {vel:.4g} m/s, {side} point of its exhaust-loss "
-        f"curve {curve!r} ({end:.4g} m/s){_others([(o[1], f'{o[3]:.4g} m/s') for o in off[1:]])}"
-        f": the loss was held at the curve's end value {loss / 1e3:.4g} kJ/kg, which the curve "
-        f"does not support; output and heat rate here are less certain. Extend the curve to "
-        f"this velocity. {DEFERENCE}",
+        f"Annulus velocity of group {g!r} is {pt.q(vel, 'm/s', '.4g')}, {side} point of its "
+        f"exhaust-loss curve {curve!r} ({pt.q(end, 'm/s', '.4g')})"
+        f"{_others([(o[1], pt.q(o[3], 'm/s', '.4g')) for o in off[1:]])}"
+        f": the loss was held at the curve's end value {pt.q(loss, 'J/kg', '.4g')}, which "
+        f"the curve does not support; output and heat rate here are less certain. Extend the "
+        f"curve to this velocity. {DEFERENCE}",
         vel, end, g, "m/s")
 
 
@@ -438,7 +443,7 @@ CAUTION_CODES: tuple[str, ...] = tuple(CHECKS)
 
 
 def check_point(model: Model, cond: Conditions, result: PointResult,
-                steam: SteamTables | None = None) -> list[Caution]:
+                steam: SteamTables | None = None, units: str = "metric") -> list[Caution]:
     """Check a solved point against the operating limits of its model.
 
     Parameters
@@ -452,6 +457,10 @@ def check_point(model: Model, cond: Conditions, result: PointResult,
         The solved point.
     steam
         Property backend; default the one the point was solved with.
+    units
+        Display units of the messages, ``"metric"`` (bar, degC, kg/s, kPa for a
+        back pressure) or ``"us"`` (psia, degF, klb/h, inHg); the values and
+        limits stay SI either way.
 
     Returns
     -------
@@ -461,7 +470,7 @@ def check_point(model: Model, cond: Conditions, result: PointResult,
     """
     steam = steam or get_backend(result.backend)
     limits = model.limits if isinstance(model.limits, Limits) else default_limits()
-    pt = _Point(model, cond, result, steam, limits)
+    pt = _Point(model, cond, result, steam, limits, units)
     found = []
     for check in CHECKS.values():
         caution = check(pt)

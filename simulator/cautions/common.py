@@ -11,11 +11,13 @@ from ..plant.limits import Limits
 from ..plant.model import Model
 from ..solve.point import PointResult
 from ..steam.if97 import SteamTables
+from ..units import FOOT, to_display_unit
 
-__all__ = ["Caution", "Point", "DEFERENCE", "pct", "degc", "others", "last_groups",
+__all__ = ["Caution", "Point", "DEFERENCE", "BACK", "pct", "others", "last_groups",
            "last_stage_state", "design_last_stage_volume_flow"]
 
 DEFERENCE = "Engineering estimate; the manufacturer's limits govern."
+BACK = "back_pressure"  # the quantity name a back pressure is shown by (kPa, inHg)
 
 
 @dataclass(frozen=True)
@@ -67,6 +69,7 @@ class Point:
     result: PointResult
     steam: SteamTables
     limits: Limits
+    units: str = "metric"  # the messages' display units: "metric" or "us"
     # what more than one check works out, found once per point (the pressure rises,
     # the last stage groups and their states)
     memo: dict = field(default_factory=dict, repr=False, compare=False)
@@ -90,13 +93,28 @@ class Point:
     def limit_text(self, name: str, shown: str) -> str:
         return f"limit {shown}, {self.limits.source(name)}"
 
+    def q(self, value: float, si_unit: str, spec: str, quantity: str | None = None) -> str:
+        """``value`` [``si_unit``] as message text in the point's display units
+        (:func:`simulator.units.to_display_unit`; ``quantity`` names a back
+        pressure), formatted by ``spec`` (``".4g"``), with its unit."""
+        if si_unit == "m^3/s" and self.units == "us":
+            return f"{value / FOOT**3:{spec}} ft^3/s"
+        v, unit = to_display_unit(value, si_unit, system=self.units, quantity=quantity)
+        return f"{float(v):{spec}} {unit}"
+
+    def dt(self, value: float, spec: str) -> str:
+        """A temperature difference ``value`` [K] as message text: K, or degF in US
+        units."""
+        v, _unit = to_display_unit(value, "K", "K", system=self.units)
+        return f"{float(v):{spec}} {'degF' if self.units == 'us' else 'K'}"
+
+    def temperature(self, T: float) -> str:
+        """A temperature ``T`` [K] as message text, one decimal: degC or degF."""
+        return self.q(T, "K", ".1f")
+
 
 def pct(x: float) -> str:
     return f"{x * 100:.1f} %"
-
-
-def degc(T: float) -> str:
-    return f"{T - 273.15:.1f} degC"
 
 
 def others(items: list[tuple[str, str]], shown: int = 3) -> str:

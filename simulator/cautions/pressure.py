@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 
 from ..plant.model import Model
-from .common import DEFERENCE, Caution
+from .common import BACK, DEFERENCE, Caution
 from .common import Point as _Point
 from .common import others as _others
 from .common import pct as _pct
@@ -50,8 +50,8 @@ def pressure_rise(pt: _Point) -> Caution | None:
     rise, n, p, kind = over[0]
     return Caution(
         "pressure_rise",
-        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
-        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
+        f"Pressure at node {n!r} is {pt.q(p, 'Pa', '.4g')}, {_pct(rise)} above its design "
+        f"{pt.q(model.design_pressure[n], 'Pa', '.4g')} ({pt.limit_text(name, _pct(lim))})"
         f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {rise_cause(pt, n, kind)} "
         f"{DEFERENCE}",
         rise, lim, n, "-")
@@ -70,10 +70,11 @@ def back_pressure_rise(pt: _Point) -> Caution | None:
     p_ex = float(r.node_p[pt.node_index(ex)])
     return Caution(
         "back_pressure_rise",
-        f"Pressure at node {n!r} is {p / 1e5:.4g} bar, {_pct(rise)} above its design "
-        f"{model.design_pressure[n] / 1e5:.4g} bar ({pt.limit_text(name, _pct(lim))})"
+        f"Pressure at node {n!r} is {pt.q(p, 'Pa', '.4g')}, {_pct(rise)} above its design "
+        f"{pt.q(model.design_pressure[n], 'Pa', '.4g')} ({pt.limit_text(name, _pct(lim))})"
         f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: the exhaust pressure "
-        f"({p_ex / 1e3:.3g} kPa against {model.design_pressure[ex] / 1e3:.3g} kPa at design) "
+        f"({pt.q(p_ex, 'Pa', '.3g', BACK)} against "
+        f"{pt.q(model.design_pressure[ex], 'Pa', '.3g', BACK)} at design) "
         f"pushes up the pressures of the last stages. This is not a stage overload: the "
         f"outlet-to-inlet pressure ratio of group {g!r} after the node is {_pct(ratio_rise)} "
         f"above design, so it takes a smaller drop and unloads (its flow alone would raise "
@@ -159,7 +160,8 @@ def rise_cause(pt: _Point, node: str, kind: str) -> str:
     ex = model.exhaust_nodes[0]
     p_ex = float(r.node_p[pt.node_index(ex)])
     p_ex_d = model.design_pressure[ex]
-    back = (f" the exhaust pressure ({p_ex / 1e3:.3g} kPa against {p_ex_d / 1e3:.3g} kPa at "
+    back = (f" the exhaust pressure ({pt.q(p_ex, 'Pa', '.3g', BACK)} against "
+            f"{pt.q(p_ex_d, 'Pa', '.3g', BACK)} at "
             f"design) or" if p_ex > p_ex_d * 1.001 else "")
     return (f"the stage groups after it carry no more than their design flow, so this is not a "
             f"stage overload; the rise comes from{back} hotter steam further on. Extraction "

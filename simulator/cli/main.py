@@ -151,7 +151,7 @@ def _cmd_point(args) -> int:
               file=sys.stderr)
     backend = args.backend or case.backend
     result = solve_point(case.model, case.conditions, backend)
-    cautions = _cautions(case.model, case.conditions, result)
+    cautions = _cautions(case.model, case.conditions, result, args.units)
     if args.json:
         print(json.dumps(point_to_dict(result, case.name, cautions, args.units), indent=2))
     else:
@@ -220,10 +220,10 @@ def _names(text: str) -> list[str]:
     return names
 
 
-def _cautions(model, cond, result):
+def _cautions(model, cond, result, units: str = "metric"):
     from ..cautions.checks import check_point
 
-    return check_point(model, cond, result)
+    return check_point(model, cond, result, units=units)
 
 
 def _say(text: str) -> None:

@@ -156,7 +156,7 @@ def point_report(case, *, backend: str | None = None, design: bool = True,
     backend = backend or case.backend
     cond = conditions if conditions is not None else case.conditions
     r = solve_point(model, cond, backend, check_limits=check_limits)
-    cautions = check_point(model, cond, r)
+    cautions = check_point(model, cond, r, units=units)
     d = solve_point(model, design_conditions(model), backend) if design else None
     info = point_to_dict(r, case.name, cautions, units)
     name = case.name + (f", {label}" if label else "")
