@@ -127,22 +127,30 @@ def test_a_model_without_heater_train_is_drawn():
     assert "condenser" in texts  # the exhaust node is still labelled
 
 
-def _drain_boxes(svg: str) -> list[tuple[float, float, float, float, str]]:
-    """Boxes of the drain labels, ``(x0, y0, x1, y1, text)`` [px], estimated here
-    from the character count and the font size: 0.6 em a character and 1.3 em tall
-    (from the baseline up one em, down 0.3 em).  Hand bound over what headless
-    Chromium draws in DejaVu Sans for these labels (measured: at most 0.51 em a
-    character, 1.14 em tall)."""
+def _text_boxes(svg: str, cls: str) -> list[tuple[float, float, float, float, str]]:
+    """Boxes of the texts of class ``cls``, ``(x0, y0, x1, y1, text)`` [px],
+    estimated here from the character count and the font size: 0.6 em a character
+    and 1.3 em tall (from the baseline up one em, down 0.3 em).  Hand bound over
+    what headless Chromium draws in DejaVu Sans for the drain labels (measured: at
+    most 0.51 em a character, 1.14 em tall).  Drain labels start at their x,
+    feedwater stream labels are centred on it."""
     out = []
     for t in ET.fromstring(svg).iter(f"{SVG}text"):
-        if t.get("class") != "drain":
+        if t.get("class") != cls:
             continue
         text = "".join(t.itertext())
         size = float(re.search(r"font-size:([\d.]+)px", t.get("style")).group(1))
         x, y = float(t.get("x")), float(t.get("y"))
-        assert t.get("text-anchor") == "start"
-        out.append((x, y - size, x + 0.6 * size * len(text), y + 0.3 * size, text))
+        width = 0.6 * size * len(text)
+        x0 = x if t.get("text-anchor") == "start" else x - width / 2
+        assert t.get("text-anchor") == ("start" if cls == "drain" else "middle")
+        out.append((x0, y - size, x0 + width, y + 0.3 * size, text))
     return out
+
+
+def _drain_boxes(svg: str) -> list[tuple[float, float, float, float, str]]:
+    """Boxes of the drain labels (:func:`_text_boxes`)."""
+    return _text_boxes(svg, "drain")
 
 
 def _drain_segments(svg: str) -> list[tuple[float, float, float, float]]:
@@ -171,22 +179,6 @@ def _drain_diagrams():
            solve_point(case.model, design_conditions(case.model), case.backend))
 
 
-def _stream_boxes(svg: str) -> list[tuple[float, float, float, float, str]]:
-    """Boxes of the feedwater stream labels (centred), estimated as the drain
-    labels' are (:func:`_drain_boxes`)."""
-    out = []
-    for t in ET.fromstring(svg).iter(f"{SVG}text"):
-        if t.get("class") != "stream":
-            continue
-        text = "".join(t.itertext())
-        size = float(re.search(r"font-size:([\d.]+)px", t.get("style")).group(1))
-        x, y = float(t.get("x")), float(t.get("y"))
-        assert t.get("text-anchor") == "middle"
-        half = 0.3 * size * len(text)
-        out.append((x - half, y - size, x + half, y + 0.3 * size, text))
-    return out
-
-
 @pytest.mark.parametrize("units", ["metric", "us"])
 def test_no_drain_line_crosses_a_feedwater_label(units):
     # a drain pumped forward rises into the feedwater beside the label of that stream
@@ -194,7 +186,7 @@ def test_no_drain_line_crosses_a_feedwater_label(units):
     forward = 0
     for name, model, r, design in _drain_diagrams():
         svg = diagram_svg(model, r, design=design, units=units)
-        labels = _stream_boxes(svg)
+        labels = _text_boxes(svg, "stream")
         assert labels or not model.heaters, name
         forward += sum(1 for h in model.heaters.values() if h.drain_to == "forward")
         for x0, y0, x1, y1 in _drain_segments(svg):
