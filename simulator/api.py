@@ -431,6 +431,8 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
     try:
         if action == "resume":
             files.append(store.StudyFile.resume(path, plan, layout, check_limits=check))
+        else:  # the file is made later: a study it would not fit is refused before solving
+            store.writer.check_room(path, plan, layout)
         # a new file is made when the first chunk comes back: the workers start
         # solving while it is made (about 0.1 s on the demo year)
         try:

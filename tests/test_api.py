@@ -288,3 +288,24 @@ def test_a_study_file_that_cannot_be_made_is_a_file_error_on_a_dask_cluster(tmp_
             partload.run_study(ROOT / "cases" / "reheat_load_sweep.toml", out, limit=4,
                                scheduler=cluster.scheduler_address)
     assert not out.exists()
+
+
+def test_a_study_file_that_does_not_fit_is_refused_before_any_point_is_solved(tmp_path,
+                                                                             monkeypatch):
+    # the file is made when the first chunk comes back, but the free space it needs is
+    # known from the plan: a study that cannot be stored is refused before solving
+    import partload.store.writer as writer
+    import partload.study.run as run
+    monkeypatch.setattr(writer, "_free_space", lambda folder: 1000)
+    solved = []
+    real = run.solve_point
+
+    def counted(*a, **kw):
+        solved.append(1)
+        return real(*a, **kw)
+
+    monkeypatch.setattr(run, "solve_point", counted)
+    out = tmp_path / "sub" / "sweep.h5"
+    with pytest.raises(ResultFileError, match="only 1.0 kB is free"):
+        partload.run_study(ROOT / "cases" / "reheat_load_sweep.toml", out, limit=4, workers=1)
+    assert solved == [] and not out.exists()
