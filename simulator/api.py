@@ -381,8 +381,9 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
     auto_resume : continue an existing result of the same study, which does
         nothing when it is complete, instead of refusing it [-]
     progress : show a progress bar (tqdm on a terminal, lines otherwise) [-]
-    on_start : called with the :class:`StudyRun` once the file is ready and
-        before solving (the command prints its heading there) [-]
+    on_start : called with the :class:`StudyRun` before solving, once the target
+        is checked (a new file is made only when the first chunk comes back; a
+        resumed one is open) (the command prints its heading there) [-]
 
     Returns
     -------
@@ -430,6 +431,8 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
     try:
         if action == "resume":
             files.append(store.StudyFile.resume(path, plan, layout, check_limits=check))
+        else:  # the file is made later: a study it would not fit is refused before solving
+            store.writer.check_room(path, plan, layout)
         # a new file is made when the first chunk comes back: the workers start
         # solving while it is made (about 0.1 s on the demo year)
         try:

@@ -270,3 +270,42 @@ def test_readme_api_example_runs_as_written(tmp_path, monkeypatch, capsys):
     assert lines[0] == "198.8 MW"
     assert lines[2] == "10 of 10 points converged into results/reheat_load_sweep.h5"
     assert (tmp_path / "results" / "reheat_load_sweep.h5").exists()
+
+
+def test_a_study_file_that_cannot_be_made_is_a_file_error_on_a_dask_cluster(tmp_path,
+                                                                            monkeypatch):
+    # the file is made when the first chunk comes back, inside the cluster's loop: a
+    # failure to make it (here: too little free space) is the file's error, not a lost
+    # scheduler, and no file appears
+    distributed = pytest.importorskip("distributed")
+    import partload.store.writer as writer
+    monkeypatch.setattr(writer, "_free_space", lambda folder: 1000)
+    out = tmp_path / "sweep.h5"
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                                  dashboard_address=None, host="127.0.0.1", protocol="tcp",
+                                  scheduler_port=0) as cluster:
+        with pytest.raises(ResultFileError, match="free"):
+            partload.run_study(ROOT / "cases" / "reheat_load_sweep.toml", out, limit=4,
+                               scheduler=cluster.scheduler_address)
+    assert not out.exists()
+
+
+def test_a_study_file_that_does_not_fit_is_refused_before_any_point_is_solved(tmp_path,
+                                                                             monkeypatch):
+    # the file is made when the first chunk comes back, but the free space it needs is
+    # known from the plan: a study that cannot be stored is refused before solving
+    import partload.store.writer as writer
+    import partload.study.run as run
+    monkeypatch.setattr(writer, "_free_space", lambda folder: 1000)
+    solved = []
+    real = run.solve_point
+
+    def counted(*a, **kw):
+        solved.append(1)
+        return real(*a, **kw)
+
+    monkeypatch.setattr(run, "solve_point", counted)
+    out = tmp_path / "sub" / "sweep.h5"
+    with pytest.raises(ResultFileError, match="only 1.0 kB is free"):
+        partload.run_study(ROOT / "cases" / "reheat_load_sweep.toml", out, limit=4, workers=1)
+    assert solved == [] and not out.exists()

@@ -74,3 +74,32 @@ def test_cold_water_from_a_start_inverts_the_merkel_number():
             assert T_c == pytest.approx(cold_water_temperature(T_wb, rng, need, lg, p),
                                         abs=1e-9)
             assert merkel_number(T_c, T_c + rng, T_wb, lg, p) == pytest.approx(need, rel=1e-9)
+
+
+@pytest.mark.parametrize("T_wb, rng, merkel, lg, start", [
+    # found by a random search over wet bulbs 250-310 K, ranges 0.5-20 K, L/G 0.3-3
+    # and Merkel numbers 0.3-5: the secant's second step, along a nearly flat
+    # stretch, left for approaches of 1e4-1e10 K and the saturation pressure's
+    # equation failed (math domain error) on the way back
+    (292.87952376813365, 16.857931688740717, 0.3694139687667729, 0.30822164710710664,
+     0.17736007886971109),
+    (304.8568177457543, 15.52044377722564, 0.32370493234567804, 0.42262962487876404,
+     0.1044337800530305),
+    (283.60465815782464, 14.106287250224323, 0.8677369295805799, 0.3619021850646375,
+     0.05990557814279719),
+    # the same search with starts of 58-104 K: a start moved (or a step taken) to
+    # water far above boiling, where the saturation pressure's equation fails
+    (309.5526047305639, 11.930425491512036, 0.7649348559371336, 0.3962882672371416,
+     60.06374981666062),
+    (307.4269768876136, 0.5106418116542676, 3.0173864815110396, 1.8229572632639008,
+     90.43746580588012),
+    (309.44294024094415, 7.904244896406883, 0.7970587713831243, 0.579019536026958,
+     58.031607369514184),
+])
+def test_cold_water_from_an_extreme_start_equals_the_bracketed_search(T_wb, rng, merkel, lg,
+                                                                      start):
+    p = 101325.0
+    T_c = cold_water_temperature(T_wb, rng, merkel, lg, p, start=start)
+    # identity: the same answer as the bracketed search, and the tower's Merkel number
+    assert T_c == pytest.approx(cold_water_temperature(T_wb, rng, merkel, lg, p), abs=1e-9)
+    assert merkel_number(T_c, T_c + rng, T_wb, lg, p) == pytest.approx(merkel, rel=1e-9)

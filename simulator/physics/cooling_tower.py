@@ -32,6 +32,7 @@ from .governing import solve_increasing
 __all__ = ["saturation_pressure", "saturated_air_enthalpy", "merkel_number",
            "cold_water_temperature", "CP_WATER"]
 
+_MAX_LOG_STEP = 2.0  # [-] largest change of the approach's logarithm in one secant step
 CP_WATER = 4186.0  # [J/(kg K)] water heat capacity in Merkel's integral (common practice)
 
 # IAPWS-IF97 region 4 coefficients n1..n10 (IAPWS R7-97(2012), table 34)
@@ -98,7 +99,10 @@ def cold_water_temperature(T_wet_bulb: float, rng: float, merkel: float, l_over_
         log_merkel = math.log(merkel)
 
         def g(u):  # log of the number needed at approach e^u, less the tower's
-            n = -needed_minus(math.exp(u))
+            try:
+                n = -needed_minus(math.exp(u))
+            except ValueError:  # water far above boiling: beyond IF97 eq. 30's range
+                return math.inf  # (as where the air saturates: back to a smaller step)
             if not 0.0 < n < math.inf:  # saturated on the way (or no range): no log
                 return math.inf if n > 0.0 else -math.inf
             return math.log(n) - log_merkel
@@ -116,6 +120,10 @@ def cold_water_temperature(T_wet_bulb: float, rng: float, merkel: float, l_over_
             if not (math.isfinite(f0) and math.isfinite(f1)) or f1 == f0:
                 break
             u2 = u1 - f1 * (u1 - u0) / (f1 - f0)
+            # a step along a nearly flat stretch can leave for approaches of thousands
+            # of kelvin, beyond the saturation pressure's range (a math domain
+            # error there): at most a factor e^2 of the approach a step
+            u2 = min(max(u2, u1 - _MAX_LOG_STEP), u1 + _MAX_LOG_STEP)
             if abs(math.exp(u2) - math.exp(u1)) <= 1e-12 * (T_wet_bulb + math.exp(u2)):
                 return T_wet_bulb + math.exp(u2)
             f2 = g(u2)

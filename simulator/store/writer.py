@@ -62,7 +62,8 @@ from .format import (
 # over are used by their attributes only: the store sits below the study and
 # never imports it, and reading results never loads the layout's declarations.
 
-__all__ = ["LARGE_FILE", "StudyFile", "between_steps", "check_target", "study_file_size"]
+__all__ = ["LARGE_FILE", "StudyFile", "between_steps", "check_room", "check_target",
+           "study_file_size"]
 
 LARGE_FILE = 1 << 30  # [B] a result file this large is announced before it is allocated
 ABANDONED_AFTER = 600.0  # [s] a temporary file unchanged this long, and unlocked, is abandoned
@@ -186,6 +187,34 @@ def size_text(size: float) -> str:
         if size >= scale:
             return f"{size / scale:.1f} {unit}"
     return f"{int(size)} B"
+
+
+def check_room(path: str | Path, plan, layout) -> tuple[int, int, Path]:
+    """Check that the folder of the result file ``path`` [-] has the room the file
+    of ``plan`` needs (:func:`study_file_size`): before a study solves its first
+    chunk (the file is made when that comes back) and when the file is made.
+
+    Returns ``(needed, free, folder)`` [B, B, -], the folder being the nearest
+    one that exists.
+
+    Raises
+    ------
+    ResultFileError
+        When less is free than the file needs (both named).
+    """
+    path = Path(path)
+    needed = study_file_size(plan, layout)
+    folder = path.parent.resolve()
+    while not folder.exists() and folder != folder.parent:  # made with the file
+        folder = folder.parent
+    free = _free_space(folder)
+    if needed > free:
+        raise ResultFileError(
+            f"cannot create {path}: the study needs about {size_text(needed)} for its "
+            f"{plan.n_points} points (allocated when the file is made) and only "
+            f"{size_text(free)} is free on {folder}; free some space, write elsewhere "
+            f"with --output, or run fewer points")
+    return needed, free, folder
 
 
 def _free_space(folder: Path) -> int:
@@ -376,15 +405,7 @@ class StudyFile:
         """
         path = Path(path)
         path.parent.mkdir(parents=True, exist_ok=True)
-        needed = study_file_size(plan, layout)
-        folder = path.parent.resolve()
-        free = _free_space(folder)
-        if needed > free:
-            raise ResultFileError(
-                f"cannot create {path}: the study needs about {size_text(needed)} for its "
-                f"{plan.n_points} points (allocated when the file is made) and only "
-                f"{size_text(free)} is free on {folder}; free some space, write elsewhere "
-                f"with --output, or run fewer points")
+        needed, free, folder = check_room(path, plan, layout)
         if needed >= LARGE_FILE:
             (note or _note)(f"{path} takes about {size_text(needed)} for {plan.n_points} "
                             f"points, allocated now ({size_text(free)} free on {folder})")

@@ -366,6 +366,7 @@ def _run_dask(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], scheduler,
         from distributed import as_completed
 
         futures = []
+        writing = False  # in ``handle``: its errors are the result file's, not the cluster's
         try:
             from ..version import __version__
 
@@ -383,7 +384,10 @@ def _run_dask(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], scheduler,
                                              key=f"partload-chunk-{c.index}-{os.getpid()}-"
                                                  f"{time.time_ns()}"))
             for fut in as_completed(futures, loop=client.loop):
-                handle(_dask_chunk_of(fut, client, address))
+                res = _dask_chunk_of(fut, client, address)
+                writing = True
+                handle(res)
+                writing = False
             return n_workers
         except KeyboardInterrupt:
             with contextlib.suppress(Exception):
@@ -392,6 +396,8 @@ def _run_dask(plan: StudyPlan, spec: SolveSpec, todo: list[Chunk], scheduler,
         except (InputError, SolveError, ClusterError):
             raise
         except Exception as exc:  # noqa: BLE001 - the connection to the scheduler failed
+            if writing:  # the result file could not be made or written (as without Dask)
+                raise
             raise _lost(address, exc) from None
 
 
