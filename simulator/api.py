@@ -446,6 +446,14 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
                 run.summary = study.run_study(plan, write, workers=n_workers,
                                               scheduler=scheduler, skip=skip, layout=layout,
                                               progress=bar, check_limits=check)
+            except Exception:
+                # stopped before a chunk came back (a worker lost, say): the file is made
+                # all the same, as the error's '--resume' expects (unless making it is
+                # what failed)
+                if not files:
+                    with contextlib.suppress(Exception):
+                        result_file()
+                raise
             finally:
                 bar.close()
             run.n_done = int(result_file().done.sum())

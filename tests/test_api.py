@@ -309,3 +309,22 @@ def test_a_study_file_that_does_not_fit_is_refused_before_any_point_is_solved(tm
     with pytest.raises(ResultFileError, match="only 1.0 kB is free"):
         partload.run_study(ROOT / "cases" / "reheat_load_sweep.toml", out, limit=4, workers=1)
     assert solved == [] and not out.exists()
+
+
+def _die(*_args):  # a worker process that dies before it finishes its chunk
+    import os
+    os._exit(1)
+
+
+def test_a_worker_lost_before_any_chunk_leaves_a_file_to_resume(tmp_path, monkeypatch):
+    # the result file is made when the first chunk comes back; when none does, the error
+    # still tells the user to continue with --resume, so the file must be there (empty)
+    from partload.errors import SolveError
+    from partload.study import executors
+
+    monkeypatch.setattr(executors, "solve_chunk_task", _die)
+    out = tmp_path / "sweep.h5"
+    with pytest.raises(SolveError, match="--resume"):
+        partload.run_study(CASES / "reheat_load_sweep.toml", out, workers=2)
+    with h5py.File(out, "r") as f:
+        assert not np.any(f["points/done"][()])

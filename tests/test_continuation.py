@@ -3,6 +3,7 @@ profile, and every answer equals the point solved alone."""
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 
 import numpy as np
@@ -255,3 +256,22 @@ def test_a_weather_year_starts_from_the_fit():
             fit_err.append(np.max(np.abs(start - x)))
             last_err.append(np.max(np.abs(np.asarray(last.unknowns) - x)))
     assert np.median(fit_err) < 1e-3 and np.median(fit_err) < 0.01 * np.median(last_err)
+
+
+def test_numeric_settings_of_any_number_type_are_a_family_s_numbers():
+    # a setting's value is a number of the family whatever its Python or numpy type,
+    # while a choice or a flag stays part of the family
+    from partload.study.run import _family, _numbers
+
+    case = load_case(ROOT / "cases" / "reheat_weather_year.toml")
+    base = plan_study(case).conditions[0]
+    key = base.settings[0][:3]
+
+    def with_value(v):
+        return dataclasses.replace(base, settings=(key + (v,),))
+
+    a, b = with_value(np.int64(280)), with_value(285.5)
+    assert _family(a) == _family(b)
+    assert _numbers(case.model, a)[-1] == 280.0 and _numbers(case.model, b)[-1] == 285.5
+    assert _family(with_value(True)) != _family(with_value(False))
+    assert _family(with_value("wet")) != _family(with_value("dry"))

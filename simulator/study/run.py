@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import numbers
 import os
 import signal
 import threading
@@ -131,7 +132,7 @@ def _family(cond: Conditions) -> tuple:
 
 def _is_number(value) -> bool:
     """A setting's value that a family varies (a quantity), not a choice or flag."""
-    return isinstance(value, float | int) and not isinstance(value, bool)
+    return isinstance(value, numbers.Real) and not isinstance(value, bool | np.bool_)
 
 
 def _numbers(model: Model, cond: Conditions) -> np.ndarray:
