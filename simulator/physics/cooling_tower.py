@@ -90,8 +90,8 @@ def cold_water_temperature(T_wet_bulb: float, rng: float, merkel: float, l_over_
     roughly as a power of the approach, so the two logarithms are nearly in a
     straight line: four to six Merkel numbers from the design approach), a start
     or a step at which the air would saturate on the way moved to a larger
-    approach or halved back; the bracketed
-    search when it does not settle within twelve steps."""
+    approach or halved back; the bracketed search when it does not settle
+    within twelve steps."""
     def needed_minus(approach):
         return -merkel_number(T_wet_bulb + approach, T_wet_bulb + approach + rng, T_wet_bulb,
                               l_over_g, p)
