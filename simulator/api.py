@@ -339,6 +339,9 @@ class StudyRun:
     n_done_before : points already done in a resumed file [-]
     n_done : points done in the file at the end [-]
     summary : what this run solved (``None`` until it has run) [-]
+    written : whether this run wrote the file; ``False`` when it was stopped
+        before its first chunk came back (a file it was to replace is then
+        unchanged) [-]
     """
 
     case: Case
@@ -348,6 +351,7 @@ class StudyRun:
     n_done_before: int = 0
     n_done: int = 0
     summary: StudySummary | None = None
+    written: bool = True
 
 
 def _on_sigterm(signum, frame):  # pragma: no cover - exercised by a subprocess test
@@ -456,7 +460,11 @@ def run_study_file(case_path: str | Path, *, output: str | Path | None = None,
                 raise
             finally:
                 bar.close()
-            run.n_done = int(result_file().done.sum())
+            if run.summary.interrupted and not files:
+                run.written = False  # stopped before any chunk: nothing to keep, and a
+                # result it was to replace stays as it was
+            else:
+                run.n_done = int(result_file().done.sum())
         finally:
             if files:
                 files[0].close()
@@ -501,7 +509,8 @@ def run_study(case_path: str | Path, output: str | Path | None = None, *,
         ``(path, summary)``: the result file and a :class:`StudySummary`
         (``n_points``, ``n_converged``, ``n_failed``, ``n_cautions``,
         ``seconds``, ``failures``, ``interrupted``, ...).  An existing result
-        is never overwritten without ``force``.
+        is never overwritten without ``force``, nor by a study interrupted
+        before its first chunk came back (which writes no file).
 
     Raises
     ------

@@ -328,3 +328,24 @@ def test_a_worker_lost_before_any_chunk_leaves_a_file_to_resume(tmp_path, monkey
         partload.run_study(CASES / "reheat_load_sweep.toml", out, workers=2)
     with h5py.File(out, "r") as f:
         assert not np.any(f["points/done"][()])
+
+
+def test_a_study_stopped_before_its_first_chunk_leaves_a_replaced_file_as_it_was(
+        tmp_path, monkeypatch, capsys):
+    # --force replaces a result only once there is something to put in its place: a
+    # study stopped (Ctrl-C) before its first chunk came back writes nothing
+    from partload.study import executors
+
+    out = tmp_path / "sweep.h5"
+    partload.run_study(CASES / "reheat_load_sweep.toml", out, workers=1, limit=3)
+    before = out.read_bytes()
+
+    def interrupted(*_args):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(executors, "solve_chunk", interrupted)
+    code = main(["study", str(CASES / "reheat_load_sweep.toml"), "--output", str(out),
+                 "--force", "--workers", "1", "--quiet"])
+    assert code == 130
+    assert "nothing was written" in capsys.readouterr().err
+    assert out.read_bytes() == before

@@ -124,6 +124,11 @@ def run_study_command(case_path: str | Path, *, output: str | Path | None = None
                              beyond_limits=beyond_limits, auto_resume=auto_resume,
                              progress=not quiet, on_start=heading)
     summary, plan, path, done_now = run.summary, run.plan, run.path, run.n_done
+    if not run.written:
+        print("partload: interrupted before the first points were finished; nothing was "
+              "written" + (f" ({path} is as it was)" if path.exists() else ""),
+              file=sys.stderr)
+        return 130
     _print_summary(summary, plan, path, done_now, out)
     if summary.interrupted:
         print(f"partload: interrupted; {path} holds the {done_now} finished points of "
