@@ -21,7 +21,8 @@ import numpy as np
 
 from ..errors import ClusterError, InputError, SolveError
 from ..store.layout import ResultLayout, result_layout
-from .plan import Chunk, PointConditions, StudyPlan
+from .plan import Chunk, StudyPlan
+from .points import PointConditions
 from .progress import Progress, StudySummary
 from .run import ChunkResult, SolveSpec, init_worker, keep_model, solve_chunk, solve_chunk_task
 
@@ -114,7 +115,7 @@ def run_study(plan: StudyPlan, on_result: Callable[[ChunkResult], None], *,
 
 def _points_of(plan: StudyPlan, c: Chunk):
     """The conditions of chunk ``c`` as the worker gets them: a plan's points as
-    numbers (:meth:`~.plan.PointConditions.part`; the worker makes them), else a list."""
+    numbers (:meth:`~.points.PointConditions.part`; the worker makes them), else a list."""
     if isinstance(plan.conditions, PointConditions):
         return plan.conditions.part(c.start, c.stop)
     return plan.conditions[c.start:c.stop]

@@ -25,7 +25,8 @@ from ..plant.model import Model, build_model
 from ..solve.point import PointResult, one_blas_thread, solve_point
 from ..steam.if97 import get_backend
 from ..store.layout import CAUTION_BYTES, CODES_BYTES, ResultLayout, cut_text
-from .plan import Chunk, PointConditions
+from .plan import Chunk
+from .points import PointConditions
 
 __all__ = [
     "ChunkResult",
