@@ -227,6 +227,23 @@ def _component_shape(svg: _Svg, comp, x: float, y: float, grey: bool) -> None:
         svg.rect(x - 16, y - 7, 32, 14, "#eeeeee", colour, title=title)
 
 
+def _lookup(table, design_table, fmt):
+    """``(value, rows, design rows)``: ``value(name, column, unit, des=False)`` is the
+    named row's value of a result table (of its design point's with ``des``) in
+    display units, ``None`` where there is none; ``rows`` and ``design rows`` map
+    row names to indices."""
+    rows = {n: i for i, n in enumerate(table.names)}
+    drows = {n: i for i, n in enumerate(design_table.names)} if design_table is not None else {}
+
+    def value(name, col, unit, des=False):
+        t, idx = (design_table, drows) if des else (table, rows)
+        if t is None or name not in idx:
+            return None
+        return fmt.disp(t.columns[col][idx[name]], unit)
+
+    return value, rows, drows
+
+
 def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
                 title: str | None = None, units: str = "metric") -> str:
     """The heat-balance diagram of a solved point as SVG text.
@@ -255,26 +272,10 @@ def diagram_svg(model, result, *, case_name: str = "", design=None, cautions=(),
                                                 result.totals.get("generator_output")))
                                           .encode()).hexdigest()[:10])
     nodes = result.tables["nodes"]
-    ni = {n: i for i, n in enumerate(nodes.names)}
     dnodes = design.tables["nodes"] if design is not None else None
-    dni = {n: i for i, n in enumerate(dnodes.names)} if dnodes is not None else {}
-
-    def node_val(name, col, unit, des=False):
-        t, idx = (dnodes, dni) if des else (nodes, ni)
-        if t is None or name not in idx:
-            return None
-        return fmt.disp(t.columns[col][idx[name]], unit)
-
-    path = result.tables["steam_path"]
-    pi = {n: i for i, n in enumerate(path.names)}
-    dpath = design.tables["steam_path"] if design is not None else None
-    dpi = {n: i for i, n in enumerate(dpath.names)} if dpath is not None else {}
-
-    def path_val(name, col, unit, des=False):
-        t, idx = (dpath, dpi) if des else (path, pi)
-        if t is None or name not in idx:
-            return None
-        return fmt.disp(t.columns[col][idx[name]], unit)
+    node_val, ni, dni = _lookup(nodes, dnodes, fmt)
+    path_val, _pi, _dpi = _lookup(result.tables["steam_path"], design.tables["steam_path"]
+                                  if design is not None else None, fmt)
 
     caution_where = {getattr(c, "where", None) or (c.get("where") if isinstance(c, dict)
                                                     else None) for c in cautions}
