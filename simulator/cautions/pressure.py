@@ -41,20 +41,27 @@ def rises(pt: _Point) -> list[tuple[float, str, float, str]]:
 
 
 def pressure_rise(pt: _Point) -> Caution | None:
-    model = pt.model
     name = "max_pressure_rise"
     lim = pt.limits[name]
     over = [o for o in rises(pt) if o[3] != "back_pressure"]
     if not over:
         return None
-    rise, n, p, kind = over[0]
+    rise, n, _p, kind = over[0]
     return Caution(
         "pressure_rise",
-        f"Pressure at node {n!r} is {pt.q(p, 'Pa', '.4g')}, {_pct(rise)} above its design "
-        f"{pt.q(model.design_pressure[n], 'Pa', '.4g')} ({pt.limit_text(name, _pct(lim))})"
-        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: {rise_cause(pt, n, kind)} "
-        f"{DEFERENCE}",
+        f"{_above_design(pt, over, name, lim)}: {rise_cause(pt, n, kind)} {DEFERENCE}",
         rise, lim, n, "-")
+
+
+def _above_design(pt: _Point, over: list, name: str, lim: float) -> str:
+    """The words both rise cautions open with: the worst node of ``over`` (rises
+    from :func:`rises`, worst first) against its design pressure and the limit
+    ``name`` (``lim`` [-]), and the other nodes beyond it."""
+    rise, n, p, _kind = over[0]
+    return (f"Pressure at node {n!r} is {pt.q(p, 'Pa', '.4g')}, {_pct(rise)} above its design "
+            f"{pt.q(pt.model.design_pressure[n], 'Pa', '.4g')} "
+            f"({pt.limit_text(name, _pct(lim))})"
+            f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}")
 
 
 def back_pressure_rise(pt: _Point) -> Caution | None:
@@ -70,9 +77,7 @@ def back_pressure_rise(pt: _Point) -> Caution | None:
     p_ex = float(r.node_p[pt.node_index(ex)])
     return Caution(
         "back_pressure_rise",
-        f"Pressure at node {n!r} is {pt.q(p, 'Pa', '.4g')}, {_pct(rise)} above its design "
-        f"{pt.q(model.design_pressure[n], 'Pa', '.4g')} ({pt.limit_text(name, _pct(lim))})"
-        f"{_others([(o[1], '+' + _pct(o[0])) for o in over[1:]])}: the exhaust pressure "
+        f"{_above_design(pt, over, name, lim)}: the exhaust pressure "
         f"({pt.q(p_ex, 'Pa', '.3g', BACK)} against "
         f"{pt.q(model.design_pressure[ex], 'Pa', '.3g', BACK)} at design) "
         f"pushes up the pressures of the last stages. This is not a stage overload: the "
